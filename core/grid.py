@@ -1,0 +1,179 @@
+"""Uniform grids in 1, 2 and 3 dimensions.
+
+Conventions (stable; other tools rely on them):
+
+* Arrays on a grid are indexed ``[x]``, ``[x, y]`` or ``[x, y, z]``
+  (``numpy.meshgrid(..., indexing="ij")``).
+* A **hard-wall** axis from ``lower`` to ``upper`` with ``n`` points holds the
+  *interior* nodes ``lower + i*h`` for ``i = 1..n`` with ``h = (upper-lower)/(n+1)``.
+  The wavefunction vanishes exactly at ``lower`` and ``upper`` (they are not
+  grid points), so a box from 0 to L is written as lower 0, upper L.
+* A **periodic** axis holds the nodes ``lower + i*h`` for ``i = 0..n-1`` with
+  ``h = (upper-lower)/n``; the period is ``upper - lower``.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Sequence
+
+import numpy as np
+
+from .errors import InputError
+
+__all__ = ["Grid", "HARD_WALL", "PERIODIC", "BOUNDARIES"]
+
+HARD_WALL = "hard-wall"
+PERIODIC = "periodic"
+BOUNDARIES = (HARD_WALL, PERIODIC)
+AXIS_NAMES = ("x", "y", "z")
+
+
+def _as_tuple(values, ndim: int | None, what: str, kind=float) -> tuple:
+    if isinstance(values, (str, bytes)):
+        raise InputError(f"grid {what}: expected a list of numbers, got {values!r}")
+    if np.ndim(values) == 0:
+        values = [values] * (ndim or 1)
+    out = []
+    for i, v in enumerate(values):
+        try:
+            if kind is int:
+                if isinstance(v, bool) or float(v) != int(v):
+                    raise ValueError
+                out.append(int(v))
+            else:
+                fv = float(v)
+                if not np.isfinite(fv):
+                    raise ValueError
+                out.append(fv)
+        except (TypeError, ValueError):
+            raise InputError(f"grid {what}[{i}]: expected {'an integer' if kind is int else 'a finite number'}, got {v!r}") from None
+    return tuple(out)
+
+
+@dataclass(frozen=True)
+class Grid:
+    """A uniform tensor-product grid.
+
+    Parameters
+    ----------
+    lower, upper:
+        Corners of the box, one number per axis, in the project's length unit.
+    points:
+        Number of grid points per axis.
+    boundary:
+        ``"hard-wall"`` (Dirichlet) or ``"periodic"``, one for all axes or one per axis.
+    """
+
+    lower: tuple
+    upper: tuple
+    points: tuple
+    boundary: tuple = field(default=HARD_WALL)
+
+    def __init__(self, lower: Sequence[float], upper: Sequence[float], points: Sequence[int],
+                 boundary: str | Sequence[str] = HARD_WALL):
+        pts = _as_tuple(points, None, "points", int)
+        ndim = len(pts)
+        if ndim not in (1, 2, 3):
+            raise InputError(f"grid points: expected 1, 2 or 3 axes, got {ndim}")
+        lo = _as_tuple(lower, ndim, "lower")
+        hi = _as_tuple(upper, ndim, "upper")
+        if len(lo) != ndim or len(hi) != ndim:
+            raise InputError(f"grid lower/upper/points must have the same number of axes "
+                             f"(got {len(lo)}, {len(hi)}, {ndim})")
+        if isinstance(boundary, str):
+            bnd = (boundary,) * ndim
+        else:
+            bnd = tuple(boundary)
+        if len(bnd) != ndim:
+            raise InputError(f"grid boundary: expected one boundary or {ndim}, got {len(bnd)}")
+        for a in range(ndim):
+            if bnd[a] not in BOUNDARIES:
+                raise InputError(f"grid boundary[{a}]: expected 'hard-wall' or 'periodic', got {bnd[a]!r}")
+            minimum = 3
+            if pts[a] < minimum:
+                raise InputError(f"grid points[{a}]: expected an integer >= {minimum}, got {pts[a]}")
+            if not hi[a] > lo[a]:
+                raise InputError(f"grid axis {AXIS_NAMES[a]}: upper ({hi[a]}) must be greater than lower ({lo[a]})")
+        object.__setattr__(self, "lower", lo)
+        object.__setattr__(self, "upper", hi)
+        object.__setattr__(self, "points", pts)
+        object.__setattr__(self, "boundary", bnd)
+
+    # -- geometry -------------------------------------------------------------------------
+    @property
+    def ndim(self) -> int:
+        return len(self.points)
+
+    @property
+    def shape(self) -> tuple:
+        return tuple(self.points)
+
+    @property
+    def size(self) -> int:
+        return int(np.prod(self.points, dtype=np.int64))
+
+    @property
+    def periodic(self) -> tuple:
+        return tuple(b == PERIODIC for b in self.boundary)
+
+    @property
+    def spacing(self) -> tuple:
+        """Grid spacing per axis, in the length unit."""
+        out = []
+        for lo, hi, n, b in zip(self.lower, self.upper, self.points, self.boundary):
+            out.append((hi - lo) / (n if b == PERIODIC else n + 1))
+        return tuple(out)
+
+    @property
+    def volume_element(self) -> float:
+        """dV = product of the spacings (length unit ** ndim)."""
+        return float(np.prod(self.spacing))
+
+    @property
+    def axes(self) -> tuple:
+        """One 1D coordinate array per axis."""
+        out = []
+        for lo, n, b, h in zip(self.lower, self.points, self.boundary, self.spacing):
+            first = 0 if b == PERIODIC else 1
+            out.append(lo + h * np.arange(first, first + n, dtype=float))
+        return tuple(out)
+
+    def mesh(self) -> tuple:
+        """Full coordinate arrays (``indexing="ij"``), one per axis."""
+        return tuple(np.meshgrid(*self.axes, indexing="ij"))
+
+    def mesh_sparse(self) -> tuple:
+        """Broadcastable coordinate arrays (``sparse=True``), cheap in memory."""
+        return tuple(np.meshgrid(*self.axes, indexing="ij", sparse=True))
+
+    def coordinates(self) -> dict:
+        """Broadcastable ``x, y, z, r`` arrays (missing axes are 0) for evaluating formulas."""
+        mesh = self.mesh_sparse()
+        zero = np.zeros((1,) * self.ndim)
+        env = {}
+        for a, name in enumerate(AXIS_NAMES):
+            env[name] = mesh[a] if a < self.ndim else zero
+        r2 = sum(m * m for m in mesh)
+        env["r"] = np.sqrt(r2)
+        return env
+
+    def refined(self, factor: float) -> "Grid":
+        """The same box with ``factor`` times as many intervals per axis (factor < 1 coarsens)."""
+        pts = []
+        for n, b in zip(self.points, self.boundary):
+            intervals = n if b == PERIODIC else n + 1
+            new = max(4, int(round(intervals * factor)))
+            pts.append(new if b == PERIODIC else new - 1)
+        return Grid(self.lower, self.upper, pts, self.boundary)
+
+    def with_points(self, points: Sequence[int]) -> "Grid":
+        return Grid(self.lower, self.upper, points, self.boundary)
+
+    def to_dict(self) -> dict:
+        bnd = self.boundary[0] if len(set(self.boundary)) == 1 else list(self.boundary)
+        return {"lower": list(self.lower), "upper": list(self.upper),
+                "points": list(self.points), "boundary": bnd}
+
+    def describe(self) -> str:
+        dims = " x ".join(str(n) for n in self.points)
+        return f"{dims} points ({self.size:,} unknowns), spacing " + ", ".join(f"{h:.4g}" for h in self.spacing)
