@@ -71,17 +71,13 @@ class UnitSystem:
 
     def kinetic_prefactor(self, mass: float) -> float:
         """hbar^2 / (2 m) in (energy unit) * (length unit)^2, for a mass in the system's mass unit."""
-        mass = float(mass)
-        if not np.isfinite(mass) or mass <= 0.0:
-            raise InputError(f"mass must be a positive number, got {mass!r}")
+        mass = _positive(mass, "mass")
         value_si = self.hbar_si**2 / (2.0 * mass * self.mass_si)
         return value_si / (self.energy_si * self.length_si**2)
 
     def cyclotron_energy(self, mass: float, b_field: float) -> float:
         """hbar |q| B / m in the energy unit (0 for a neutral particle)."""
-        mass = float(mass)
-        if mass <= 0.0:
-            raise InputError(f"mass must be a positive number, got {mass!r}")
+        mass = _positive(mass, "mass")
         return (self.hbar_si * abs(self.charge_si) * abs(b_field) * self.magnetic_si
                 / (mass * self.mass_si)) / self.energy_si
 
@@ -101,12 +97,23 @@ class UnitSystem:
 
     def oscillator_length(self, mass: float, hbar_omega: float) -> float:
         """sqrt(hbar / (m omega)) in the length unit, for hbar*omega in the energy unit."""
+        hbar_omega = _positive(hbar_omega, "hbar*omega")
         return float(np.sqrt(2.0 * self.kinetic_prefactor(mass) / hbar_omega))
 
     def describe(self) -> dict:
         return {"system": self.name, "length": self.length_unit, "energy": self.energy_unit,
                 "mass": self.mass_unit, "electric_field": self.field_unit,
                 "magnetic_field": self.magnetic_unit}
+
+
+def _positive(value, what: str) -> float:
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise InputError(f"{what} must be a positive number, got {value!r}") from None
+    if not np.isfinite(v) or v <= 0.0:
+        raise InputError(f"{what} must be a positive, finite number, got {value!r}")
+    return v
 
 
 _ATOMIC_FIELD_T = sc.hbar / (sc.e * sc.physical_constants["Bohr radius"][0] ** 2)

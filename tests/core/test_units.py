@@ -211,9 +211,6 @@ def test_oscillator_length_rejects_bad_mass(mass):
         get_units("semiconductor").oscillator_length(mass, 1.0)
 
 
-@pytest.mark.xfail(strict=True, raises=AssertionError,
-                   reason="known bug in core/units.py: cyclotron_energy checks only mass <= 0, "
-                          "so a NaN mass returns NaN and an infinite mass returns 0")
 @pytest.mark.parametrize("mass", [float("nan"), float("inf")])
 def test_cyclotron_energy_rejects_non_finite_mass(mass):
     try:
@@ -223,9 +220,6 @@ def test_cyclotron_energy_rejects_non_finite_mass(mass):
     raise AssertionError(f"cyclotron_energy accepted mass={mass!r}")
 
 
-@pytest.mark.xfail(strict=True, raises=AssertionError,
-                   reason="known bug in core/units.py: oscillator_length does not check hbar_omega; "
-                          "0 raises ZeroDivisionError, a negative value returns NaN")
 @pytest.mark.parametrize("hbar_omega", [0.0, -1.0, float("nan")])
 def test_oscillator_length_rejects_bad_energy(hbar_omega):
     try:
