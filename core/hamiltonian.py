@@ -106,13 +106,15 @@ class Hamiltonian:
 
     def __post_init__(self):
         g = self.grid
-        self._shape3 = tuple(g.shape) + (1,) * (3 - g.ndim)
+        pad = 3 - g.ndim
+        self._shape3 = (1,) * pad + tuple(g.shape)
         self._v3 = np.ascontiguousarray(self.potential.reshape(self._shape3))
         self._banded = self.scheme != "spectral"
         if self._banded:
             coeffs, tables = [], []
-            for a in range(3):
-                if a < g.ndim:
+            for a3 in range(3):
+                a = a3 - pad
+                if a >= 0:
                     cs = stencil(self.scheme, g.spacing[a]) * self.prefactors[a]
                     idx, sgn = kernels.neighbour_table(g.shape[a], len(cs) - 1, g.periodic[a])
                 else:
@@ -124,8 +126,8 @@ class Hamiltonian:
             self._tables = tables
             if self.phases is not None:
                 ones = np.ones(self._shape3, dtype=complex)
-                ph = [np.ascontiguousarray(np.broadcast_to(self.phases[a], g.shape).reshape(self._shape3))
-                      if a < g.ndim else ones for a in range(3)]
+                ph = [np.ascontiguousarray(np.broadcast_to(self.phases[a3 - pad], g.shape).reshape(self._shape3))
+                      if a3 >= pad else ones for a3 in range(3)]
                 self._phases3 = ph
         else:
             self._dense = [self.prefactors[a] * self.kinetic_1d[a] for a in range(g.ndim)]

@@ -1,7 +1,8 @@
 """Compiled kernels for banded (finite-difference) Hamiltonians on a block of vectors.
 
 The block is shaped ``(m, n0, n1, n2)``: vector index first, then the grid
-(1D and 2D grids are padded to three axes of length 1).  One call performs the
+(1D and 2D grids are padded in front with axes of length 1, so that the
+innermost, contiguous loop always runs along a real axis).  One call performs the
 fused Chebyshev step
 
     Y = alpha * (H - shift) X + beta * Z
@@ -78,11 +79,17 @@ def fd_step_real(X, V, cx, cy, cz, ix, sx, iy, sy, iz, sz, alpha, shift, beta, Z
                 gm = c * sy[ry - s, j]
                 for k in range(n2):
                     acc[k] += gp * X[b, i, jp, k] + gm * X[b, i, jm, k]
+            xl = X[b, i, j]
             for s in range(1, rz + 1):
                 c = cz[s]
-                for k in range(n2):
-                    acc[k] += c * (sz[rz + s, k] * X[b, i, j, iz[rz + s, k]]
-                                   + sz[rz - s, k] * X[b, i, j, iz[rz - s, k]])
+                lo = min(s, n2)
+                hi = max(n2 - s, lo)
+                for k in range(lo, hi):             # interior: plain contiguous access
+                    acc[k] += c * (xl[k + s] + xl[k - s])
+                for k in range(0, lo):              # near the lower end: boundary tables
+                    acc[k] += c * (sz[rz + s, k] * xl[iz[rz + s, k]] + sz[rz - s, k] * xl[iz[rz - s, k]])
+                for k in range(hi, n2):             # near the upper end
+                    acc[k] += c * (sz[rz + s, k] * xl[iz[rz + s, k]] + sz[rz - s, k] * xl[iz[rz - s, k]])
             if beta == 0.0:
                 for k in range(n2):
                     Y[b, i, j, k] = alpha * acc[k]

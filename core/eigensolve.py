@@ -1,0 +1,431 @@
+"""Lowest eigenpairs of a grid Hamiltonian, with no member of a multiplet missed.
+
+Method: Chebyshev-filtered subspace iteration (Y. Zhou, Y. Saad, M. L. Tiago,
+J. R. Chelikowsky, J. Comput. Phys. 219, 172 (2006)) on a block of k wanted
+vectors plus guard vectors, with
+
+* SVQB orthonormalisation (A. Stathopoulos, K. Wu, SIAM J. Sci. Comput. 23,
+  2165 (2002)), applied twice;
+* Rayleigh-Ritz after every filter pass and locking of converged vectors;
+* a filter degree per vector, chosen from its residual and its distance to
+  the filter's cut;
+* a first cut from a Weyl-law estimate of the m-th level;
+* a degeneracy-aware stop: the wanted set is extended while the next Ritz
+  value lies within the degeneracy tolerance of the last wanted one, and the
+  block grows when a multiplet reaches its end.
+
+A block method finds every copy of an exactly degenerate level as long as the
+block is larger than the multiplet, which a single-vector Krylov method does
+not guarantee.
+
+Vectors are stored as rows, ``(m, N)``; states are returned shaped like the
+grid, normalised so that ``sum |psi|^2 dV = 1``.
+"""
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass, field, replace
+from typing import Callable, Optional
+
+import numpy as np
+import scipy.linalg as sla
+
+from .errors import Cancelled, InputError, NotConverged
+from .grid import Grid
+from .hamiltonian import Hamiltonian
+from .resources import check_memory
+
+__all__ = ["Spectrum", "lowest_states", "group_levels", "weyl_level_estimate", "solver_memory_bytes"]
+
+ProgressFn = Optional[Callable[[str, float], None]]
+StopFn = Optional[Callable[[], bool]]
+
+
+def group_levels(energies, tolerance: float) -> tuple:
+    """Group ascending energies into multiplets: consecutive levels closer than ``tolerance`` (absolute)."""
+    groups, current = [], []
+    for i, e in enumerate(np.asarray(energies, dtype=float)):
+        if current and e - energies[current[-1]] > tolerance:
+            groups.append(tuple(current))
+            current = []
+        current.append(i)
+    if current:
+        groups.append(tuple(current))
+    return tuple(groups)
+
+
+@dataclass(frozen=True, eq=False)
+class Spectrum:
+    """Result of a solve. Energies in the energy unit, states indexed ``[level, x, y(, z)]``."""
+
+    energies: np.ndarray
+    states: np.ndarray
+    residuals: np.ndarray          # ||H psi - E psi|| for unit-norm vectors, energy unit
+    grid: Grid
+    iterations: int
+    applications: int              # number of single-vector H applications
+    wall_time: float               # seconds
+    converged: bool
+    requested: int
+    tolerance: float
+    degeneracy_tolerance: float    # absolute, energy unit
+    multiplet_cut: bool            # True if the highest returned level may belong to a cut multiplet
+    scheme: str = ""
+    method: str = "chebyshev"
+    notes: tuple = ()
+    extra: dict = field(default_factory=dict)
+    guard_states: Optional[np.ndarray] = None   # Ritz vectors beyond the returned ones, for warm starts
+
+    @property
+    def groups(self) -> tuple:
+        """Degenerate multiplets (tuples of level indices) at ``degeneracy_tolerance``."""
+        return group_levels(self.energies, self.degeneracy_tolerance)
+
+    @property
+    def count(self) -> int:
+        return int(self.energies.size)
+
+    def block(self) -> np.ndarray:
+        """All vectors of the final block (returned states then guards), for a warm start."""
+        if self.guard_states is None or len(self.guard_states) == 0:
+            return self.states
+        return np.concatenate([self.states, self.guard_states])
+
+    def with_notes(self, *notes: str, **changes) -> "Spectrum":
+        return replace(self, notes=self.notes + tuple(notes), **changes)
+
+
+def solver_memory_bytes(n_points: int, block: int, complex_: bool) -> int:
+    """Memory the Chebyshev solver allocates: four block buffers plus small matrices."""
+    item = 16 if complex_ else 8
+    return int(4 * n_points * block * item + 8 * block * block * item)
+
+
+def weyl_level_estimate(h: Hamiltonian, count: float) -> float:
+    """Energy below which a Weyl (Thomas-Fermi phase-space) estimate holds ``count`` states.
+
+    N(E) = sum_cells dV * omega_d / (2 pi)^d * prod_a sqrt((E - V) / c_a), c_a = hbar^2/2m_a.
+    """
+    g = h.grid
+    d = g.ndim
+    omega = {1: 2.0, 2: math.pi, 3: 4.0 * math.pi / 3.0}[d]
+    pref = g.volume_element * omega / (2 * math.pi) ** d / math.prod(math.sqrt(c) for c in h.prefactors)
+    v = np.sort(h.potential.ravel())
+    lo, hi = h.bounds()
+
+    def n_of(e):
+        k = v[v < e]
+        return pref * float(np.sum((e - k) ** (d / 2.0)))
+
+    a, b = lo, hi
+    if n_of(b) < count:
+        return b
+    for _ in range(100):
+        mid = 0.5 * (a + b)
+        if n_of(mid) < count:
+            a = mid
+        else:
+            b = mid
+        if b - a <= 1e-9 * max(abs(a), abs(b), 1e-300):
+            break
+    return b
+
+
+# --- linear algebra on row blocks -----------------------------------------------------------
+
+def _dot(a, b):
+    """Gram-type product G_ij = <a_i, b_j> for row blocks."""
+    return np.conj(a) @ b.T
+
+
+def _svqb(y: np.ndarray, rng, locked: Optional[np.ndarray] = None, passes: int = 2) -> np.ndarray:
+    """Orthonormalise the rows of y (in place where possible) against ``locked`` and each other.
+
+    Rank-deficient directions are replaced by random vectors. Returns the orthonormal block.
+    """
+    for _ in range(passes + 2):
+        if locked is not None and len(locked):
+            for _p in range(2):
+                c = np.conj(y @ np.conj(locked).T).conj()      # <locked_j, y_i>
+                y -= c @ locked
+        g = _dot(y, y)
+        dg = np.real(np.diag(g)).copy()
+        scale = 1.0 / np.sqrt(np.maximum(dg, 1e-300))
+        gs = scale[:, None] * g * scale[None, :]
+        w, u = np.linalg.eigh(gs)
+        eps = 1e-13 * max(w.max(), 1e-300)
+        bad = w <= eps
+        if not bad.any() and np.all(dg > 0):
+            m = scale[:, None] * u / np.sqrt(w)[None, :]
+            y = m.T @ y
+            g2 = _dot(y, y)
+            if np.abs(g2 - np.eye(len(y))).max() < 1e-12:
+                return y
+            continue
+        # replace the weakest directions by fresh random vectors and try again
+        nbad = int(bad.sum())
+        keep = y[np.argsort(dg)[nbad:]] if nbad < len(y) else y[:0]
+        fresh = _random_block(rng, nbad, y.shape[1], y.dtype)
+        y = np.concatenate([keep, fresh]) if len(keep) else fresh
+    raise NotConverged("could not orthonormalise the search block")
+
+
+def _random_block(rng, m, n, dtype):
+    x = rng.standard_normal((m, n))
+    if np.issubdtype(dtype, np.complexfloating):
+        x = x + 1j * rng.standard_normal((m, n))
+    return x.astype(dtype, copy=False)
+
+
+class _Operator:
+    """Row-block view of a Hamiltonian that counts applications."""
+
+    def __init__(self, h: Hamiltonian):
+        self.h = h
+        self.shape = h.grid.shape
+        self.applications = 0
+
+    def step(self, x, out, alpha, shift, beta, z):
+        m = x.shape[0]
+        self.applications += m
+        sh = (m,) + self.shape
+        self.h.step(x.reshape(sh), out.reshape(sh), alpha=alpha, shift=shift, beta=beta, z=z.reshape(sh))
+
+    def apply(self, x, out):
+        self.step(x, out, 1.0, 0.0, 0.0, x)
+
+
+def _dense_solve(h: Hamiltonian, k: int, t0: float, tol: float, deg_rel: float, scheme: str) -> Spectrum:
+    a = h.to_sparse().toarray()
+    w, v = np.linalg.eigh(a)
+    scale = max(abs(w[:k]).max(), w[k - 1] - w[0], 1e-300)
+    deg_abs = deg_rel * scale
+    kk = k
+    while kk < len(w) and w[kk] - w[kk - 1] <= deg_abs:
+        kk += 1
+    vec = v[:, :kk].T
+    res = np.linalg.norm(a @ vec.T - vec.T * w[:kk], axis=0)
+    states = vec.reshape((kk,) + h.grid.shape) / math.sqrt(h.grid.volume_element)
+    return Spectrum(energies=w[:kk].copy(), states=states, residuals=res, grid=h.grid, iterations=1,
+                    applications=0, wall_time=time.perf_counter() - t0, converged=True, requested=k,
+                    tolerance=tol, degeneracy_tolerance=deg_abs, multiplet_cut=False, scheme=scheme,
+                    method="dense", notes=("small problem: solved densely (numpy.linalg.eigh)",))
+
+
+def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Optional[int] = None,
+                  start: Optional[np.ndarray] = None, progress: ProgressFn = None,
+                  should_stop: StopFn = None, degeneracy_tolerance: float = 1e-6,
+                  max_iterations: int = 300, dense_limit: int = 1200, seed: int = 12345,
+                  check_memory_first: bool = True) -> Spectrum:
+    """The ``k`` lowest eigenpairs of ``h`` (more if the k-th level's multiplet continues).
+
+    Parameters
+    ----------
+    h : the Hamiltonian.
+    k : number of wanted states (>= 1).
+    tolerance : residual tolerance relative to the energy scale
+        ``max(|E_0|, |E_{k-1}|, E_{k-1} - E_0)``; a converged eigenvalue is
+        accurate to about ``tolerance**2 * scale**2 / gap`` (and never worse
+        than ``tolerance * scale``).
+    guard : extra vectors in the block (default about half of k, at least 4).
+    start : optional starting vectors (rows, grid-shaped), e.g. ``Spectrum.block()``
+        of a previous solve (warm start).
+    progress : ``progress(stage, fraction)`` callback.
+    should_stop : returns True to cancel; the solve then raises :class:`Cancelled`
+        carrying the partial result.
+    degeneracy_tolerance : levels closer than this (relative to the energy scale)
+        count as one multiplet; a multiplet is never cut at the k-th level.
+    dense_limit : problems with at most this many unknowns are solved densely.
+    """
+    t0 = time.perf_counter()
+    n = h.size
+    if not isinstance(k, (int, np.integer)) or isinstance(k, bool) or k < 1:
+        raise InputError(f"number of states must be a positive integer, got {k!r}")
+    if k > n:
+        raise InputError(f"asked for {k} states, but the grid has only {n} points")
+    tol = float(tolerance)
+    if not (0 < tol < 1):
+        raise InputError(f"tolerance must be between 0 and 1, got {tolerance!r}")
+    scheme = h.scheme
+    if n <= dense_limit or k > n // 3:
+        if n > 20000:
+            raise InputError(f"asked for {k} states of a {n}-point grid; that many states need a dense "
+                             f"solve that does not fit. Ask for fewer states (at most {n // 3}).")
+        return _dense_solve(h, k, t0, tol, degeneracy_tolerance, scheme)
+
+    rng = np.random.default_rng(seed)
+    dtype = h.dtype
+    if guard is None:
+        guard = max(4, int(math.ceil(0.5 * k)))
+    m = min(k + int(guard), n // 2)
+    if check_memory_first:
+        check_memory(solver_memory_bytes(n, m + 8, dtype == np.complex128), what="the eigensolver's block")
+    op = _Operator(h)
+    lower, upper = h.bounds()
+
+    # --- starting block ------------------------------------------------------------------
+    if start is not None:
+        st = np.asarray(start)
+        if st.shape[1:] != h.grid.shape and st.shape != h.grid.shape:
+            raise InputError(f"start vectors have shape {st.shape}, expected (m, {h.grid.shape})")
+        st = st.reshape(-1, n).astype(np.result_type(st.dtype, dtype), copy=True)
+        if np.issubdtype(st.dtype, np.complexfloating) and dtype == np.float64:
+            st = np.concatenate([st.real, st.imag])
+        st = st[np.linalg.norm(st, axis=1) > 0][:m]
+        x0 = np.concatenate([st, _random_block(rng, m - len(st), n, dtype)]) if len(st) < m else st
+        x0 = x0.astype(dtype, copy=False)
+        warm = True
+    else:
+        x0 = _random_block(rng, m, n, dtype)
+        warm = False
+
+    buf = [np.empty((m, n), dtype=dtype) for _ in range(3)]
+    blk = np.empty((m, n), dtype=dtype)
+
+    def rayleigh_ritz(q, count_locked):
+        """RR on rows q (orthonormal, orthogonal to locked); returns theta, X (in blk), residual norms."""
+        p = len(q)
+        hq = buf[2][:p] if q.base is not buf[2] else buf[1][:p]
+        op.apply(q, hq)
+        s = _dot(q, hq)
+        s = 0.5 * (s + np.conj(s.T))
+        theta, w = np.linalg.eigh(s)
+        xs = blk[count_locked:count_locked + p]
+        np.matmul(w.T, q, out=xs)
+        hx = w.T @ hq
+        hx -= theta[:, None] * xs
+        res = np.linalg.norm(hx, axis=1)
+        return theta, res
+
+    q = _svqb(x0.copy(), rng)
+    buf[0][: len(q)] = q
+    theta, res = rayleigh_ritz(buf[0][: len(q)], 0)
+    nlock = 0
+    locked_theta = np.empty(0)
+    locked_res = np.empty(0)
+    need = k
+    cut = theta[-1] if warm else min(theta[-1], max(weyl_level_estimate(h, 1.3 * m), theta[0] + 1e-12 * abs(theta[0]) + 1e-300))
+    iterations = 0
+    notes = []
+
+    def partial(converged=False, cut_flag=False):
+        all_theta = np.concatenate([locked_theta, theta])
+        all_res = np.concatenate([locked_res, res])
+        cnt = min(need, len(all_theta))
+        states = blk[:cnt].reshape((cnt,) + h.grid.shape) / math.sqrt(h.grid.volume_element)
+        guards = blk[cnt:m].reshape((m - cnt,) + h.grid.shape) / math.sqrt(h.grid.volume_element)
+        return Spectrum(energies=all_theta[:cnt].copy(), states=states.copy(), residuals=all_res[:cnt].copy(),
+                        grid=h.grid, iterations=iterations, applications=op.applications,
+                        wall_time=time.perf_counter() - t0, converged=converged, requested=k,
+                        tolerance=tol, degeneracy_tolerance=deg_abs, multiplet_cut=cut_flag, scheme=scheme,
+                        notes=tuple(notes), guard_states=guards.copy())
+
+    deg_abs = 0.0
+    while True:
+        all_theta = np.concatenate([locked_theta, theta])
+        all_res = np.concatenate([locked_res, res])
+        scale = max(abs(all_theta[:need]).max(), all_theta[need - 1] - all_theta[0], 1e-300)
+        tol_abs = tol * scale
+        deg_abs = degeneracy_tolerance * scale
+        # lock leading converged active vectors
+        nconv_active = 0
+        while nconv_active < len(theta) - 1 and res[nconv_active] <= tol_abs and nlock + nconv_active < need:
+            nconv_active += 1
+        if nconv_active:
+            locked_theta = np.concatenate([locked_theta, theta[:nconv_active]])
+            locked_res = np.concatenate([locked_res, res[:nconv_active]])
+            theta, res = theta[nconv_active:], res[nconv_active:]
+            nlock += nconv_active
+        # extend the wanted set through a multiplet that reaches the k-th level
+        if nlock >= need:
+            nxt = theta[0]
+            if nxt - locked_theta[need - 1] <= deg_abs + res[0]:
+                if nxt - locked_theta[need - 1] <= deg_abs or res[0] > tol_abs:
+                    need += 1
+            if nlock >= need:
+                break
+            if need >= m - 2:
+                grow = max(4, need // 4)
+                if m + grow > n // 2:
+                    notes.append("the block cannot grow further; the highest multiplet may be cut")
+                    return partial(converged=True, cut_flag=True)
+                m_new = m + grow
+                extra = _random_block(rng, grow, n, dtype)
+                blk = np.concatenate([blk[:m], extra])
+                buf = [np.empty((m_new, n), dtype=dtype) for _ in range(3)]
+                theta = np.concatenate([theta, np.full(grow, theta[-1])])
+                res = np.concatenate([res, np.full(grow, np.inf)])
+                m = m_new
+                notes.append(f"block enlarged to {m} vectors to complete a multiplet")
+                q = _svqb(blk[nlock:].copy(), rng, locked=blk[:nlock])
+                buf[0][: len(q)] = q
+                theta, res = rayleigh_ritz(buf[0][: len(q)], nlock)
+                continue
+        if progress is not None:
+            progress("solving", min(0.99, nlock / max(need, 1)))
+        if should_stop is not None and should_stop():
+            raise Cancelled("solve cancelled", partial=partial())
+        if iterations >= max_iterations:
+            raise NotConverged(f"the eigensolver did not converge in {max_iterations} iterations "
+                               f"({nlock} of {need} states converged)", partial=partial())
+        iterations += 1
+
+        # --- Chebyshev filter with a degree per vector -------------------------------------
+        p = m - nlock
+        a0 = min(lower, all_theta.min()) if not warm and iterations == 1 else all_theta.min()
+        cut = max(cut, a0 + 1e-12 * max(abs(a0), 1.0))
+        e = 0.5 * (upper - cut)
+        c = 0.5 * (upper + cut)
+        xt = np.abs((theta - c) / e)
+        xt = np.maximum(xt, 1.0 + 1e-12)
+        target = np.clip(res / np.maximum(tol_abs, 1e-300), 10.0, 1e6)
+        degree = np.ceil(np.arccosh(target) / np.arccosh(xt)).astype(int)
+        hardest = int(min(max(need - nlock, 1), p)) - 1
+        dmax = int(np.clip(degree[: hardest + 1].max(), 4, 120))
+        degree = np.clip(degree, 2, dmax)
+        degree[hardest:] = dmax
+        degree = np.maximum.accumulate(degree)          # non-decreasing, so active rows form a suffix
+        y0, y1, y2 = buf[0][:p], buf[1][:p], buf[2][:p]
+        y0[...] = blk[nlock:m]
+        sigma = e / (a0 - c)
+        sigma1 = sigma
+        tau = 2.0 / sigma1
+        op.step(y0, y1, sigma1 / e, c, 0.0, y0)
+        bufs = [y0, y1, y2]
+        out = blk[nlock:m]
+        done_rows = degree <= 1
+        for r in np.nonzero(done_rows)[0]:
+            out[r] = y1[r]
+        for step in range(2, dmax + 1):
+            s0 = int(np.searchsorted(degree, step))     # rows with degree >= step
+            sigma_new = 1.0 / (tau - sigma)
+            prev, cur, nxt_b = bufs[(step - 2) % 3], bufs[(step - 1) % 3], bufs[step % 3]
+            op.step(cur[s0:], nxt_b[s0:], 2.0 * sigma_new / e, c, -sigma * sigma_new, prev[s0:])
+            sigma = sigma_new
+            fin = np.nonzero(degree == step)[0]
+            if len(fin):
+                out[fin] = nxt_b[fin]
+            if should_stop is not None and step % 8 == 0 and should_stop():
+                raise Cancelled("solve cancelled", partial=None)
+        q = _svqb(out.copy(), rng, locked=blk[:nlock])
+        pq = len(q)
+        buf[0][:pq] = q
+        theta, res = rayleigh_ritz(buf[0][:pq], nlock)
+        cut = theta[-1]
+
+    result = partial(converged=True)
+    # normalise phases for readability: real states, largest component positive
+    states = result.states
+    if not np.iscomplexobj(states):
+        flat = states.reshape(len(states), -1)
+        idx = np.argmax(np.abs(flat), axis=1)
+        signs = np.sign(flat[np.arange(len(flat)), idx])
+        states *= signs.reshape((-1,) + (1,) * h.grid.ndim)
+    order = np.argsort(result.energies, kind="stable")
+    if np.any(order != np.arange(len(order))):
+        result = replace(result, energies=result.energies[order], states=result.states[order],
+                         residuals=result.residuals[order])
+    if progress is not None:
+        progress("solving", 1.0)
+    return result

@@ -1,0 +1,41 @@
+"""Memory available on this machine, and refusals of requests that will not fit."""
+from __future__ import annotations
+
+import os
+
+from .errors import MemoryLimitError
+
+__all__ = ["available_memory_bytes", "check_memory", "format_bytes"]
+
+
+def available_memory_bytes() -> int:
+    """MemAvailable from /proc/meminfo (Linux); otherwise physical memory from sysconf."""
+    try:
+        with open("/proc/meminfo", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except OSError:
+        pass
+    try:
+        return int(os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_AVPHYS_PAGES"))
+    except (ValueError, OSError, AttributeError):
+        return 1 << 62
+
+
+def format_bytes(n: float) -> str:
+    for unit in ("B", "KiB", "MiB", "GiB", "TiB"):
+        if abs(n) < 1024 or unit == "TiB":
+            return f"{n:.3g} {unit}" if unit != "B" else f"{int(n)} B"
+        n /= 1024.0
+    return f"{n:.3g} TiB"
+
+
+def check_memory(needed_bytes: int, *, what: str = "this request", fraction: float = 0.8) -> None:
+    """Raise MemoryLimitError if ``needed_bytes`` exceeds ``fraction`` of the available memory."""
+    avail = available_memory_bytes()
+    if needed_bytes > fraction * avail:
+        raise MemoryLimitError(
+            f"{what} needs about {format_bytes(needed_bytes)}, but only {format_bytes(avail)} is available. "
+            "Use a coarser grid, the spectral scheme (accurate on far fewer points for smooth potentials), "
+            "or fewer states.")
