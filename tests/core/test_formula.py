@@ -709,7 +709,7 @@ def _extend(children):
     binary = st.tuples(st.sampled_from(sorted(_BINARY)), children, children).map(
         lambda t: (f"({t[1][0]} {t[0]} {t[2][0]})", _BINARY[t[0]](t[1][1], t[2][1])))
     unary = st.tuples(st.sampled_from(sorted(_UNARY)), children).map(
-        lambda t: (f"{t[0]}({t[1][0]})", _UNARY[t[0]](t[1][1])))
+        lambda t: (f"({t[0]}({t[1][0]}))", _UNARY[t[0]](t[1][1])))  # outer parens: -(a)**b
     where = st.tuples(children, children, children).map(
         lambda t: (f"where({t[0][0]}, {t[1][0]}, {t[2][0]})",
                    np.where(np.asarray(t[0][1]) != 0, t[1][1], t[2][1])))
