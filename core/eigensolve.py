@@ -140,34 +140,28 @@ def _dot(a, b):
 
 
 def _svqb(y: np.ndarray, rng, locked: Optional[np.ndarray] = None, passes: int = 2) -> np.ndarray:
-    """Orthonormalise the rows of y (in place where possible) against ``locked`` and each other.
+    """Orthonormalise the rows of ``y`` against ``locked`` and each other (SVQB, applied until clean).
 
-    Rank-deficient directions are replaced by random vectors. Returns the orthonormal block.
+    Directions that are numerically dependent are dropped and replaced by fresh
+    random vectors, so the returned block has as many rows as ``y``.
     """
-    for _ in range(passes + 2):
+    want = len(y)
+    for _ in range(passes + 4):
         if locked is not None and len(locked):
             for _p in range(2):
-                c = np.conj(y @ np.conj(locked).T).conj()      # <locked_j, y_i>
-                y -= c @ locked
+                y -= (y @ np.conj(locked).T) @ locked
         g = _dot(y, y)
         dg = np.real(np.diag(g)).copy()
         scale = 1.0 / np.sqrt(np.maximum(dg, 1e-300))
         gs = scale[:, None] * g * scale[None, :]
         w, u = np.linalg.eigh(gs)
-        eps = 1e-13 * max(w.max(), 1e-300)
-        bad = w <= eps
-        if not bad.any() and np.all(dg > 0):
-            m = scale[:, None] * u / np.sqrt(w)[None, :]
-            y = m.T @ y
-            g2 = _dot(y, y)
-            if np.abs(g2 - np.eye(len(y))).max() < 1e-12:
-                return y
-            continue
-        # replace the weakest directions by fresh random vectors and try again
-        nbad = int(bad.sum())
-        keep = y[np.argsort(dg)[nbad:]] if nbad < len(y) else y[:0]
-        fresh = _random_block(rng, nbad, y.shape[1], y.dtype)
-        y = np.concatenate([keep, fresh]) if len(keep) else fresh
+        keep = w > 1e-13 * max(w.max(), 1e-300)
+        m = scale[:, None] * u[:, keep] / np.sqrt(w[keep])[None, :]
+        y = m.T @ y
+        if len(y) == want and np.abs(_dot(y, y) - np.eye(want)).max() < 1e-12:
+            return y
+        if len(y) < want:
+            y = np.concatenate([y, _random_block(rng, want - len(y), y.shape[1], y.dtype)])
     raise NotConverged("could not orthonormalise the search block")
 
 
@@ -345,17 +339,23 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
                     need += 1
             if nlock >= need:
                 break
-            if need >= m - 2:
-                grow = max(4, need // 4)
-                if m + grow > n // 2:
+        # grow the block when the wanted set reaches its end, or when the filter's cut sits
+        # inside the cluster of the hardest wanted level (a multiplet cut by the block)
+        hard = need - 1 - nlock
+        crowded = False
+        if 0 <= hard < len(theta) - 1:
+            spread = theta[-1] - min(all_theta.min(), theta[0])
+            crowded = (theta[-1] - theta[hard]) < 0.02 * spread
+        if need >= m - 2 or crowded:
+            grow = max(4, need // 4)
+            if m + grow > n // 2:
+                if nlock >= need or need >= m - 2:
                     notes.append("the block cannot grow further; the highest multiplet may be cut")
-                    return partial(converged=True, cut_flag=True)
+                    return partial(converged=nlock >= need, cut_flag=True)
+            else:
                 m_new = m + grow
-                extra = _random_block(rng, grow, n, dtype)
-                blk = np.concatenate([blk[:m], extra])
+                blk = np.concatenate([blk[:m], _random_block(rng, grow, n, dtype)])
                 buf = [np.empty((m_new, n), dtype=dtype) for _ in range(3)]
-                theta = np.concatenate([theta, np.full(grow, theta[-1])])
-                res = np.concatenate([res, np.full(grow, np.inf)])
                 m = m_new
                 notes.append(f"block enlarged to {m} vectors to complete a multiplet")
                 q = _svqb(blk[nlock:].copy(), rng, locked=blk[:nlock])
