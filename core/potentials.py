@@ -1,0 +1,210 @@
+"""Evaluate a project's potential on its grid (energy unit of the project).
+
+Each enabled term of ``project.potential`` contributes an array of the grid's
+shape; the potential is their sum.  Parameters come from the project, with
+optional overrides (this is how sweeps and sliders drive any value).
+"""
+from __future__ import annotations
+
+import os
+from collections import OrderedDict
+from pathlib import Path
+from typing import Mapping, Optional
+
+import numpy as np
+
+from .errors import FormulaError, InputError, ProjectError
+from .formula import nonfinite_report, parse_formula
+from .gates import Gate, gates_potential
+from .grid import Grid
+from .maps import interpolate_map, load_map_file
+from .materials import get_material
+from .project import FieldTerm, FormulaTerm, GatesTerm, MapTerm, Project
+from .units import get_units
+
+__all__ = ["resolve_parameters", "resolve_value", "evaluate_potential", "evaluate_terms", "gate_list",
+           "project_masses", "project_g_factor", "electric_field", "magnetic_field", "default_lever"]
+
+
+def resolve_parameters(project: Project, overrides: Optional[Mapping[str, float]] = None) -> dict:
+    """Project parameters with ``overrides`` applied; unknown override names are refused."""
+    params = dict(project.parameters)
+    for name, value in (overrides or {}).items():
+        if name not in params:
+            known = ", ".join(params) or "none"
+            raise InputError(f"unknown parameter {name!r}; this project's parameters are: {known}")
+        v = float(value)
+        if not np.isfinite(v):
+            raise InputError(f"parameter {name} must be finite, got {value!r}")
+        params[name] = v
+    return params
+
+
+def resolve_value(value, params: Mapping[str, float], what: str = "value") -> float:
+    """A number, or a formula of parameters evaluated with ``params``."""
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        return float(value)
+    try:
+        f = parse_formula(str(value), parameters=tuple(params), coordinates=())
+        out = float(f.evaluate(params))
+    except FormulaError as exc:
+        raise ProjectError(str(exc), path=what) from None
+    if not np.isfinite(out):
+        raise ProjectError(f"{value!r} gives {out} with the current parameters", path=what)
+    return out
+
+
+def project_masses(project: Project, params: Mapping[str, float]) -> tuple:
+    """Effective mass per axis (x, y, z) in the unit system's mass unit."""
+    m = project.material
+    if m.mass is not None:
+        if isinstance(m.mass, tuple):
+            return tuple(resolve_value(v, params, f"material.mass[{i}]") for i, v in enumerate(m.mass))
+        v = resolve_value(m.mass, params, "material.mass")
+        return (v, v, v)
+    return tuple(get_material(m.name).masses)
+
+
+def project_g_factor(project: Project, params: Mapping[str, float]) -> Optional[float]:
+    m = project.material
+    if m.g_factor is not None:
+        return resolve_value(m.g_factor, params, "material.g_factor")
+    if m.name is not None:
+        return get_material(m.name).g_factor
+    return None
+
+
+def electric_field(project: Project, params: Mapping[str, float]) -> np.ndarray:
+    f = np.zeros(3)
+    for i, v in enumerate(project.electric_field):
+        f[i] = resolve_value(v, params, f"electric_field[{i}]")
+    return f
+
+
+def magnetic_field(project: Project, params: Mapping[str, float]) -> np.ndarray:
+    return np.array([resolve_value(v, params, f"magnetic_field[{i}]")
+                     for i, v in enumerate(project.magnetic_field)])
+
+
+def default_lever(project: Project) -> float:
+    """Energy per volt of electrostatic potential for the project's particle: q * 1 V in the energy unit."""
+    u = get_units(project.units)
+    if not u.charged:
+        raise ProjectError("surface gates act on charged particles; this project's unit system is for "
+                           "neutral atoms. Give the gates term an explicit \"lever\" (energy per volt).",
+                           path="potential")
+    return u.charge_si * 1.0 / u.energy_si
+
+
+def gate_list(term: GatesTerm, params: Mapping[str, float], path: str = "potential") -> list:
+    """The gates of a term as :class:`core.gates.Gate` objects (voltages resolved)."""
+    out = []
+    for j, g in enumerate(term.gates):
+        gp = f"{path}.gates[{j}]"
+        volt = resolve_value(g.voltage, params, f"{gp}.voltage")
+        try:
+            if g.rectangle is not None:
+                rect = [resolve_value(c, params, f"{gp}.rectangle[{k}]") for k, c in enumerate(g.rectangle)]
+                out.append(Gate.from_rectangle(g.label, volt, rect))
+            else:
+                verts = [[resolve_value(c, params, f"{gp}.polygon[{k}][{a}]") for a, c in enumerate(v)]
+                         for k, v in enumerate(g.polygon)]
+                out.append(Gate(g.label, volt, np.array(verts, dtype=float)))
+        except ProjectError:
+            raise
+        except InputError as exc:
+            raise ProjectError(str(exc), path=gp) from None
+    return out
+
+
+_MAP_CACHE: "OrderedDict[tuple, np.ndarray]" = OrderedDict()
+
+
+def _map_values(term: MapTerm, base_dir: Optional[str], path: str) -> np.ndarray:
+    p = Path(term.file)
+    if not p.is_absolute():
+        p = Path(base_dir or ".") / p
+    try:
+        st = os.stat(p)
+        key = (str(p.resolve()), st.st_mtime_ns, st.st_size, term.array)
+    except OSError:
+        key = None
+    if key is not None and key in _MAP_CACHE:
+        _MAP_CACHE.move_to_end(key)
+        return _MAP_CACHE[key]
+    try:
+        values = load_map_file(p, array_name=term.array)
+    except InputError as exc:
+        raise ProjectError(str(exc), path=f"{path}.file") from None
+    if key is not None:
+        _MAP_CACHE[key] = values
+        while len(_MAP_CACHE) > 8:
+            _MAP_CACHE.popitem(last=False)
+    return values
+
+
+def evaluate_terms(project: Project, *, grid: Optional[Grid] = None,
+                   parameters: Optional[Mapping[str, float]] = None, include_disabled: bool = False) -> list:
+    """``[(index, term, array or None)]`` for every term (None for disabled ones unless asked)."""
+    grid = grid or project.grid
+    params = resolve_parameters(project, parameters)
+    env = dict(grid.coordinates())
+    env.update(params)
+    u = get_units(project.units)
+    out = []
+    for i, term in enumerate(project.potential):
+        path = f"potential[{i}]"
+        if not term.enabled and not include_disabled:
+            out.append((i, term, None))
+            continue
+        if isinstance(term, FormulaTerm):
+            try:
+                f = parse_formula(term.formula, parameters=tuple(params))
+                val = f.evaluate(env)
+            except FormulaError as exc:
+                raise ProjectError(str(exc), path=f"{path}.formula ({term.label})") from None
+            arr = np.broadcast_to(np.asarray(val, dtype=float), grid.shape).astype(float, copy=True)
+            report = nonfinite_report(arr, {k: env[k] for k in ("x", "y", "z")[: grid.ndim]})
+            if report:
+                raise ProjectError(f"the formula {report}", path=f"{path}.formula ({term.label})")
+        elif isinstance(term, GatesTerm):
+            if grid.ndim != 2:
+                raise ProjectError("surface gates need a 2D grid", path=path)
+            depth = resolve_value(term.depth, params, f"{path}.depth")
+            if depth <= 0:
+                raise ProjectError(f"depth must be positive, got {depth}", path=f"{path}.depth")
+            lever = (resolve_value(term.lever, params, f"{path}.lever") if term.lever is not None
+                     else default_lever(project))
+            x, y = grid.mesh_sparse()
+            phi = gates_potential(gate_list(term, params, path), x, y, depth=depth)
+            arr = np.broadcast_to(lever * phi, grid.shape).astype(float, copy=True)
+        elif isinstance(term, MapTerm):
+            values = _map_values(term, project.base_dir, path)
+            scale = resolve_value(term.scale, params, f"{path}.scale")
+            try:
+                arr = interpolate_map(values, lower=term.lower, upper=term.upper, grid=grid, scale=scale,
+                                      method=term.method)
+            except InputError as exc:
+                raise ProjectError(str(exc), path=f"{path} ({term.label})") from None
+        elif isinstance(term, FieldTerm):
+            f = electric_field(project, params)
+            q = u.charge if u.charged else 1.0
+            mesh = grid.mesh_sparse()
+            arr = np.zeros(grid.shape)
+            for a in range(grid.ndim):
+                arr = arr - q * f[a] * mesh[a]
+        else:  # pragma: no cover - the loader only makes the kinds above
+            raise ProjectError(f"unknown term kind {term.kind!r}", path=path)
+        out.append((i, term, arr))
+    return out
+
+
+def evaluate_potential(project: Project, *, grid: Optional[Grid] = None,
+                       parameters: Optional[Mapping[str, float]] = None) -> np.ndarray:
+    """Sum of the enabled terms on ``grid`` (default: the project's grid), energy unit."""
+    grid = grid or project.grid
+    total = np.zeros(grid.shape)
+    for _i, _t, arr in evaluate_terms(project, grid=grid, parameters=parameters):
+        if arr is not None:
+            total += arr
+    return total

@@ -1,0 +1,646 @@
+"""Projects: a study written down as plain data, saved as JSON.
+
+A project holds a title, notes, a unit system, a material, a grid, named
+parameters, an ordered list of potential terms, fields and solver settings.
+Top-level keys of the JSON file (schema version 2):
+
+``schema_version, title, notes, units, material, grid, parameters,
+parameter_ranges, potential, electric_field, magnetic_field, spin, solver``
+
+Any number inside a term, a gate voltage, a field component or the material
+may be written as a parameter name or a formula of parameters
+(``"voltage": "VP"``, ``"magnetic_field": [0, 0, "B"]``); that single
+mechanism is how sweeps and sliders drive everything.
+
+Files are data: formulas are read by :mod:`core.formula`'s whitelist parser;
+nothing from a file is executed.  Loading validates every field and names
+the bad one (``grid.points[1]: expected an integer >= 3, got "abc"``).
+Files from a newer schema are refused; older ones are migrated in memory by
+registered steps and never rewritten on load.  Saving is atomic, and
+overwriting a file written in an older schema keeps a ``.bak`` copy.
+
+Schema history:
+
+* version 1: the development draft. ``magnetic_field`` was a single number
+  (B along z, tesla) and the number of states was ``solver.levels``.
+* version 2: ``magnetic_field`` is a vector ``[Bx, By, Bz]``; ``solver.states``.
+"""
+from __future__ import annotations
+
+import copy
+import json
+import math
+import os
+import re
+import tempfile
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import Any, Callable, Optional, Union
+
+from .errors import FormulaError, InputError, ProjectError
+from .formula import RESERVED_NAMES, parse_formula
+from .grid import BOUNDARIES, Grid
+from .kinetic import SCHEMES
+from .materials import get_material, material_names
+from .units import UNIT_SYSTEMS
+
+__all__ = ["CURRENT_SCHEMA_VERSION", "Project", "MaterialSpec", "GateSpec", "FormulaTerm", "GatesTerm",
+           "MapTerm", "FieldTerm", "SolverSettings", "load_project", "save_project", "project_from_dict",
+           "project_to_dict", "project_from_json", "project_to_json", "MIGRATIONS", "TERM_KINDS",
+           "new_project"]
+
+CURRENT_SCHEMA_VERSION = 2
+MAX_FILE_BYTES = 20 * 2**20
+Value = Union[float, str]
+
+# --- migrations ---------------------------------------------------------------------------------
+
+MIGRATIONS: dict[int, Callable[[dict], dict]] = {}
+
+
+def migration(from_version: int):
+    """Register a step that turns a dict at ``from_version`` into one at ``from_version + 1``."""
+    def register(fn):
+        MIGRATIONS[from_version] = fn
+        return fn
+    return register
+
+
+@migration(1)
+def _v1_to_v2(data: dict) -> dict:
+    out = copy.deepcopy(data)
+    b = out.get("magnetic_field")
+    if isinstance(b, (int, float, str)) and not isinstance(b, bool):
+        out["magnetic_field"] = [0.0, 0.0, b]
+    solver = out.get("solver")
+    if isinstance(solver, dict) and "levels" in solver and "states" not in solver:
+        solver["states"] = solver.pop("levels")
+    out["schema_version"] = 2
+    return out
+
+
+# --- data classes ---------------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class MaterialSpec:
+    """A material from the table (``name``), or a custom mass; ``mass``/``g_factor`` override the table."""
+
+    name: Optional[str] = None
+    mass: Optional[Union[Value, tuple]] = None
+    g_factor: Optional[Value] = None
+
+
+@dataclass(frozen=True)
+class GateSpec:
+    label: str
+    voltage: Value
+    polygon: Optional[tuple] = None      # ((x, y), ...) in the length unit
+    rectangle: Optional[tuple] = None    # (x0, y0, x1, y1)
+
+
+@dataclass(frozen=True)
+class FormulaTerm:
+    label: str
+    formula: str
+    enabled: bool = True
+    kind: str = field(default="formula", init=False)
+
+
+@dataclass(frozen=True)
+class GatesTerm:
+    label: str
+    depth: Value
+    gates: tuple
+    lever: Optional[Value] = None        # energy unit per volt; None: the particle's charge (-1000 meV/V)
+    enabled: bool = True
+    kind: str = field(default="gates", init=False)
+
+
+@dataclass(frozen=True)
+class MapTerm:
+    label: str
+    file: str
+    lower: tuple
+    upper: tuple
+    scale: Value = 1.0
+    array: Optional[str] = None
+    method: str = "linear"
+    enabled: bool = True
+    kind: str = field(default="map", init=False)
+
+
+@dataclass(frozen=True)
+class FieldTerm:
+    label: str = "electric field"
+    enabled: bool = True
+    kind: str = field(default="uniform_field", init=False)
+
+
+TERM_KINDS = {"formula": FormulaTerm, "gates": GatesTerm, "map": MapTerm, "uniform_field": FieldTerm}
+
+
+@dataclass(frozen=True)
+class SolverSettings:
+    states: int = 10
+    scheme: str = "auto"
+    tolerance: float = 1e-7
+
+
+@dataclass(frozen=True)
+class Project:
+    title: str
+    units: str
+    material: MaterialSpec
+    grid: Grid
+    parameters: dict = field(default_factory=dict)
+    potential: tuple = ()
+    electric_field: tuple = ()
+    magnetic_field: tuple = (0.0, 0.0, 0.0)
+    spin: bool = False
+    solver: SolverSettings = SolverSettings()
+    notes: str = ""
+    parameter_ranges: dict = field(default_factory=dict)
+    schema_version: int = CURRENT_SCHEMA_VERSION
+    base_dir: Optional[str] = field(default=None, compare=False)
+    warnings: tuple = field(default=(), compare=False)
+    migrated_from: Optional[int] = field(default=None, compare=False)
+
+    @property
+    def ndim(self) -> int:
+        return self.grid.ndim
+
+    def with_parameters(self, **values) -> "Project":
+        params = dict(self.parameters)
+        for k, v in values.items():
+            if k not in params:
+                raise InputError(f"unknown parameter {k!r}; the project has {', '.join(params) or 'none'}")
+            params[k] = float(v)
+        return replace(self, parameters=params)
+
+
+def new_project(title: str = "New confinement", *, units: str = "semiconductor") -> Project:
+    """A small ready-to-solve template: a parabolic GaAs dot with a 3 meV level spacing."""
+    return Project(
+        title=title, units=units, material=MaterialSpec(name="GaAs"),
+        grid=Grid([-120.0, -120.0], [120.0, 120.0], [64, 64]),
+        parameters={"hw": 3.0, "l0": 19.47}, parameter_ranges={"hw": [0.5, 10.0]},
+        potential=(FormulaTerm("parabolic confinement", "0.5*hw*(x**2 + y**2)/l0**2"),),
+        electric_field=(0.0, 0.0), notes="A parabolic dot: hw is the level spacing in meV, "
+        "l0 = sqrt(hbar/(m* omega)) in nm (19.47 nm for 3 meV in GaAs).")
+
+
+# --- validation -------------------------------------------------------------------------------------
+
+class _Reader:
+    """Validates raw JSON values, naming each field by its path."""
+
+    def __init__(self, parameters: tuple = ()):
+        self.parameters = tuple(parameters)
+
+    @staticmethod
+    def fail(path: str, message: str):
+        raise ProjectError(message, path=path)
+
+    @staticmethod
+    def show(value) -> str:
+        text = json.dumps(value) if not isinstance(value, float) else repr(value)
+        return text if len(text) < 60 else text[:57] + "..."
+
+    def number(self, value, path: str, *, positive=False, allow_formula=True) -> Value:
+        if isinstance(value, bool) or value is None:
+            self.fail(path, f"expected a number{' or a formula of parameters' if allow_formula else ''}, "
+                            f"got {self.show(value)}")
+        if isinstance(value, (int, float)):
+            v = float(value)
+            if not math.isfinite(v):
+                self.fail(path, f"expected a finite number, got {value!r}")
+            if positive and v <= 0:
+                self.fail(path, f"expected a positive number, got {value!r}")
+            return v
+        if isinstance(value, str) and allow_formula:
+            try:
+                f = parse_formula(value, parameters=self.parameters, coordinates=())
+            except FormulaError as exc:
+                self.fail(path, str(exc))
+            return value if not f.is_constant else float(f.evaluate({}))
+        self.fail(path, f"expected a number{' or a formula of parameters' if allow_formula else ''}, "
+                        f"got {self.show(value)}")
+
+    def integer(self, value, path: str, *, minimum: int) -> int:
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or float(value) != int(value):
+            self.fail(path, f"expected an integer >= {minimum}, got {self.show(value)}")
+        if int(value) < minimum:
+            self.fail(path, f"expected an integer >= {minimum}, got {int(value)}")
+        return int(value)
+
+    def text(self, value, path: str, *, allow_empty=True) -> str:
+        if not isinstance(value, str):
+            self.fail(path, f"expected text, got {self.show(value)}")
+        if not allow_empty and not value.strip():
+            self.fail(path, "must not be empty")
+        return value
+
+    def boolean(self, value, path: str) -> bool:
+        if not isinstance(value, bool):
+            self.fail(path, f"expected true or false, got {self.show(value)}")
+        return value
+
+    def obj(self, value, path: str) -> dict:
+        if not isinstance(value, dict):
+            self.fail(path, f"expected an object {{...}}, got {self.show(value)}")
+        return value
+
+    def array(self, value, path: str, *, length=None, min_length=None) -> list:
+        if not isinstance(value, list):
+            self.fail(path, f"expected a list [...], got {self.show(value)}")
+        if length is not None and len(value) not in (length if isinstance(length, tuple) else (length,)):
+            want = " or ".join(str(x) for x in (length if isinstance(length, tuple) else (length,)))
+            self.fail(path, f"expected {want} values, got {len(value)}")
+        if min_length is not None and len(value) < min_length:
+            self.fail(path, f"expected at least {min_length} values, got {len(value)}")
+        return value
+
+
+def _extra_keys(data: dict, allowed, path: str, warnings: list):
+    for key in data:
+        if key not in allowed:
+            where = f"{path}.{key}" if path else key
+            warnings.append(f"{where}: unknown key, ignored (known keys: {', '.join(allowed)})")
+
+
+_TOP_KEYS = ("schema_version", "title", "notes", "units", "material", "grid", "parameters",
+             "parameter_ranges", "potential", "electric_field", "magnetic_field", "spin", "solver")
+_IDENT = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
+
+
+def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
+    """Validate a decoded JSON document and build a :class:`Project` (migrating older schemas)."""
+    r = _Reader()
+    data = r.obj(data, "project")
+    if "schema_version" not in data:
+        r.fail("schema_version", "missing; every project file states its schema_version")
+    version = r.integer(data["schema_version"], "schema_version", minimum=1)
+    if version > CURRENT_SCHEMA_VERSION:
+        r.fail("schema_version", f"this file was written by a newer Wellscape (schema {version}); this version "
+                                 f"reads schema {CURRENT_SCHEMA_VERSION} and older. Update Wellscape to open it.")
+    migrated_from = None
+    while version < CURRENT_SCHEMA_VERSION:
+        migrated_from = migrated_from or version
+        data = MIGRATIONS[version](data)
+        version = data["schema_version"]
+    warnings: list = []
+    _extra_keys(data, _TOP_KEYS, "", warnings)
+    for key in ("units", "material", "grid", "potential"):
+        if key not in data:
+            r.fail(key, "missing (required)")
+
+    title = r.text(data.get("title", "Untitled"), "title")
+    notes = r.text(data.get("notes", ""), "notes")
+    units = r.text(data["units"], "units")
+    if units not in UNIT_SYSTEMS:
+        r.fail("units", f"unknown unit system {units!r}; choose one of {', '.join(UNIT_SYSTEMS)}")
+
+    # parameters first: every later formula may use them
+    raw_params = r.obj(data.get("parameters", {}), "parameters")
+    params = {}
+    for name, value in raw_params.items():
+        path = f"parameters.{name}"
+        if not _IDENT.match(name):
+            r.fail(path, "a parameter name must start with a letter and contain only letters, digits and _")
+        if name in RESERVED_NAMES:
+            r.fail(path, f"{name!r} is reserved (a function, constant or coordinate); choose another name")
+        params[name] = r.number(value, path, allow_formula=False)
+    r = _Reader(tuple(params))
+    ranges = {}
+    for name, value in r.obj(data.get("parameter_ranges", {}), "parameter_ranges").items():
+        path = f"parameter_ranges.{name}"
+        if name not in params:
+            r.fail(path, f"no parameter called {name!r}")
+        lo, hi = (r.number(v, f"{path}[{i}]", allow_formula=False) for i, v in enumerate(r.array(value, path, length=2)))
+        if not hi > lo:
+            r.fail(path, f"the upper end ({hi}) must be above the lower end ({lo})")
+        ranges[name] = [lo, hi]
+
+    material = _read_material(r, data["material"], warnings)
+    grid = _read_grid(r, data["grid"], warnings)
+    ndim = grid.ndim
+
+    terms = []
+    for i, raw in enumerate(r.array(data["potential"], "potential")):
+        terms.append(_read_term(r, raw, f"potential[{i}]", ndim, warnings))
+
+    ef = data.get("electric_field", [0.0] * ndim)
+    ef = r.array(ef, "electric_field", length=(ndim, 3))
+    electric = tuple(r.number(v, f"electric_field[{i}]") for i, v in enumerate(ef))
+    mf = r.array(data.get("magnetic_field", [0.0, 0.0, 0.0]), "magnetic_field", length=3)
+    magnetic = tuple(r.number(v, f"magnetic_field[{i}]") for i, v in enumerate(mf))
+    spin = r.boolean(data.get("spin", False), "spin")
+
+    s = r.obj(data.get("solver", {}), "solver")
+    _extra_keys(s, ("states", "scheme", "tolerance"), "solver", warnings)
+    states = r.integer(s.get("states", 10), "solver.states", minimum=1)
+    scheme = r.text(s.get("scheme", "auto"), "solver.scheme")
+    if scheme != "auto" and scheme not in SCHEMES:
+        r.fail("solver.scheme", f"unknown scheme {scheme!r}; choose auto, {', '.join(SCHEMES)}")
+    tol = r.number(s.get("tolerance", 1e-7), "solver.tolerance", positive=True, allow_formula=False)
+    if tol >= 1e-2:
+        r.fail("solver.tolerance", f"expected a small relative tolerance (e.g. 1e-7), got {tol}")
+    if states > grid.size:
+        r.fail("solver.states", f"asked for {states} states, but the grid has only {grid.size} points")
+
+    return Project(title=title, units=units, material=material, grid=grid, parameters=params,
+                   potential=tuple(terms), electric_field=electric, magnetic_field=magnetic, spin=spin,
+                   solver=SolverSettings(states=states, scheme=scheme, tolerance=float(tol)), notes=notes,
+                   parameter_ranges=ranges, base_dir=base_dir, warnings=tuple(warnings),
+                   migrated_from=migrated_from)
+
+
+def _read_material(r: _Reader, raw, warnings) -> MaterialSpec:
+    if isinstance(raw, str):
+        try:
+            get_material(raw)
+        except InputError as exc:
+            r.fail("material", str(exc))
+        return MaterialSpec(name=raw)
+    raw = r.obj(raw, "material")
+    _extra_keys(raw, ("name", "mass", "g_factor"), "material", warnings)
+    name = raw.get("name")
+    if name is not None:
+        r.text(name, "material.name")
+        try:
+            get_material(name)
+        except InputError as exc:
+            r.fail("material.name", str(exc))
+    mass = raw.get("mass")
+    if mass is None and name is None:
+        r.fail("material", f"give a material name ({', '.join(material_names())}) or a mass")
+    if mass is not None:
+        if isinstance(mass, list):
+            r.array(mass, "material.mass", length=3)
+            mass = tuple(r.number(v, f"material.mass[{i}]", positive=True) for i, v in enumerate(mass))
+        else:
+            mass = r.number(mass, "material.mass", positive=True)
+    g = raw.get("g_factor")
+    if g is not None:
+        g = r.number(g, "material.g_factor")
+    return MaterialSpec(name=name, mass=mass, g_factor=g)
+
+
+def _read_grid(r: _Reader, raw, warnings) -> Grid:
+    raw = r.obj(raw, "grid")
+    _extra_keys(raw, ("lower", "upper", "points", "boundary"), "grid", warnings)
+    for key in ("lower", "upper", "points"):
+        if key not in raw:
+            r.fail(f"grid.{key}", "missing (required)")
+    pts = r.array(raw["points"], "grid.points", length=(1, 2, 3))
+    ndim = len(pts)
+    points = [r.integer(v, f"grid.points[{i}]", minimum=3) for i, v in enumerate(pts)]
+    lower = [r.number(v, f"grid.lower[{i}]", allow_formula=False)
+             for i, v in enumerate(r.array(raw["lower"], "grid.lower", length=ndim))]
+    upper = [r.number(v, f"grid.upper[{i}]", allow_formula=False)
+             for i, v in enumerate(r.array(raw["upper"], "grid.upper", length=ndim))]
+    for i in range(ndim):
+        if not upper[i] > lower[i]:
+            r.fail(f"grid.upper[{i}]", f"must be greater than grid.lower[{i}] ({lower[i]}), got {upper[i]}")
+    bnd = raw.get("boundary", "hard-wall")
+    if isinstance(bnd, list):
+        r.array(bnd, "grid.boundary", length=ndim)
+        for i, b in enumerate(bnd):
+            if b not in BOUNDARIES:
+                r.fail(f"grid.boundary[{i}]", f"expected \"hard-wall\" or \"periodic\", got {r.show(b)}")
+    elif bnd not in BOUNDARIES:
+        r.fail("grid.boundary", f"expected \"hard-wall\" or \"periodic\" (or one per axis), got {r.show(bnd)}")
+    return Grid(lower, upper, points, bnd)
+
+
+def _read_term(r: _Reader, raw, path: str, ndim: int, warnings):
+    raw = r.obj(raw, path)
+    kind = raw.get("kind")
+    if kind not in TERM_KINDS:
+        r.fail(f"{path}.kind", f"expected one of {', '.join(TERM_KINDS)}, got {r.show(kind)}")
+    label = r.text(raw.get("label", kind), f"{path}.label")
+    enabled = r.boolean(raw.get("enabled", True), f"{path}.enabled")
+    common = ("kind", "label", "enabled")
+    if kind == "formula":
+        _extra_keys(raw, common + ("formula",), path, warnings)
+        text = r.text(raw.get("formula", ""), f"{path}.formula", allow_empty=False)
+        try:
+            parse_formula(text, parameters=r.parameters)
+        except FormulaError as exc:
+            r.fail(f"{path}.formula", str(exc))
+        return FormulaTerm(label=label, formula=text, enabled=enabled)
+    if kind == "gates":
+        _extra_keys(raw, common + ("depth", "lever", "gates"), path, warnings)
+        if ndim != 2:
+            r.fail(path, f"surface gates need a 2D grid (the plane of the electron gas); this grid is {ndim}D")
+        if "depth" not in raw:
+            r.fail(f"{path}.depth", "missing: the depth of the electron gas below the surface")
+        depth = r.number(raw["depth"], f"{path}.depth", positive=True)
+        lever = raw.get("lever")
+        if lever is not None:
+            lever = r.number(lever, f"{path}.lever")
+        gates = []
+        for j, g in enumerate(r.array(raw.get("gates", []), f"{path}.gates")):
+            gp = f"{path}.gates[{j}]"
+            g = r.obj(g, gp)
+            _extra_keys(g, ("label", "voltage", "polygon", "rectangle"), gp, warnings)
+            glabel = r.text(g.get("label", f"gate {j + 1}"), f"{gp}.label")
+            if "voltage" not in g:
+                r.fail(f"{gp}.voltage", "missing")
+            volt = r.number(g["voltage"], f"{gp}.voltage")
+            poly = rect = None
+            if ("polygon" in g) == ("rectangle" in g):
+                r.fail(gp, "give exactly one of \"polygon\" or \"rectangle\"")
+            if "polygon" in g:
+                verts = r.array(g["polygon"], f"{gp}.polygon", min_length=3)
+                poly = tuple(tuple(r.number(c, f"{gp}.polygon[{k}][{a}]")
+                                   for a, c in enumerate(r.array(v, f"{gp}.polygon[{k}]", length=2)))
+                             for k, v in enumerate(verts))
+                if all(isinstance(c, float) for v in poly for c in v):
+                    from .gates import validate_polygon
+                    try:
+                        validate_polygon(poly, label=glabel)
+                    except InputError as exc:
+                        r.fail(f"{gp}.polygon", str(exc))
+            else:
+                rv = r.array(g["rectangle"], f"{gp}.rectangle", length=4)
+                rect = tuple(r.number(c, f"{gp}.rectangle[{k}]") for k, c in enumerate(rv))
+                if all(isinstance(c, float) for c in rect) and (rect[0] == rect[2] or rect[1] == rect[3]):
+                    r.fail(f"{gp}.rectangle", "has zero width or height; expected [x0, y0, x1, y1]")
+            gates.append(GateSpec(label=glabel, voltage=volt, polygon=poly, rectangle=rect))
+        return GatesTerm(label=label, depth=depth, gates=tuple(gates), lever=lever, enabled=enabled)
+    if kind == "map":
+        _extra_keys(raw, common + ("file", "array", "lower", "upper", "scale", "method"), path, warnings)
+        f = r.text(raw.get("file", ""), f"{path}.file", allow_empty=False)
+        arr = raw.get("array")
+        if arr is not None:
+            r.text(arr, f"{path}.array")
+        for key in ("lower", "upper"):
+            if key not in raw:
+                r.fail(f"{path}.{key}", "missing: the map's own corner, in the length unit")
+        lower = tuple(r.number(v, f"{path}.lower[{i}]", allow_formula=False)
+                      for i, v in enumerate(r.array(raw["lower"], f"{path}.lower", length=ndim)))
+        upper = tuple(r.number(v, f"{path}.upper[{i}]", allow_formula=False)
+                      for i, v in enumerate(r.array(raw["upper"], f"{path}.upper", length=ndim)))
+        scale = r.number(raw.get("scale", 1.0), f"{path}.scale")
+        method = r.text(raw.get("method", "linear"), f"{path}.method")
+        from .maps import INTERPOLATION_METHODS
+        if method not in INTERPOLATION_METHODS:
+            r.fail(f"{path}.method", f"expected one of {', '.join(INTERPOLATION_METHODS)}, got {method!r}")
+        return MapTerm(label=label, file=f, lower=lower, upper=upper, scale=scale, array=arr, method=method,
+                       enabled=enabled)
+    _extra_keys(raw, common, path, warnings)
+    return FieldTerm(label=label, enabled=enabled)
+
+
+# --- writing ---------------------------------------------------------------------------------------
+
+def _plain(v):
+    if isinstance(v, tuple):
+        return [_plain(x) for x in v]
+    return v
+
+
+def project_to_dict(project: Project) -> dict:
+    """The JSON document of ``project`` (current schema)."""
+    m = project.material
+    if m.mass is None and m.g_factor is None:
+        material: Any = m.name
+    else:
+        material = {k: _plain(v) for k, v in (("name", m.name), ("mass", m.mass), ("g_factor", m.g_factor))
+                    if v is not None}
+    terms = []
+    for t in project.potential:
+        d: dict = {"kind": t.kind, "label": t.label, "enabled": t.enabled}
+        if isinstance(t, FormulaTerm):
+            d["formula"] = t.formula
+        elif isinstance(t, GatesTerm):
+            d["depth"] = t.depth
+            if t.lever is not None:
+                d["lever"] = t.lever
+            d["gates"] = []
+            for g in t.gates:
+                gd = {"label": g.label, "voltage": g.voltage}
+                if g.polygon is not None:
+                    gd["polygon"] = _plain(g.polygon)
+                else:
+                    gd["rectangle"] = _plain(g.rectangle)
+                d["gates"].append(gd)
+        elif isinstance(t, MapTerm):
+            d.update({"file": t.file, "lower": list(t.lower), "upper": list(t.upper), "scale": t.scale,
+                      "method": t.method})
+            if t.array is not None:
+                d["array"] = t.array
+        terms.append(d)
+    out = {"schema_version": CURRENT_SCHEMA_VERSION, "title": project.title, "notes": project.notes,
+           "units": project.units, "material": material, "grid": project.grid.to_dict(),
+           "parameters": dict(project.parameters)}
+    if project.parameter_ranges:
+        out["parameter_ranges"] = {k: list(v) for k, v in project.parameter_ranges.items()}
+    out.update({"potential": terms, "electric_field": list(project.electric_field),
+                "magnetic_field": list(project.magnetic_field), "spin": project.spin,
+                "solver": {"states": project.solver.states, "scheme": project.solver.scheme,
+                           "tolerance": project.solver.tolerance}})
+    return out
+
+
+_FLAT_LIST = re.compile(r"\[\s*([^\[\]{}]*?)\s*\]", re.S)
+
+
+def _compact(text: str) -> str:
+    """Put lists of plain values on one line (``[0.0, 1.0]``), keep objects indented."""
+    def flat(m):
+        items = [x.strip() for x in m.group(1).split(",\n")] if m.group(1) else []
+        one = "[" + ", ".join(items) + "]"
+        return one if "\n" not in one else m.group(0)
+    prev = None
+    while prev != text:
+        prev, text = text, _FLAT_LIST.sub(flat, text)
+    return text
+
+
+def project_to_json(project: Project) -> str:
+    return _compact(json.dumps(project_to_dict(project), indent=2, ensure_ascii=False)) + "\n"
+
+
+def project_from_json(text: str, *, base_dir: Optional[str] = None, source: str = "project") -> Project:
+    try:
+        data = json.loads(text, parse_constant=_refuse_constant)
+    except json.JSONDecodeError as exc:
+        raise ProjectError(f"{source} is not valid JSON: {exc.msg} at line {exc.lineno}, column {exc.colno}") from None
+    except ValueError as exc:
+        raise ProjectError(f"{source}: {exc}") from None
+    except RecursionError:
+        raise ProjectError(f"{source}: the JSON is nested too deeply") from None
+    return project_from_dict(data, base_dir=base_dir)
+
+
+def _refuse_constant(name):
+    raise ValueError(f"{name} is not allowed in a project file; use a finite number")
+
+
+def load_project(path: Union[str, os.PathLike]) -> Project:
+    """Read and validate a project file. Raises ProjectError (or InputError) naming the problem."""
+    p = Path(path)
+    try:
+        size = p.stat().st_size
+    except FileNotFoundError:
+        raise ProjectError(f"no such project file: {p}") from None
+    except OSError as exc:
+        raise ProjectError(f"cannot read {p}: {exc.strerror or exc}") from None
+    if p.is_dir():
+        raise ProjectError(f"{p} is a folder, not a project file")
+    if size > MAX_FILE_BYTES:
+        raise ProjectError(f"{p} is {size / 2**20:.0f} MiB; a project file is small JSON (put arrays in map files)")
+    try:
+        raw = p.read_bytes()
+    except OSError as exc:
+        raise ProjectError(f"cannot read {p}: {exc.strerror or exc}") from None
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise ProjectError(f"{p} is not UTF-8 text (byte {exc.start}); project files are UTF-8 JSON") from None
+    return project_from_json(text, base_dir=str(p.resolve().parent), source=str(p))
+
+
+def save_project(project: Project, path: Union[str, os.PathLike]) -> Path:
+    """Write ``project`` atomically (temporary file in the same folder, then ``os.replace``).
+
+    If ``path`` holds a project in an older schema, a copy is kept as ``path + ".bak"`` first.
+    A failure leaves any existing file untouched.
+    """
+    p = Path(path)
+    text = project_to_json(project)
+    folder = p.parent if str(p.parent) else Path(".")
+    if p.exists():
+        try:
+            old = json.loads(p.read_text(encoding="utf-8-sig"))
+            old_version = old.get("schema_version") if isinstance(old, dict) else None
+        except (OSError, ValueError):
+            old_version = None
+        if isinstance(old_version, int) and old_version < CURRENT_SCHEMA_VERSION:
+            bak = p.with_name(p.name + ".bak")
+            _atomic_write(bak, p.read_bytes(), folder)
+    _atomic_write(p, text.encode("utf-8"), folder)
+    return p
+
+
+def _atomic_write(path: Path, data: bytes, folder: Path) -> None:
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+    except OSError as exc:
+        raise InputError(f"cannot write in {folder}: {exc.strerror or exc}") from None
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException as exc:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        if isinstance(exc, OSError):
+            raise InputError(f"cannot save {path}: {exc.strerror or exc}") from None
+        raise

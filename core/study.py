@@ -1,0 +1,90 @@
+"""The whole pipeline for a project: potential -> Hamiltonian -> lowest states."""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Callable, Mapping, Optional
+
+import numpy as np
+
+from .eigensolve import Spectrum, lowest_states, solver_memory_bytes
+from .grid import Grid
+from .hamiltonian import Hamiltonian, build_hamiltonian
+from .potentials import evaluate_potential, magnetic_field, project_g_factor, project_masses, resolve_parameters
+from .project import Project
+from .resources import check_memory
+from .solve import choose_scheme
+from .units import get_units
+
+__all__ = ["StudyResult", "solve_project", "project_hamiltonian"]
+
+
+@dataclass(frozen=True, eq=False)
+class StudyResult:
+    """One solve of a project: the inputs as resolved and the spectrum."""
+
+    project: Project
+    parameters: dict
+    grid: Grid
+    potential: np.ndarray          # energy unit, grid.shape
+    spectrum: Spectrum
+    masses: tuple
+    scheme: str
+    scheme_reason: str
+    magnetic_field: tuple
+    g_factor: Optional[float] = None
+    extra: dict = field(default_factory=dict)
+
+    @property
+    def energies(self) -> np.ndarray:
+        return self.spectrum.energies
+
+    @property
+    def states(self) -> np.ndarray:
+        return self.spectrum.states
+
+    @property
+    def groups(self) -> tuple:
+        return self.spectrum.groups
+
+    @property
+    def units(self):
+        return get_units(self.project.units)
+
+
+def project_hamiltonian(project: Project, *, parameters: Optional[Mapping[str, float]] = None,
+                        grid: Optional[Grid] = None, scheme: Optional[str] = None,
+                        potential: Optional[np.ndarray] = None) -> tuple:
+    """Build (Hamiltonian, potential, params, scheme, reason) for a project."""
+    grid = grid or project.grid
+    params = resolve_parameters(project, parameters)
+    v = evaluate_potential(project, grid=grid, parameters=params) if potential is None else potential
+    scheme = scheme or project.solver.scheme
+    if scheme == "auto":
+        scheme, reason = choose_scheme(grid, v)
+    else:
+        reason = "set in the project's solver settings"
+    masses = project_masses(project, params)
+    b = magnetic_field(project, params)
+    h = build_hamiltonian(grid, v, mass=masses[: grid.ndim], units=project.units, scheme=scheme,
+                          magnetic_field=b if np.any(b) else None)
+    return h, v, params, scheme, reason
+
+
+def solve_project(project: Project, *, parameters: Optional[Mapping[str, float]] = None,
+                  states: Optional[int] = None, grid: Optional[Grid] = None, scheme: Optional[str] = None,
+                  start: Optional[np.ndarray] = None, tolerance: Optional[float] = None,
+                  progress: Optional[Callable[[str, float], None]] = None,
+                  should_stop: Optional[Callable[[], bool]] = None) -> StudyResult:
+    """Solve a project (with optional parameter overrides) and return a :class:`StudyResult`."""
+    grid = grid or project.grid
+    k = int(states or project.solver.states)
+    check_memory(solver_memory_bytes(grid.size, k + max(4, k // 2) + 8, bool(np.any(project.magnetic_field))),
+                 what=f"solving {k} states on a {grid.describe()}")
+    if progress:
+        progress("potential", 0.0)
+    h, v, params, scheme, reason = project_hamiltonian(project, parameters=parameters, grid=grid, scheme=scheme)
+    spec = lowest_states(h, k, tolerance=tolerance or project.solver.tolerance, start=start,
+                         progress=progress, should_stop=should_stop)
+    return StudyResult(project=project, parameters=params, grid=grid, potential=v, spectrum=spec,
+                       masses=project_masses(project, params), scheme=scheme, scheme_reason=reason,
+                       magnetic_field=tuple(h.magnetic_field), g_factor=project_g_factor(project, params))
