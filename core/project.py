@@ -227,7 +227,8 @@ class _Reader:
                         f"got {self.show(value)}")
 
     def integer(self, value, path: str, *, minimum: int) -> int:
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or float(value) != int(value):
+        if (isinstance(value, bool) or not isinstance(value, (int, float))
+                or not math.isfinite(float(value)) or float(value) != int(value)):
             self.fail(path, f"expected an integer >= {minimum}, got {self.show(value)}")
         if int(value) < minimum:
             self.fail(path, f"expected an integer >= {minimum}, got {int(value)}")
@@ -544,23 +545,27 @@ def project_to_dict(project: Project) -> dict:
     return out
 
 
-_FLAT_LIST = re.compile(r"\[\s*([^\[\]{}]*?)\s*\]", re.S)
-
-
-def _compact(text: str) -> str:
-    """Put lists of plain values on one line (``[0.0, 1.0]``), keep objects indented."""
-    def flat(m):
-        items = [x.strip() for x in m.group(1).split(",\n")] if m.group(1) else []
-        one = "[" + ", ".join(items) + "]"
-        return one if "\n" not in one else m.group(0)
-    prev = None
-    while prev != text:
-        prev, text = text, _FLAT_LIST.sub(flat, text)
-    return text
+def _dump(value, indent: int = 0) -> str:
+    """JSON with objects indented and lists of plain values kept on one line."""
+    pad = "  " * indent
+    if isinstance(value, dict):
+        if not value:
+            return "{}"
+        items = [f'{pad}  {json.dumps(k, ensure_ascii=False)}: {_dump(v, indent + 1)}' for k, v in value.items()]
+        return "{\n" + ",\n".join(items) + "\n" + pad + "}"
+    if isinstance(value, (list, tuple)):
+        if all(not isinstance(v, (dict, list, tuple)) for v in value):
+            return "[" + ", ".join(json.dumps(v, ensure_ascii=False) for v in value) + "]"
+        if all(isinstance(v, (list, tuple)) and all(not isinstance(w, (dict, list, tuple)) for w in v)
+               for v in value) and len(value) <= 12:
+            return "[" + ", ".join(_dump(v) for v in value) + "]"
+        items = [f"{pad}  {_dump(v, indent + 1)}" for v in value]
+        return "[\n" + ",\n".join(items) + "\n" + pad + "]"
+    return json.dumps(value, ensure_ascii=False)
 
 
 def project_to_json(project: Project) -> str:
-    return _compact(json.dumps(project_to_dict(project), indent=2, ensure_ascii=False)) + "\n"
+    return _dump(project_to_dict(project)) + "\n"
 
 
 def project_from_json(text: str, *, base_dir: Optional[str] = None, source: str = "project") -> Project:
@@ -631,6 +636,13 @@ def _atomic_write(path: Path, data: bytes, folder: Path) -> None:
     except OSError as exc:
         raise InputError(f"cannot write in {folder}: {exc.strerror or exc}") from None
     try:
+        try:
+            mode = os.stat(path).st_mode & 0o7777
+        except OSError:
+            umask = os.umask(0)
+            os.umask(umask)
+            mode = 0o666 & ~umask
+        os.chmod(tmp, mode)
         with os.fdopen(fd, "wb") as fh:
             fh.write(data)
             fh.flush()

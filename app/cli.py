@@ -1,0 +1,278 @@
+"""Command line: ``wellscape solve | potential | check | sweep | open``.
+
+The command line runs the same pipeline as the desktop window, headless. It
+imports Qt only when it opens a window (``wellscape`` with no arguments, or
+``wellscape open FILE``).  User errors print one clear line on stderr and exit
+with status 2; no traceback.
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+import time
+from pathlib import Path
+from typing import Optional, Sequence
+
+import numpy as np
+
+SAMPLES = Path(__file__).resolve().parent.parent / "sample_projects"
+DEFAULT_SAMPLE = "gaas_single_dot.json"
+
+EXIT_USER_ERROR = 2
+
+
+class _Progress:
+    """A one-line progress bar on a terminal; silent when stderr is not a terminal."""
+
+    def __init__(self, label: str, enabled: Optional[bool] = None):
+        self.label = label
+        self.enabled = sys.stderr.isatty() if enabled is None else enabled
+        self.t0 = time.perf_counter()
+        self.last = -1.0
+
+    def __call__(self, stage: str, fraction: float) -> None:
+        if not self.enabled:
+            return
+        now = time.perf_counter()
+        if fraction < 1.0 and now - self.last < 0.1:
+            return
+        self.last = now
+        width = 28
+        filled = int(round(width * max(0.0, min(1.0, fraction))))
+        sys.stderr.write(f"\r{self.label}: {stage:<10} [{'#' * filled}{'.' * (width - filled)}] "
+                         f"{100 * fraction:5.1f}%  {now - self.t0:6.1f} s")
+        sys.stderr.flush()
+
+    def done(self) -> None:
+        if self.enabled:
+            sys.stderr.write("\n")
+            sys.stderr.flush()
+
+
+def _parse_sets(items: Sequence[str]) -> dict:
+    out = {}
+    for item in items or ():
+        if "=" not in item:
+            raise _UsageError(f"--set expects NAME=VALUE, got {item!r}")
+        name, value = item.split("=", 1)
+        try:
+            out[name.strip()] = float(value)
+        except ValueError:
+            raise _UsageError(f"--set {name}: {value!r} is not a number") from None
+    return out
+
+
+class _UsageError(Exception):
+    pass
+
+
+def _load(path: str):
+    from core.project import load_project
+    project = load_project(path)
+    for w in project.warnings:
+        print(f"wellscape: warning: {w}", file=sys.stderr)
+    if project.migrated_from:
+        print(f"wellscape: note: {path} uses schema {project.migrated_from}; read it in the current schema "
+              f"(the file is unchanged)", file=sys.stderr)
+    return project
+
+
+def _jsonable(obj):
+    if isinstance(obj, dict):
+        return {k: _jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_jsonable(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return _jsonable(obj.tolist())
+    if isinstance(obj, (np.floating,)):
+        return float(obj)
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    return obj
+
+
+# --- commands ----------------------------------------------------------------------------------
+
+def cmd_solve(args) -> int:
+    from core.project import project_to_dict
+    from core.report import format_level_table, level_rows, levels_csv
+    from core.study import solve_project
+    from core import __version__
+
+    project = _load(args.project)
+    bar = _Progress("solving", enabled=None if not args.json else False)
+    result = solve_project(project, parameters=_parse_sets(args.set), states=args.states, progress=bar)
+    bar.done()
+    spec = result.spectrum
+    u = result.units
+    if args.out:
+        out = Path(args.out)
+        out.mkdir(parents=True, exist_ok=True)
+        (out / "levels.csv").write_text(levels_csv(result), encoding="utf-8")
+        np.savez_compressed(out / "states.npz", energies=spec.energies, states=spec.states,
+                            **{f"axis_{a}": ax for a, ax in zip("xyz", result.grid.axes)},
+                            energy_unit=u.energy_unit, length_unit=u.length_unit,
+                            project=json.dumps(project_to_dict(project)), wellscape_version=__version__)
+    if args.json:
+        doc = {"energies": spec.energies.tolist(), "groups": [list(g) for g in spec.groups],
+               "units": u.describe(), "levels": level_rows(result),
+               "project": project_to_dict(project), "parameters": result.parameters,
+               "solver": {"scheme": result.scheme, "scheme_reason": result.scheme_reason,
+                          "tolerance": spec.tolerance, "degeneracy_tolerance": spec.degeneracy_tolerance,
+                          "residuals": spec.residuals.tolist(), "iterations": spec.iterations,
+                          "applications": spec.applications, "wall_time_s": spec.wall_time,
+                          "converged": spec.converged, "multiplet_cut": spec.multiplet_cut,
+                          "method": spec.method, "notes": list(spec.notes)},
+               "wellscape_version": __version__}
+        print(json.dumps(_jsonable(doc), indent=1))
+        return 0
+    print(f"{project.title}")
+    print(f"{result.grid.describe()}; scheme {result.scheme} ({result.scheme_reason})")
+    print(f"{spec.energies.size} states in {spec.wall_time:.2f} s, {spec.iterations} iterations, "
+          f"largest residual {spec.residuals.max():.2g} {u.energy_unit}; multiplets at "
+          f"{spec.degeneracy_tolerance:.2g} {u.energy_unit}")
+    print()
+    print(format_level_table(result))
+    for note in spec.notes:
+        print(f"note: {note}")
+    if spec.multiplet_cut:
+        print("note: the highest multiplet may be cut; ask for more states to see all of it")
+    if args.out:
+        print(f"\nwrote {Path(args.out) / 'levels.csv'} and {Path(args.out) / 'states.npz'}")
+    return 0
+
+
+def cmd_potential(args) -> int:
+    from core.potentials import evaluate_potential
+    from core.units import get_units
+
+    project = _load(args.project)
+    v = evaluate_potential(project, parameters=_parse_sets(args.set))
+    u = get_units(project.units)
+    out = Path(args.output)
+    axes = project.grid.axes
+    suffix = out.suffix.lower()
+    if suffix == ".npy":
+        np.save(out, v, allow_pickle=False)
+        for a, ax in zip("xyz", axes):
+            np.save(out.with_name(f"{out.stem}_axis_{a}.npy"), ax, allow_pickle=False)
+    elif suffix == ".npz":
+        np.savez(out, potential=v, **{f"axis_{a}": ax for a, ax in zip("xyz", axes)})
+    elif suffix in (".csv", ".txt"):
+        if project.grid.ndim == 1:
+            table = np.column_stack([axes[0], v])
+            header = f"x [{u.length_unit}], V [{u.energy_unit}]"
+        elif project.grid.ndim == 2:
+            table = np.column_stack([axes[0], v])
+            header = (f"first column: x [{u.length_unit}]; other columns: V [{u.energy_unit}] at "
+                      f"y [{u.length_unit}] = " + " ".join(f"{y:.6g}" for y in axes[1]))
+        else:
+            raise _UsageError("a 3D potential cannot be written as CSV; use .npy or .npz")
+        np.savetxt(out, table, delimiter=",", header=header, fmt="%.10g")
+    else:
+        raise _UsageError(f"unknown output type {out.suffix!r}; use .npy, .npz or .csv")
+    print(f"wrote {out}: potential on a {project.grid.describe()}, range {v.min():.6g} .. {v.max():.6g} "
+          f"{u.energy_unit}")
+    return 0
+
+
+def cmd_check(args) -> int:
+    from core.eigensolve import solver_memory_bytes
+    from core.potentials import evaluate_potential
+    from core.resources import available_memory_bytes, format_bytes
+    from core.solve import choose_scheme
+    from core.units import get_units
+
+    project = _load(args.project)
+    v = evaluate_potential(project)
+    g = project.grid
+    u = get_units(project.units)
+    scheme = project.solver.scheme
+    reason = "set in the project"
+    if scheme == "auto":
+        scheme, reason = choose_scheme(g, v)
+    k = project.solver.states
+    mem = solver_memory_bytes(g.size, k + max(4, k // 2), bool(any(project.magnetic_field)))
+    print(f"{args.project}: valid (schema {project.schema_version})")
+    print(f"  title: {project.title}")
+    print(f"  grid: {g.describe()} ({u.length_unit})")
+    print(f"  potential: {len(project.potential)} terms, range {v.min():.6g} .. {v.max():.6g} {u.energy_unit}")
+    print(f"  scheme: {scheme} ({reason})")
+    print(f"  memory for {k} states: about {format_bytes(mem)} of {format_bytes(available_memory_bytes())} available")
+    if project.warnings:
+        print(f"  {len(project.warnings)} warning(s) above")
+    return 0
+
+
+def cmd_open(args) -> int:
+    try:
+        from app.main import run_gui
+    except ImportError as exc:
+        raise _UsageError(f"the desktop window is not available here ({exc}); the command line works: "
+                          f"wellscape solve PROJECT") from None
+    return run_gui(args)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(prog="wellscape", description="Bound states of quantum dots and atom traps.")
+    sub = p.add_subparsers(dest="command")
+
+    s = sub.add_parser("solve", help="solve a project and print its levels")
+    s.add_argument("project")
+    s.add_argument("--states", type=int, help="number of states (default: the project's)")
+    s.add_argument("--set", action="append", metavar="NAME=VALUE", help="override a parameter (repeatable)")
+    s.add_argument("--json", action="store_true", help="print machine-readable JSON")
+    s.add_argument("--out", metavar="DIR", help="write levels.csv and states.npz into DIR")
+    s.set_defaults(func=cmd_solve)
+
+    s = sub.add_parser("potential", help="write the evaluated potential on the grid")
+    s.add_argument("project")
+    s.add_argument("-o", "--output", required=True, help="FILE.npy, FILE.npz or FILE.csv (1D/2D)")
+    s.add_argument("--set", action="append", metavar="NAME=VALUE")
+    s.set_defaults(func=cmd_potential)
+
+    s = sub.add_parser("check", help="validate a project without solving")
+    s.add_argument("project")
+    s.set_defaults(func=cmd_check)
+
+    try:
+        from app.sweep_cli import add_sweep_parser
+        add_sweep_parser(sub)
+    except ImportError:
+        pass
+
+    s = sub.add_parser("open", help="open a project in the desktop window")
+    s.add_argument("project", nargs="?")
+    s.add_argument("--solve", action="store_true", help="solve once the window is open")
+    s.add_argument("--screenshot", metavar="PNG", help="save a screenshot of the window and exit")
+    s.set_defaults(func=cmd_open)
+    return p
+
+
+def main(argv: Optional[Sequence[str]] = None) -> int:
+    from core.errors import WellscapeError
+
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if args.command is None:
+        try:
+            import app.main  # noqa: F401
+        except ImportError:
+            parser.print_help()
+            return 0
+        args = parser.parse_args(["open"])
+    try:
+        return int(args.func(args) or 0)
+    except (WellscapeError, _UsageError) as exc:
+        print(f"wellscape: error: {exc}", file=sys.stderr)
+        return EXIT_USER_ERROR
+    except KeyboardInterrupt:
+        print("wellscape: interrupted", file=sys.stderr)
+        return 130
+    except BrokenPipeError:
+        return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

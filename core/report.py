@@ -1,0 +1,103 @@
+"""Level tables: degenerate multiplets with their energies and observables, as rows and text."""
+from __future__ import annotations
+
+import csv
+import io
+from typing import Optional
+
+import numpy as np
+
+from .analysis import mirror_parity, position_expectation
+from .study import StudyResult
+
+__all__ = ["level_rows", "format_level_table", "levels_csv", "multiplet_parity_label"]
+
+
+def multiplet_parity_label(parities: list, members) -> str:
+    """Parity of a multiplet per mirror axis: '+' or '-' when all members agree, '±' when the multiplet
+    holds both (its basis is then arbitrary and individual parities are not meaningful)."""
+    if not parities:
+        return ""
+    axes = [a for a in ("x", "y", "z") if a in parities[members[0]]]
+    parts = []
+    for a in axes:
+        vals = {parities[i].get(a, 0) for i in members}
+        if vals == {1}:
+            parts.append(f"{a}+")
+        elif vals == {-1}:
+            parts.append(f"{a}-")
+        else:
+            parts.append(f"{a}±")
+    return " ".join(parts)
+
+
+def level_rows(result: StudyResult, *, tolerance: Optional[float] = None) -> list:
+    """One dict per multiplet: first/last index, multiplicity, energy, spacing to the ground level,
+    mean position, parity label."""
+    spec = result.spectrum
+    grid = result.grid
+    groups = spec.groups if tolerance is None else _groups(spec.energies, tolerance)
+    pos = position_expectation(grid, spec.states)
+    try:
+        par = mirror_parity(grid, spec.states, result.potential)
+    except Exception:  # parity is a label, never a reason to fail a report
+        par = []
+    e0 = float(spec.energies[0])
+    rows = []
+    for g in groups:
+        idx = list(g)
+        e = spec.energies[idx]
+        row = {"levels": idx, "first": idx[0], "multiplicity": len(idx), "energy": float(e.mean()),
+               "spread": float(e.max() - e.min()), "above_ground": float(e.mean() - e0),
+               "position": [_clean(float(v), result.grid) for v in pos[idx].mean(axis=0)],
+               "parity": multiplet_parity_label(par, idx) if par else "",
+               "residual": float(spec.residuals[idx].max())}
+        rows.append(row)
+    return rows
+
+
+def _clean(value: float, grid) -> float:
+    """Show round-off positions (far below the grid spacing) as exactly 0."""
+    return 0.0 if abs(value) < 1e-9 * max(grid.spacing) else value
+
+
+def _groups(energies, tol):
+    from .eigensolve import group_levels
+    return group_levels(energies, tol)
+
+
+def format_level_table(result: StudyResult, *, tolerance: Optional[float] = None) -> str:
+    """Plain-text table of the multiplets (energy unit and length unit in the header)."""
+    u = result.units
+    rows = level_rows(result, tolerance=tolerance)
+    axes = "xyz"[: result.grid.ndim]
+    head = (f"{'levels':>9}  {'mult':>4}  {'E [' + u.energy_unit + ']':>14}  {'E-E0 [' + u.energy_unit + ']':>14}  "
+            + "  ".join(f"{'<' + a + '> [' + u.length_unit + ']':>11}" for a in axes) + "  parity")
+    lines = [head, "-" * len(head)]
+    for r in rows:
+        lv = r["levels"]
+        span = f"{lv[0]}" if len(lv) == 1 else f"{lv[0]}-{lv[-1]}"
+        lines.append(f"{span:>9}  {r['multiplicity']:>4}  {r['energy']:>14.6f}  {r['above_ground']:>14.6f}  "
+                     + "  ".join(f"{p:>11.3f}" for p in r["position"]) + f"  {r['parity']}")
+    return "\n".join(lines)
+
+
+def levels_csv(result: StudyResult) -> str:
+    """One row per level; units in the header."""
+    u = result.units
+    spec = result.spectrum
+    pos = position_expectation(result.grid, spec.states)
+    group_of = {}
+    for gi, g in enumerate(spec.groups):
+        for i in g:
+            group_of[i] = gi
+    buf = io.StringIO()
+    w = csv.writer(buf)
+    axes = "xyz"[: result.grid.ndim]
+    w.writerow(["level", f"energy [{u.energy_unit}]", f"above ground [{u.energy_unit}]", "multiplet",
+                "multiplicity"] + [f"<{a}> [{u.length_unit}]" for a in axes] + [f"residual [{u.energy_unit}]"])
+    for i, e in enumerate(spec.energies):
+        g = spec.groups[group_of[i]]
+        w.writerow([i, f"{e:.12g}", f"{e - spec.energies[0]:.12g}", group_of[i], len(g)]
+                   + [f"{p:.6g}" for p in pos[i]] + [f"{spec.residuals[i]:.3g}"])
+    return buf.getvalue()

@@ -1,0 +1,88 @@
+"""Headless command line: solve, potential, check; exit codes and messages."""
+from __future__ import annotations
+
+import csv
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from app.cli import main
+
+ROOT = Path(__file__).resolve().parents[2]
+SAMPLE = ROOT / "sample_projects" / "elliptical_dot.json"
+
+
+def run(capsys, *args):
+    code = main(list(args))
+    out = capsys.readouterr()
+    return code, out.out, out.err
+
+
+def test_solve_prints_grouped_table(capsys):
+    code, out, err = run(capsys, "solve", str(SAMPLE), "--states", "4")
+    assert code == 0
+    assert "E [meV]" in out and "<x> [nm]" in out and "parity" in out
+    assert "x- y+" in out          # the x-like level of the split second shell
+
+
+def test_solve_json_and_out_files(capsys, tmp_path):
+    code, out, err = run(capsys, "solve", str(SAMPLE), "--states", "3", "--json", "--out", str(tmp_path))
+    assert code == 0
+    doc = json.loads(out)
+    assert set(doc) >= {"energies", "groups", "units", "project", "solver"}
+    assert doc["units"]["energy"] == "meV" and len(doc["energies"]) >= 3
+    assert doc["project"]["schema_version"] == 2
+    rows = list(csv.reader((tmp_path / "levels.csv").open(encoding="utf-8")))
+    assert rows[0][1] == "energy [meV]" and len(rows) == len(doc["energies"]) + 1
+    with np.load(tmp_path / "states.npz", allow_pickle=False) as npz:
+        assert npz["states"].shape[0] == len(doc["energies"])
+        np.testing.assert_allclose(npz["energies"], doc["energies"])
+        assert json.loads(str(npz["project"]))["title"] == doc["project"]["title"]
+
+
+def test_set_overrides_a_parameter(capsys):
+    _, out0, _ = run(capsys, "solve", str(SAMPLE), "--states", "1", "--json")
+    _, out1, _ = run(capsys, "solve", str(SAMPLE), "--states", "1", "--json", "--set", "hw=8")
+    e0 = json.loads(out0)["energies"][0]
+    e1 = json.loads(out1)["energies"][0]
+    assert e1 == pytest.approx(2 * e0, rel=1e-4)   # levels scale with hbar*omega
+
+
+def test_potential_export_csv_and_npy(capsys, tmp_path):
+    code, out, _ = run(capsys, "potential", str(SAMPLE), "-o", str(tmp_path / "v.csv"))
+    assert code == 0
+    table = np.loadtxt(tmp_path / "v.csv", delimiter=",")
+    assert table.shape == (64, 65)
+    code, _, _ = run(capsys, "potential", str(SAMPLE), "-o", str(tmp_path / "v.npy"))
+    v = np.load(tmp_path / "v.npy", allow_pickle=False)
+    np.testing.assert_allclose(v, table[:, 1:], rtol=1e-9)
+
+
+def test_check_reports_without_solving(capsys):
+    code, out, _ = run(capsys, "check", str(SAMPLE))
+    assert code == 0 and "valid" in out and "memory" in out
+
+
+def test_user_errors_exit_nonzero_without_traceback(capsys, tmp_path):
+    bad = tmp_path / "bad.json"
+    bad.write_text('{"schema_version": 2, "units": "semiconductor", "material": "GaAs", '
+                   '"grid": {"lower": [0, 0], "upper": [1, 1], "points": [10, "abc"]}, "potential": []}')
+    code, out, err = run(capsys, "solve", str(bad))
+    assert code == 2 and "grid.points[1]" in err and "Traceback" not in err
+    code, out, err = run(capsys, "solve", str(tmp_path / "missing.json"))
+    assert code == 2 and "no such project file" in err
+    code, out, err = run(capsys, "solve", str(SAMPLE), "--set", "nope=1")
+    assert code == 2 and "unknown parameter" in err
+
+
+def test_command_line_does_not_import_qt():
+    """The console script must run headless: solving must not load PySide6 or pyqtgraph."""
+    code = ("import sys; from app.cli import main; main(['check', %r]); "
+            "bad = [m for m in sys.modules if m.startswith(('PySide6', 'pyqtgraph'))]; "
+            "sys.exit(1 if bad else 0)") % str(SAMPLE)
+    proc = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, timeout=120)
+    assert proc.returncode == 0, proc.stderr
