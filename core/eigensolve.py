@@ -38,6 +38,7 @@ from .resources import check_memory
 
 __all__ = ["Spectrum", "lowest_states", "group_levels", "weyl_level_estimate", "solver_memory_bytes"]
 
+_DEBUG = False
 ProgressFn = Optional[Callable[[str, float], None]]
 StopFn = Optional[Callable[[], bool]]
 
@@ -135,33 +136,47 @@ def weyl_level_estimate(h: Hamiltonian, count: float) -> float:
 # --- linear algebra on row blocks -----------------------------------------------------------
 
 def _dot(a, b):
-    """Gram-type product G_ij = <a_i, b_j> for row blocks."""
-    return np.conj(a) @ b.T
+    """Gram-type product G_ij = <a_i, b_j> for row blocks (no copy for real blocks)."""
+    if np.iscomplexobj(a):
+        return np.conj(a) @ b.T
+    return a @ b.T
 
 
-def _svqb(y: np.ndarray, rng, locked: Optional[np.ndarray] = None, passes: int = 2) -> np.ndarray:
-    """Orthonormalise the rows of ``y`` against ``locked`` and each other (SVQB, applied until clean).
+def _project_out(y: np.ndarray, locked: np.ndarray, chunk: int = 1 << 16) -> None:
+    """y -= (projection of y on the rows of ``locked``), in place, twice, in column chunks (no big temporaries)."""
+    for _ in range(2):
+        c = y @ np.conj(locked).T                      # <locked_j, y_i>
+        for lo in range(0, y.shape[1], chunk):
+            y[:, lo:lo + chunk] -= c @ locked[:, lo:lo + chunk]
 
-    Directions that are numerically dependent are dropped and replaced by fresh
-    random vectors, so the returned block has as many rows as ``y``.
+
+def _orthonormalize(a: np.ndarray, b: np.ndarray, rng, locked: Optional[np.ndarray] = None) -> np.ndarray:
+    """Orthonormalise the rows of ``a`` against ``locked`` and each other (SVQB, repeated until clean).
+
+    ``a`` and ``b`` are equal-shaped work arrays; the result lands in one of them, which is
+    returned. Numerically dependent directions are replaced by fresh random vectors, so the
+    block keeps its number of rows.
     """
-    want = len(y)
-    for _ in range(passes + 4):
+    want = len(a)
+    y, other = a, b
+    for _ in range(8):
         if locked is not None and len(locked):
-            for _p in range(2):
-                y -= (y @ np.conj(locked).T) @ locked
+            _project_out(y, locked)
         g = _dot(y, y)
         dg = np.real(np.diag(g)).copy()
         scale = 1.0 / np.sqrt(np.maximum(dg, 1e-300))
         gs = scale[:, None] * g * scale[None, :]
+        if np.abs(gs - np.eye(want)).max() < 1e-13:
+            y *= scale[:, None]
+            return y
         w, u = np.linalg.eigh(gs)
         keep = w > 1e-13 * max(w.max(), 1e-300)
+        r = int(keep.sum())
         m = scale[:, None] * u[:, keep] / np.sqrt(w[keep])[None, :]
-        y = m.T @ y
-        if len(y) == want and np.abs(_dot(y, y) - np.eye(want)).max() < 1e-12:
-            return y
-        if len(y) < want:
-            y = np.concatenate([y, _random_block(rng, want - len(y), y.shape[1], y.dtype)])
+        np.matmul(m.T, y, out=other[:r])
+        if r < want:
+            other[r:] = _random_block(rng, want - r, y.shape[1], y.dtype)
+        y, other = other, y
     raise NotConverged("could not orthonormalise the search block")
 
 
@@ -271,35 +286,53 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         x0 = x0.astype(dtype, copy=False)
         warm = True
     else:
-        x0 = _random_block(rng, m, n, dtype)
+        x0 = None
         warm = False
 
     buf = [np.empty((m, n), dtype=dtype) for _ in range(3)]
     blk = np.empty((m, n), dtype=dtype)
 
-    def rayleigh_ritz(q, count_locked):
-        """RR on rows q (orthonormal, orthogonal to locked); returns theta, X (in blk), residual norms."""
+    def rayleigh_ritz(q, count_locked, hq_buf, tmp_buf):
+        """RR on orthonormal rows q; Ritz vectors go to blk[count_locked:]; returns theta, residual norms."""
         p = len(q)
-        hq = buf[2][:p] if q.base is not buf[2] else buf[1][:p]
+        hq = hq_buf[:p]
         op.apply(q, hq)
         s = _dot(q, hq)
         s = 0.5 * (s + np.conj(s.T))
         theta, w = np.linalg.eigh(s)
+        tmp = tmp_buf[:p]
+        np.matmul(w.T, q, out=tmp)
         xs = blk[count_locked:count_locked + p]
-        np.matmul(w.T, q, out=xs)
-        hx = w.T @ hq
-        hx -= theta[:, None] * xs
-        res = np.linalg.norm(hx, axis=1)
+        xs[...] = tmp
+        np.matmul(w.T, hq, out=tmp)                  # H X
+        for i in range(p):
+            tmp[i] -= theta[i] * xs[i]
+        res = np.linalg.norm(tmp, axis=1)
         return theta, res
 
-    q = _svqb(x0.copy(), rng)
-    buf[0][: len(q)] = q
-    theta, res = rayleigh_ritz(buf[0][: len(q)], 0)
+    def orthonormalize_and_rr(rows, count_locked):
+        """Orthonormalise rows of blk (against the locked ones), then Rayleigh-Ritz on them."""
+        p = len(rows)
+        q = _orthonormalize(rows, buf[0][:p], rng, locked=blk[:count_locked])
+        tmp = buf[1] if np.shares_memory(q, buf[0]) else buf[0]
+        return rayleigh_ritz(q, count_locked, buf[2], tmp)
+
+    if x0 is None:
+        rng.standard_normal(out=blk.real if np.iscomplexobj(blk) else blk)
+        if np.iscomplexobj(blk):
+            blk.imag[...] = rng.standard_normal((m, n))
+    else:
+        blk[:] = x0
+        del x0
+    theta, res = orthonormalize_and_rr(blk[:m], 0)
     nlock = 0
     locked_theta = np.empty(0)
     locked_res = np.empty(0)
     need = k
-    cut = theta[-1] if warm else min(theta[-1], max(weyl_level_estimate(h, 1.3 * m), theta[0] + 1e-12 * abs(theta[0]) + 1e-300))
+    # first cut: the Ritz values of a random block say nothing about the low spectrum, so use a
+    # Weyl-law estimate of the level that holds ~1.3 m states (kept inside the spectrum's bounds)
+    cut = theta[-1] if warm else min(max(weyl_level_estimate(h, 1.3 * m), lower + 1e-9 * (upper - lower)),
+                                     theta[-1])
     iterations = 0
     notes = []
 
@@ -309,11 +342,11 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         cnt = min(need, len(all_theta))
         states = blk[:cnt].reshape((cnt,) + h.grid.shape) / math.sqrt(h.grid.volume_element)
         guards = blk[cnt:m].reshape((m - cnt,) + h.grid.shape) / math.sqrt(h.grid.volume_element)
-        return Spectrum(energies=all_theta[:cnt].copy(), states=states.copy(), residuals=all_res[:cnt].copy(),
+        return Spectrum(energies=all_theta[:cnt].copy(), states=states, residuals=all_res[:cnt].copy(),
                         grid=h.grid, iterations=iterations, applications=op.applications,
                         wall_time=time.perf_counter() - t0, converged=converged, requested=k,
                         tolerance=tol, degeneracy_tolerance=deg_abs, multiplet_cut=cut_flag, scheme=scheme,
-                        notes=tuple(notes), guard_states=guards.copy())
+                        notes=tuple(notes), guard_states=guards)
 
     deg_abs = 0.0
     while True:
@@ -322,6 +355,14 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         scale = max(abs(all_theta[:need]).max(), all_theta[need - 1] - all_theta[0], 1e-300)
         tol_abs = tol * scale
         deg_abs = degeneracy_tolerance * scale
+        # the energy scale settles as the block converges: unlock vectors locked under a looser scale
+        loose = np.nonzero(locked_res > tol_abs)[0]
+        if loose.size:
+            j = int(loose[0])
+            theta = np.concatenate([locked_theta[j:], theta])
+            res = np.concatenate([locked_res[j:], res])
+            locked_theta, locked_res = locked_theta[:j], locked_res[:j]
+            nlock = j
         # lock leading converged active vectors
         nconv_active = 0
         while nconv_active < len(theta) - 1 and res[nconv_active] <= tol_abs and nlock + nconv_active < need:
@@ -358,9 +399,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
                 buf = [np.empty((m_new, n), dtype=dtype) for _ in range(3)]
                 m = m_new
                 notes.append(f"block enlarged to {m} vectors to complete a multiplet")
-                q = _svqb(blk[nlock:].copy(), rng, locked=blk[:nlock])
-                buf[0][: len(q)] = q
-                theta, res = rayleigh_ritz(buf[0][: len(q)], nlock)
+                theta, res = orthonormalize_and_rr(blk[nlock:m], nlock)
                 continue
         if progress is not None:
             progress("solving", min(0.99, nlock / max(need, 1)))
@@ -386,6 +425,9 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         degree = np.clip(degree, 2, dmax)
         degree[hardest:] = dmax
         degree = np.maximum.accumulate(degree)          # non-decreasing, so active rows form a suffix
+        if _DEBUG:
+            print(f"it {iterations}: nlock {nlock} need {need} p {p} cut {cut:.4g} upper {upper:.4g} "
+                  f"res[:need] {np.array2string(res[:max(need - nlock, 1)], precision=1)} deg {degree.tolist()}")
         y0, y1, y2 = buf[0][:p], buf[1][:p], buf[2][:p]
         y0[...] = blk[nlock:m]
         sigma = e / (a0 - c)
@@ -408,10 +450,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
                 out[fin] = nxt_b[fin]
             if should_stop is not None and step % 8 == 0 and should_stop():
                 raise Cancelled("solve cancelled", partial=None)
-        q = _svqb(out.copy(), rng, locked=blk[:nlock])
-        pq = len(q)
-        buf[0][:pq] = q
-        theta, res = rayleigh_ritz(buf[0][:pq], nlock)
+        theta, res = orthonormalize_and_rr(out, nlock)
         cut = theta[-1]
 
     result = partial(converged=True)

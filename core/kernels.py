@@ -49,53 +49,61 @@ def neighbour_table(n: int, radius: int, periodic: bool):
     return idx, sgn
 
 
-@njit(parallel=True, cache=True, fastmath=False)
+@njit(parallel=True, cache=True, fastmath=False, error_model="numpy")
 def fd_step_real(X, V, cx, cy, cz, ix, sx, iy, sy, iz, sz, alpha, shift, beta, Z, Y):  # pragma: no cover - compiled
     m, n0, n1, n2 = X.shape
     rx = cx.shape[0] - 1
     ry = cy.shape[0] - 1
     rz = cz.shape[0] - 1
     d0 = cx[0] + cy[0] + cz[0] - shift
+    scale_only = beta == 0.0
     for t in prange(m * n0):
         b = t // n0
         i = t % n0
-        acc = np.empty(n2, dtype=X.dtype)
         for j in range(n1):
+            _row_real(X, Y, Z, V[i, j], b, i, j, n2, d0, cx, cy, cz, ix, sx, iy, sy, iz, sz,
+                      rx, ry, rz, alpha, beta, scale_only)
+
+
+@njit(inline="always", error_model="numpy")
+def _row_real(X, Y, Z, vl, b, i, j, n2, d0, cx, cy, cz, ix, sx, iy, sy, iz, sz,
+              rx, ry, rz, alpha, beta, scale_only):  # pragma: no cover - compiled
+    yl = Y[b, i, j]
+    xl = X[b, i, j]
+    for k in range(n2):
+        yl[k] = (vl[k] + d0) * xl[k]
+    for s in range(1, rx + 1):
+        gp = cx[s] * sx[rx + s, i]
+        gm = cx[s] * sx[rx - s, i]
+        xp = X[b, ix[rx + s, i], j]
+        xm = X[b, ix[rx - s, i], j]
+        for k in range(n2):
+            yl[k] += gp * xp[k] + gm * xm[k]
+    for s in range(1, ry + 1):
+        gp = cy[s] * sy[ry + s, j]
+        gm = cy[s] * sy[ry - s, j]
+        xp = X[b, i, iy[ry + s, j]]
+        xm = X[b, i, iy[ry - s, j]]
+        for k in range(n2):
+            yl[k] += gp * xp[k] + gm * xm[k]
+    for s in range(1, rz + 1):
+        c = cz[s]
+        lo = min(s, n2)
+        hi = max(n2 - s, lo)
+        for k in range(lo, hi):             # interior: plain contiguous access
+            yl[k] += c * (xl[k + s] + xl[k - s])
+        for k in range(0, lo):              # near the lower end: boundary tables
+            yl[k] += c * (sz[rz + s, k] * xl[iz[rz + s, k]] + sz[rz - s, k] * xl[iz[rz - s, k]])
+        for k in range(hi, n2):             # near the upper end
+            yl[k] += c * (sz[rz + s, k] * xl[iz[rz + s, k]] + sz[rz - s, k] * xl[iz[rz - s, k]])
+    if scale_only:
+        if alpha != 1.0:
             for k in range(n2):
-                acc[k] = (V[i, j, k] + d0) * X[b, i, j, k]
-            for s in range(1, rx + 1):
-                c = cx[s]
-                ip = ix[rx + s, i]
-                im = ix[rx - s, i]
-                gp = c * sx[rx + s, i]
-                gm = c * sx[rx - s, i]
-                for k in range(n2):
-                    acc[k] += gp * X[b, ip, j, k] + gm * X[b, im, j, k]
-            for s in range(1, ry + 1):
-                c = cy[s]
-                jp = iy[ry + s, j]
-                jm = iy[ry - s, j]
-                gp = c * sy[ry + s, j]
-                gm = c * sy[ry - s, j]
-                for k in range(n2):
-                    acc[k] += gp * X[b, i, jp, k] + gm * X[b, i, jm, k]
-            xl = X[b, i, j]
-            for s in range(1, rz + 1):
-                c = cz[s]
-                lo = min(s, n2)
-                hi = max(n2 - s, lo)
-                for k in range(lo, hi):             # interior: plain contiguous access
-                    acc[k] += c * (xl[k + s] + xl[k - s])
-                for k in range(0, lo):              # near the lower end: boundary tables
-                    acc[k] += c * (sz[rz + s, k] * xl[iz[rz + s, k]] + sz[rz - s, k] * xl[iz[rz - s, k]])
-                for k in range(hi, n2):             # near the upper end
-                    acc[k] += c * (sz[rz + s, k] * xl[iz[rz + s, k]] + sz[rz - s, k] * xl[iz[rz - s, k]])
-            if beta == 0.0:
-                for k in range(n2):
-                    Y[b, i, j, k] = alpha * acc[k]
-            else:
-                for k in range(n2):
-                    Y[b, i, j, k] = alpha * acc[k] + beta * Z[b, i, j, k]
+                yl[k] *= alpha
+    else:
+        zl = Z[b, i, j]
+        for k in range(n2):
+            yl[k] = alpha * yl[k] + beta * zl[k]
 
 
 @njit(parallel=True, cache=True, fastmath=False)
