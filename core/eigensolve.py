@@ -318,9 +318,11 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         return rayleigh_ritz(q, count_locked, buf[2], tmp)
 
     if x0 is None:
-        rng.standard_normal(out=blk.real if np.iscomplexobj(blk) else blk)
         if np.iscomplexobj(blk):
-            blk.imag[...] = rng.standard_normal((m, n))
+            for i in range(m):
+                blk[i] = _random_block(rng, 1, n, dtype)[0]
+        else:
+            rng.standard_normal(out=blk)
     else:
         blk[:] = x0
         del x0
