@@ -1,0 +1,752 @@
+"""The desktop window's model: one :class:`Session` owns the project, the latest results,
+the undo stack and the background jobs, and tells the widgets what changed through signals.
+
+Widgets never change the project themselves: every edit is a new
+:class:`core.project.Project` passed to :meth:`Session.set_project` (undoable),
+or a parameter value passed to :meth:`Session.set_parameter`.  Widgets repaint
+on the signals.  The session holds no physics: it calls :mod:`core`.
+
+Threads: solves and sweeps run in :class:`app.workers.Job` threads; every
+signal of the session is emitted on the GUI thread.
+
+Live exploration: ``set_parameter(name, value, live=True)`` (a slider being
+dragged) re-solves with a warm start from the previous result's
+``spectrum.block()``.  While a solve is running, newer requests replace older
+ones that have not started yet ("drop intermediate requests when behind"),
+so the levels follow the slider as fast as the machine allows.  A warm start
+only refines the previous subspace, so when the drag ends
+(``set_parameter(..., live=False)``) the session runs one cold solve to
+confirm the levels.
+
+Recovery: while the project has unsaved changes it is written every few
+seconds to a recovery file (in ``QStandardPaths.AppDataLocation``), listed in
+``QSettings`` under the process id.  A normal :meth:`shutdown` removes it; after
+a crash :meth:`recoverable` lists it and :meth:`restore` reads it back.
+"""
+from __future__ import annotations
+
+import dataclasses
+import math
+import os
+import time
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Optional, Sequence
+
+import numpy as np
+from PySide6.QtCore import QObject, QSettings, QStandardPaths, QTimer, Signal
+from PySide6.QtGui import QUndoCommand, QUndoStack
+
+from core.errors import InputError, ProjectError, WellscapeError
+from core.project import (MapTerm, Project, load_project, new_project as core_new_project, project_from_dict,
+                          project_to_dict, save_project)
+
+from .workers import Job, describe_error
+
+__all__ = ["Session", "RecoveryEntry", "validated", "SAMPLES_DIR", "sample_projects"]
+
+SAMPLES_DIR = Path(__file__).resolve().parent.parent / "sample_projects"
+ORGANIZATION = "Wellscape"
+APPLICATION = "Wellscape"
+MAX_RECENT = 8
+
+_MODE_RANK = {"live": 0, "settle": 1, "manual": 2}
+
+
+def sample_projects() -> list:
+    """The bundled sample projects (paths), sorted by file name."""
+    return sorted(SAMPLES_DIR.glob("*.json"))
+
+
+def validated(project: Project) -> Project:
+    """Run ``project`` through the loader's validation (the same checks as opening a file).
+
+    Returns the validated project (numbers normalised); raises
+    :class:`core.errors.ProjectError` naming the bad field.
+    """
+    checked = project_from_dict(project_to_dict(project), base_dir=project.base_dir)
+    return dataclasses.replace(checked, warnings=(), migrated_from=None)
+
+
+def _absolute_map_paths(project: Project) -> Project:
+    """The same project with every map file given as an absolute path (resolved against base_dir)."""
+    terms, changed = [], False
+    for t in project.potential:
+        if isinstance(t, MapTerm) and not Path(t.file).is_absolute():
+            t = dataclasses.replace(t, file=str((Path(project.base_dir or ".") / t.file).resolve()))
+            changed = True
+        terms.append(t)
+    return dataclasses.replace(project, potential=tuple(terms)) if changed else project
+
+
+def _rebased(project: Project, folder: Path) -> Project:
+    """The project as it must be written into ``folder``: map paths stay valid from there."""
+    folder = folder.resolve()
+    terms, changed = [], False
+    for t in project.potential:
+        if isinstance(t, MapTerm):
+            target = Path(t.file)
+            if not target.is_absolute():
+                target = (Path(project.base_dir or ".") / target).resolve()
+            try:
+                new = os.path.relpath(target, folder)
+            except ValueError:          # another drive (Windows): keep it absolute
+                new = str(target)
+            if new != t.file:
+                t = dataclasses.replace(t, file=new)
+                changed = True
+        terms.append(t)
+    out = dataclasses.replace(project, potential=tuple(terms)) if changed else project
+    return dataclasses.replace(out, base_dir=str(folder))
+
+
+def _pid_alive(pid: int) -> bool:
+    if pid <= 0:
+        return False
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    except OSError:
+        return False
+    return True
+
+
+@dataclass(frozen=True)
+class RecoveryEntry:
+    """Unsaved work left behind by a window that did not close normally."""
+
+    key: str
+    file: Path
+    original: Optional[Path]
+    saved_at: str
+    title: str
+
+
+class _ProjectCommand(QUndoCommand):
+    """Replace the project (undo puts the old one back).  Consecutive live edits of the
+    same parameter merge into one command, so a slider drag is one undo step."""
+
+    MERGE_ID = 0x5745
+
+    def __init__(self, session: "Session", old: Project, new: Project, text: str,
+                 merge_key: Optional[tuple] = None, open_chain: bool = False):
+        super().__init__(text)
+        self._session = session
+        self.old = old
+        self.new = new
+        self.merge_key = merge_key
+        self.open_chain = open_chain
+
+    def id(self) -> int:  # noqa: A003 - Qt override
+        return self.MERGE_ID if self.merge_key is not None else -1
+
+    def mergeWith(self, other) -> bool:  # noqa: N802 - Qt override
+        if not isinstance(other, _ProjectCommand) or not self.open_chain or other.merge_key != self.merge_key:
+            return False
+        self.new = other.new
+        self.open_chain = other.open_chain
+        self.setText(other.text())
+        return True
+
+    def redo(self) -> None:
+        self._session._apply(self.new)
+
+    def undo(self) -> None:
+        self._session._apply(self.old)
+
+
+class Session(QObject):
+    """Project, results, undo stack and background work of one window."""
+
+    project_changed = Signal()
+    potential_changed = Signal()
+    parameters_changed = Signal()
+    solve_started = Signal()
+    progressed = Signal(str, float)
+    solved = Signal(object)
+    failed = Signal(str)
+    cancelled = Signal()
+    selection_changed = Signal(int)
+    dirty_changed = Signal(bool)
+    path_changed = Signal(str)
+    sweep_started = Signal()
+    sweep_progressed = Signal(float)
+    sweep_finished = Signal(object)
+    sweep_failed = Signal(str)
+    # beyond the contract: small conveniences for the window
+    degeneracy_changed = Signal()
+    notice = Signal(str)              # a one-line message for the status strip (warnings, autosave trouble)
+    busy_changed = Signal(bool)       # a solve or sweep started or ended
+
+    def __init__(self, parent: Optional[QObject] = None, *, project: Optional[Project] = None,
+                 settings: Optional[QSettings] = None, recovery_dir: Optional[Path] = None,
+                 autosave_ms: int = 4000):
+        super().__init__(parent)
+        self._project: Project = project if project is not None else core_new_project()
+        self._path: Optional[Path] = None
+        self.result = None
+        self.sweep_result = None
+        self._selected = 0
+        self._degeneracy_tolerance: Optional[float] = None
+        self.undo_stack = QUndoStack(self)
+        self._force_dirty = False
+        self._dirty = False
+        self.undo_stack.cleanChanged.connect(self._update_dirty)
+        self.undo_stack.indexChanged.connect(self._update_dirty)
+
+        self._potential = None
+        self._potential_error: Optional[str] = None
+        self._potential_for: Optional[Project] = None
+
+        self._generation = 0
+        self._solve_job: Optional[Job] = None
+        self._solve_mode: Optional[str] = None
+        self._pending_mode: Optional[str] = None
+        self._sweep_job: Optional[Job] = None
+        self._finished_jobs: list = []
+        self.last_solve_seconds: Optional[float] = None
+        self._result_mode: Optional[str] = None       # how the latest result was started: live (warm) or cold
+        self.live_tolerance: Optional[float] = None   # None: the project's tolerance during drags too
+
+        self._settings = settings if settings is not None else QSettings(ORGANIZATION, APPLICATION)
+        if recovery_dir is None:
+            base = QStandardPaths.writableLocation(QStandardPaths.StandardLocation.AppDataLocation)
+            recovery_dir = Path(base or Path.home() / ".wellscape") / "recovery"
+        self._recovery_dir = Path(recovery_dir)
+        self._recovery_key = str(os.getpid())
+        self._recovery_file = self._recovery_dir / f"unsaved-{os.getpid()}.json"
+        self._autosaved: Optional[Project] = None
+        self._autosave_error_shown = False
+        self._autosave_timer = QTimer(self)
+        self._autosave_timer.setInterval(max(200, int(autosave_ms)))
+        self._autosave_timer.timeout.connect(self.autosave)
+        self._autosave_timer.start()
+        self._shut_down = False
+
+    # ------------------------------------------------------------------ properties
+    @property
+    def project(self) -> Project:
+        return self._project
+
+    @property
+    def path(self) -> Optional[Path]:
+        return self._path
+
+    @property
+    def dirty(self) -> bool:
+        return self._dirty
+
+    @property
+    def selected_state(self) -> int:
+        return self._selected
+
+    @property
+    def units(self):
+        from core.units import get_units
+        return get_units(self._project.units)
+
+    @property
+    def potential(self) -> Optional[np.ndarray]:
+        """V on ``project.grid`` (energy unit), cached; None if it cannot be evaluated
+        (then :attr:`potential_error` says why)."""
+        if self._potential_for is not self._project:
+            self._evaluate_potential()
+        return self._potential
+
+    @property
+    def potential_error(self) -> Optional[str]:
+        if self._potential_for is not self._project:
+            self._evaluate_potential()
+        return self._potential_error
+
+    def _evaluate_potential(self) -> None:
+        from core.potentials import evaluate_potential
+        project = self._project
+        try:
+            v = evaluate_potential(project)
+            self._potential, self._potential_error = v, None
+        except WellscapeError as exc:
+            self._potential, self._potential_error = None, str(exc)
+        except MemoryError:
+            self._potential, self._potential_error = None, describe_error(MemoryError())
+        self._potential_for = project
+
+    @property
+    def degeneracy_tolerance(self) -> Optional[float]:
+        """Levels closer than this (energy unit) count as degenerate; None: the solver's own."""
+        return self._degeneracy_tolerance
+
+    @degeneracy_tolerance.setter
+    def degeneracy_tolerance(self, value: Optional[float]) -> None:
+        if value is not None:
+            value = float(value)
+            if not (math.isfinite(value) and value >= 0):
+                raise InputError(f"the degeneracy tolerance must be a number >= 0, got {value!r}")
+        if value != self._degeneracy_tolerance:
+            self._degeneracy_tolerance = value
+            self.degeneracy_changed.emit()
+
+    def effective_degeneracy_tolerance(self) -> Optional[float]:
+        """The tolerance in use: the user's, else the latest solve's (None before any solve)."""
+        if self._degeneracy_tolerance is not None:
+            return self._degeneracy_tolerance
+        return None if self.result is None else float(self.result.spectrum.degeneracy_tolerance)
+
+    def groups(self) -> tuple:
+        """Degenerate multiplets of the latest result (tuples of level indices) at the tolerance in use."""
+        if self.result is None:
+            return ()
+        from core.eigensolve import group_levels
+        return group_levels(self.result.energies, self.effective_degeneracy_tolerance())
+
+    @property
+    def result_is_current(self) -> bool:
+        """True when the latest result was computed for the project as it is now."""
+        return self.result is not None and self.result.project == self._project
+
+    @property
+    def solving(self) -> bool:
+        return self._solve_job is not None
+
+    @property
+    def sweeping(self) -> bool:
+        return self._sweep_job is not None
+
+    # ------------------------------------------------------------------ project edits
+    def set_project(self, project: Project, text: str = "edit") -> None:
+        """Replace the project (one undoable step).  The new project is validated first, like a
+        file being opened; a :class:`core.errors.ProjectError` naming the field leaves everything
+        as it was."""
+        if not isinstance(project, Project):
+            raise InputError(f"set_project expects a Project, got {type(project).__name__}")
+        checked = validated(project)
+        if checked == self._project and checked.base_dir == self._project.base_dir:
+            return
+        self.undo_stack.push(_ProjectCommand(self, self._project, checked, text))
+
+    def set_parameter(self, name: str, value: float, *, live: bool = False) -> None:
+        """Set one named parameter (undoable; a drag is one step).
+
+        ``live=True`` (a slider being dragged) re-solves at once with a warm start if a result
+        exists; ``live=False`` ends a drag or sets a typed value, and re-solves from scratch
+        when a result exists, so that the levels on show always match the parameters."""
+        if name not in self._project.parameters:
+            known = ", ".join(self._project.parameters) or "none"
+            raise InputError(f"no parameter called {name!r}; this project's parameters are: {known}")
+        try:
+            v = float(value)
+        except (TypeError, ValueError):
+            raise InputError(f"{name}: expected a number, got {value!r}") from None
+        if not math.isfinite(v):
+            raise InputError(f"{name}: expected a finite number, got {value!r}")
+        new = self._project.with_parameters(**{name: v})
+        if new.parameters != self._project.parameters:
+            self.undo_stack.push(_ProjectCommand(self, self._project, new, f"set {name} = {v:.6g}",
+                                                 merge_key=("parameter", name), open_chain=live))
+        else:
+            # same value: close an open drag chain so that the next drag is its own undo step
+            top = self.undo_stack.command(self.undo_stack.index() - 1) if self.undo_stack.index() > 0 else None
+            if isinstance(top, _ProjectCommand) and not live:
+                top.open_chain = False
+        if self.result is None:
+            return
+        if live:
+            self._request_solve("live")
+        elif not (self.result_is_current and self._result_mode != "live" and self._solve_job is None
+                  and self._pending_mode is None):
+            self._request_solve("settle")
+
+    def _apply(self, project: Project) -> None:
+        """Make ``project`` current and tell the widgets (called by undo commands)."""
+        old = self._project
+        self._project = project
+        params = (old.parameters != project.parameters or old.parameter_ranges != project.parameter_ranges)
+        pot = (params or old.grid != project.grid or old.potential != project.potential
+               or old.units != project.units or old.electric_field != project.electric_field
+               or old.base_dir != project.base_dir or old.material != project.material)
+        self.project_changed.emit()
+        if params:
+            self.parameters_changed.emit()
+        if pot:
+            self.potential_changed.emit()
+
+    def _replace_all(self, project: Project, path: Optional[Path], *, dirty: bool = False) -> None:
+        """A different project (new, open, restore): no undo history, no results."""
+        self._generation += 1
+        self._cancel_jobs()
+        self._pending_mode = None
+        self.undo_stack.clear()
+        self._project = project
+        self.result = None
+        self.sweep_result = None
+        self._autosaved = None
+        self._selected = 0
+        self._force_dirty = dirty
+        old_path = self._path
+        self._path = path
+        self.project_changed.emit()
+        self.parameters_changed.emit()
+        self.potential_changed.emit()
+        self.selection_changed.emit(0)
+        if old_path != path:
+            self.path_changed.emit(str(path) if path else "")
+        self._update_dirty()
+        if not dirty:
+            self._drop_recovery_file()
+
+    def _update_dirty(self, *_args) -> None:
+        dirty = bool(self._force_dirty or not self.undo_stack.isClean())
+        if dirty != self._dirty:
+            self._dirty = dirty
+            self.dirty_changed.emit(dirty)
+
+    # ------------------------------------------------------------------ files
+    def new_project(self) -> None:
+        """Start from the template project (unsaved, no file name)."""
+        self._replace_all(core_new_project(), None)
+
+    def open(self, path) -> Project:
+        """Read a project file; on any error the current project stays as it was."""
+        p = Path(path)
+        project = load_project(p)
+        for w in project.warnings:
+            self.notice.emit(f"{p.name}: {w}")
+        if project.migrated_from:
+            self.notice.emit(f"{p.name} uses the older schema {project.migrated_from}; it was read in the current "
+                             f"one (the file is unchanged until you save)")
+        self._replace_all(dataclasses.replace(project, warnings=()), p.resolve())
+        self._add_recent(p.resolve())
+        return project
+
+    def save(self, path=None) -> Path:
+        """Write the project (atomically) to ``path`` or to its own file."""
+        target = Path(path) if path is not None else self._path
+        if target is None:
+            raise InputError("this project has no file yet; choose where to save it")
+        target = target.resolve() if target.parent.exists() else target
+        project = _rebased(self._project, target.parent)
+        save_project(project, target)
+        self._project = project            # base_dir and map paths as written (same files, same potential)
+        self._potential_for = project if self._potential_for is not None else None
+        self.undo_stack.setClean()
+        self._force_dirty = False
+        if target != self._path:
+            self._path = target
+            self.path_changed.emit(str(target))
+        self._update_dirty()
+        self._add_recent(target)
+        self._drop_recovery_file()
+        return target
+
+    def recent_files(self) -> list:
+        value = self._settings.value("recent_files", [])
+        if isinstance(value, str):
+            value = [value]
+        return [Path(v) for v in (value or []) if isinstance(v, str) and v]
+
+    def _add_recent(self, path: Path) -> None:
+        items = [str(path)] + [str(p) for p in self.recent_files() if str(p) != str(path)]
+        self._settings.setValue("recent_files", items[:MAX_RECENT])
+        self._settings.sync()
+
+    def clear_recent(self) -> None:
+        self._settings.setValue("recent_files", [])
+        self._settings.sync()
+
+    # ------------------------------------------------------------------ recovery
+    @property
+    def recovery_file(self) -> Path:
+        return self._recovery_file
+
+    def autosave(self) -> bool:
+        """Write the project to the recovery file if it has unsaved changes not yet written."""
+        if self._shut_down or not self._dirty or self._autosaved is self._project:
+            return False
+        try:
+            self._recovery_dir.mkdir(parents=True, exist_ok=True)
+            save_project(_absolute_map_paths(self._project), self._recovery_file)
+        except (WellscapeError, OSError) as exc:
+            if not self._autosave_error_shown:
+                self._autosave_error_shown = True
+                self.notice.emit(f"could not write the recovery copy ({exc}); save your work by hand")
+            return False
+        self._autosaved = self._project
+        self._settings.setValue(f"recovery/{self._recovery_key}",
+                                [str(self._recovery_file), str(self._path or ""),
+                                 time.strftime("%Y-%m-%d %H:%M:%S"), self._project.title])
+        self._settings.sync()
+        return True
+
+    def _drop_recovery_file(self) -> None:
+        self._autosaved = None
+        try:
+            self._recovery_file.unlink()
+        except FileNotFoundError:
+            pass
+        except OSError:
+            return
+        self._settings.remove(f"recovery/{self._recovery_key}")
+        self._settings.sync()
+
+    def recoverable(self) -> list:
+        """Recovery copies left by windows that did not close normally (their process is gone)."""
+        out = []
+        self._settings.beginGroup("recovery")
+        try:
+            keys = list(self._settings.childKeys())
+            values = {k: self._settings.value(k) for k in keys}
+        finally:
+            self._settings.endGroup()
+        for key, value in values.items():
+            if key == self._recovery_key:
+                continue
+            try:
+                pid = int(key)
+            except ValueError:
+                pid = -1
+            if _pid_alive(pid):
+                continue            # another window is running and owns it
+            if not isinstance(value, (list, tuple)) or len(value) < 4 or not Path(str(value[0])).is_file():
+                self._settings.remove(f"recovery/{key}")
+                continue
+            out.append(RecoveryEntry(key=key, file=Path(str(value[0])),
+                                     original=Path(str(value[1])) if value[1] else None,
+                                     saved_at=str(value[2]), title=str(value[3])))
+        self._settings.sync()
+        return out
+
+    def restore(self, entry: RecoveryEntry) -> None:
+        """Open a recovery copy as unsaved work (its original file name, if any, is kept)."""
+        project = load_project(entry.file)
+        if entry.original is not None:
+            project = dataclasses.replace(project, base_dir=str(entry.original.parent))
+        self._replace_all(dataclasses.replace(project, warnings=()), entry.original, dirty=True)
+        self.discard_recovery(entry)
+        self.notice.emit(f"restored unsaved work from {entry.saved_at}")
+
+    def discard_recovery(self, entry: RecoveryEntry) -> None:
+        try:
+            entry.file.unlink()
+        except OSError:
+            pass
+        self._settings.remove(f"recovery/{entry.key}")
+        self._settings.sync()
+
+    # ------------------------------------------------------------------ selection
+    def select_state(self, index: int) -> None:
+        i = int(index)
+        if self.result is not None:
+            i = max(0, min(i, self.result.energies.size - 1))
+        elif i < 0:
+            i = 0
+        if i != self._selected:
+            self._selected = i
+            self.selection_changed.emit(i)
+
+    # ------------------------------------------------------------------ solving
+    def solve(self) -> None:
+        """Solve the current project in the background (cold start)."""
+        self._request_solve("manual")
+
+    def cancel(self) -> None:
+        """Stop the running solve (and forget queued ones)."""
+        self._pending_mode = None
+        if self._solve_job is not None:
+            self._solve_job.cancel()
+
+    def _request_solve(self, mode: str) -> None:
+        if self._shut_down:
+            return
+        job = self._solve_job
+        if job is None:
+            self._start_solve(mode)
+            return
+        if self._pending_mode is None or _MODE_RANK[mode] >= _MODE_RANK[self._pending_mode]:
+            self._pending_mode = mode
+        # a slow cold solve of parameters that are already outdated is not worth finishing
+        if self._solve_mode != "live" and job.tag[1] != self._project:
+            job.cancel()
+
+    def _start_solve(self, mode: str) -> None:
+        from core.study import solve_project
+        project = self._project
+        start = None
+        tolerance = None
+        if mode == "live" and self.result is not None and self.result.grid == project.grid:
+            start = self.result.spectrum.block()
+            tolerance = self.live_tolerance
+        self._solve_mode = mode
+        self._pending_mode = None
+
+        def work(progress, should_stop):
+            return solve_project(project, start=start, tolerance=tolerance, progress=progress,
+                                 should_stop=should_stop)
+
+        job = Job(work, kind="solve", tag=(self._generation, project))
+        job.progressed.connect(self.progressed)
+        job.solved.connect(self._on_solved)
+        job.failed.connect(self._on_solve_failed)
+        job.cancelled.connect(self._on_solve_cancelled)
+        job.finished.connect(self._on_solve_finished)
+        self._solve_job = job
+        self._solve_t0 = time.perf_counter()
+        job.start()
+        self.solve_started.emit()
+        self.busy_changed.emit(True)
+
+    def _current_job(self) -> Optional[Job]:
+        job = self.sender()
+        return job if isinstance(job, Job) else self._solve_job
+
+    def _on_solved(self, result) -> None:
+        job = self._current_job()
+        if job is None or job.tag[0] != self._generation:
+            return
+        self.last_solve_seconds = time.perf_counter() - self._solve_t0
+        self.result = result
+        self._result_mode = self._solve_mode
+        n = int(result.energies.size)
+        if self._selected >= n:
+            self._selected = n - 1
+            self.selection_changed.emit(self._selected)
+        self.solved.emit(result)
+
+    def _on_solve_failed(self, message: str) -> None:
+        job = self._current_job()
+        if job is None or job.tag[0] != self._generation:
+            return
+        self.failed.emit(message)
+
+    def _on_solve_cancelled(self) -> None:
+        job = self._current_job()
+        if job is None or job.tag[0] != self._generation:
+            return
+        self.cancelled.emit()
+
+    def _on_solve_finished(self) -> None:
+        job = self.sender()
+        if isinstance(job, Job):
+            job.join()
+            self._retire(job)
+        if job is self._solve_job or not isinstance(job, Job):
+            self._solve_job = None
+            self._solve_mode = None
+        if self._pending_mode is not None and not self._shut_down:
+            mode = self._pending_mode
+            if mode == "live" and self.result is None:
+                mode = "settle"
+            self._start_solve(mode)
+        elif self._solve_job is None and self._sweep_job is None:
+            self.busy_changed.emit(False)
+
+    # ------------------------------------------------------------------ sweeps
+    def run_sweep(self, parameter: str, values: Sequence[float], states: Optional[int] = None, *,
+                  keep_states: Optional[bool] = None) -> bool:
+        """Sweep one parameter in the background (:func:`core.sweep.run_sweep`).
+
+        Returns False (and emits ``sweep_failed``) if the request is refused at once.
+        ``keep_states`` None: keep the states of every point when they fit in about 512 MiB."""
+        if self._shut_down:
+            return False
+        if self._sweep_job is not None:
+            self.sweep_failed.emit("a sweep is already running; cancel it or wait for it to finish")
+            return False
+        try:
+            from core import sweep as core_sweep
+        except ImportError as exc:
+            self.sweep_failed.emit(f"the sweep engine is not available in this build ({exc})")
+            return False
+        project = self._project
+        if parameter not in project.parameters:
+            self.sweep_failed.emit(f"no parameter called {parameter!r}; this project's parameters are: "
+                                   f"{', '.join(project.parameters) or 'none'}")
+            return False
+        try:
+            vals = np.asarray(values, dtype=float).ravel()
+        except (TypeError, ValueError):
+            self.sweep_failed.emit("the sweep values must be numbers")
+            return False
+        if vals.size < 2 or not np.all(np.isfinite(vals)):
+            self.sweep_failed.emit("a sweep needs at least two finite values")
+            return False
+        if keep_states is None:
+            k = int(states or project.solver.states)
+            item = 16 if any(v != 0 for v in project.magnetic_field) else 8
+            keep_states = vals.size * (k + 4) * project.grid.size * item < 512 * 2**20
+
+        def work(progress, should_stop):
+            return core_sweep.run_sweep(project, parameter, vals, states=states, keep_states=keep_states,
+                                        progress=progress, should_stop=should_stop)
+
+        job = Job(work, kind="sweep", tag=(self._generation, project))
+        job.progressed.connect(lambda _stage, f: self.sweep_progressed.emit(f))
+        job.solved.connect(self._on_sweep_done)
+        job.failed.connect(self._on_sweep_failed)
+        job.cancelled.connect(self._on_sweep_cancelled)
+        job.finished.connect(self._on_sweep_finished)
+        self._sweep_job = job
+        job.start()
+        self.sweep_started.emit()
+        self.busy_changed.emit(True)
+        return True
+
+    def cancel_sweep(self) -> None:
+        if self._sweep_job is not None:
+            self._sweep_job.cancel()
+
+    def _on_sweep_done(self, result) -> None:
+        job = self.sender()
+        if isinstance(job, Job) and job.tag[0] != self._generation:
+            return
+        self.sweep_result = result
+        self.sweep_finished.emit(result)
+
+    def _on_sweep_failed(self, message: str) -> None:
+        job = self.sender()
+        if isinstance(job, Job) and job.tag[0] != self._generation:
+            return
+        self.sweep_failed.emit(message)
+
+    def _on_sweep_cancelled(self) -> None:
+        job = self.sender()
+        if isinstance(job, Job) and job.tag[0] != self._generation:
+            return
+        self.sweep_failed.emit("sweep cancelled")
+
+    def _on_sweep_finished(self) -> None:
+        job = self.sender()
+        if isinstance(job, Job):
+            job.join()
+            self._retire(job)
+        self._sweep_job = None
+        if self._solve_job is None:
+            self.busy_changed.emit(False)
+
+    def _retire(self, job: Job) -> None:
+        """Keep a finished job alive a little longer: it must not be destroyed inside its own signal."""
+        self._finished_jobs = [j for j in self._finished_jobs[-3:] if j is not job] + [job]
+
+    # ------------------------------------------------------------------ shutdown
+    def _cancel_jobs(self) -> None:
+        self._pending_mode = None
+        for job in (self._solve_job, self._sweep_job):
+            if job is not None:
+                job.cancel()
+
+    def shutdown(self, *, keep_recovery: bool = False) -> None:
+        """Cancel and join every background job; stop autosaving and remove the recovery copy
+        (unless ``keep_recovery``).  Safe to call more than once."""
+        self._shut_down = True
+        self._generation += 1            # results still in the event queue are dropped
+        self._autosave_timer.stop()
+        self._cancel_jobs()
+        for job in (self._solve_job, self._sweep_job):
+            if job is not None:
+                job.join()
+        self._solve_job = None
+        self._sweep_job = None
+        if not keep_recovery:
+            self._drop_recovery_file()
