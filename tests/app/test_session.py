@@ -203,7 +203,7 @@ def test_open_a_bad_file_keeps_the_project(session, tmp_path):
     bad = tmp_path / "bad.json"
     bad.write_text('{"schema_version": 2, "units": "semiconductor", "grid": {"points": ["abc"]}}', encoding="utf-8")
     before = session.project
-    with pytest.raises(ProjectError, match="grid"):
+    with pytest.raises(ProjectError, match="material: missing"):
         session.open(bad)
     assert session.project is before
 
@@ -227,15 +227,16 @@ def test_autosave_and_restore_after_a_crash(session, settings, qtbot, tmp_path):
     # pretend the window that wrote it crashed: its entry now belongs to a dead process
     dead = "999999999"
     assert not _alive(int(dead))
-    value = settings.value(f"recovery/{os.getpid()}")
-    settings.remove(f"recovery/{os.getpid()}")
-    settings.setValue(f"recovery/{dead}", value)
+    value = list(settings.value(f"recovery/{os.getpid()}"))
+    crashed = tmp_path / "left-behind.json"
+    crashed.write_bytes(session.recovery_file.read_bytes())
+    settings.setValue(f"recovery/{dead}", [str(crashed)] + value[1:])
     entries = session.recoverable()
     assert [e.title for e in entries] == ["Unsaved work"]
     session.new_project()
     session.restore(entries[0])
     assert session.project.title == "Unsaved work" and session.dirty
-    assert session.recoverable() == []
+    assert session.recoverable() == [] and not crashed.exists()
 
 
 def _alive(pid):
