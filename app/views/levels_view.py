@@ -1,0 +1,424 @@
+"""The level diagram: one bar per level, degenerate multiplets side by side, with labels.
+
+Labels (multiplicity, energy, mirror parity, L_z eigenvalues, spin) come from ``core.analysis``;
+the grouping uses the session's degeneracy tolerance (adjustable here) or, when it is unset, the
+solver's own.  Clicking a bar selects that state; hovering shows its numbers.
+"""
+from __future__ import annotations
+
+from typing import Optional
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6 import QtCore, QtGui, QtWidgets
+
+from core.errors import WellscapeError
+
+from . import colormaps
+from .common import HintStack, axis_title, clean_zero, fmt, fmt_energy, make_plot, pretty_unit, set_titles
+
+__all__ = ["LevelsView", "ToleranceBox", "level_labels"]
+
+_HINT = ("No levels yet. Solve the project (or move a parameter) and the level diagram appears here: "
+         "one bar per level, degenerate levels side by side.")
+_BAR_W = 1.0
+_BAR_GAP = 0.3
+_BAR_PEN = pg.mkPen("#1d3557", width=3)
+_SEL_PEN = pg.mkPen(colormaps.ACCENT, width=6)
+_LEADER_PEN = pg.mkPen((120, 120, 120, 160), width=1)
+_INTEGER_TOL = 0.05      # L_z eigenvalues closer than this to integers are shown as quantum numbers
+
+
+class ToleranceBox(QtWidgets.QDoubleSpinBox):
+    """A spin box for small positive energies: shows 3 significant figures, steps by factors of 10."""
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        self.setDecimals(15)
+        self.setRange(1e-14, 1e6)
+        self.setKeyboardTracking(False)
+        self.setValue(1e-6)
+
+    def textFromValue(self, value: float) -> str:  # noqa: N802 - Qt override
+        return f"{value:.3g}"
+
+    def valueFromText(self, text: str) -> float:  # noqa: N802 - Qt override
+        try:
+            return float(text.replace(self.suffix(), "").strip())
+        except ValueError:
+            return self.value()
+
+    def validate(self, text: str, pos: int):
+        body = text.replace(self.suffix(), "").strip()
+        try:
+            v = float(body)
+            ok = v > 0
+        except ValueError:
+            ok = False
+        state = QtGui.QValidator.State.Acceptable if ok else QtGui.QValidator.State.Intermediate
+        return state, text, pos
+
+    def stepBy(self, steps: int) -> None:  # noqa: N802 - Qt override
+        self.setValue(self.value() * (10.0 ** steps))
+
+
+def _signed(v: float) -> str:
+    n = int(round(v))
+    return f"+{n}" if n > 0 else ("0" if n == 0 else f"−{abs(n)}")
+
+
+def level_labels(result, groups, *, tolerance_lz: float = _INTEGER_TOL) -> list:
+    """One dict per multiplet: ``members``, ``energy``, ``parity`` (text), ``lz`` (eigenvalues or None),
+    ``lz_text``, ``position`` (mean <r> per axis).  Observables that cannot be computed are left empty:
+    a label is never a reason to fail.
+
+    ``lz_text`` names the L_z eigenvalues of a multiplet only when they are all within ``tolerance_lz``
+    of integers and the multiplet has two or more members: a single real state always gives 0, which
+    says nothing about its symmetry (the hover text still shows every value)."""
+    from core.analysis import angular_momentum_z_multiplet, mirror_parity, position_expectation
+    from core.report import multiplet_parity_label
+    grid, states = result.grid, result.states
+    energies = np.asarray(result.energies)
+    try:
+        parities = mirror_parity(grid, states, result.potential)
+    except WellscapeError:
+        parities = []
+    try:
+        pos = position_expectation(grid, states)
+    except WellscapeError:
+        pos = np.full((len(energies), grid.ndim), np.nan)
+    scale = max(abs(v) for v in grid.lower + grid.upper)
+    centre = (clean_zero(pos[0, 0], scale), clean_zero(pos[0, 1], scale)) if grid.ndim >= 2 else (0.0, 0.0)
+    out = []
+    for g in groups:
+        idx = list(g)
+        lz, lz_text = None, ""
+        if grid.ndim >= 2:
+            try:
+                lz = angular_momentum_z_multiplet(grid, states, idx, centre=centre)
+            except WellscapeError:
+                lz = None
+            if lz is not None and len(idx) > 1 and np.all(np.abs(lz - np.round(lz)) < tolerance_lz):
+                lz_text = "L_z = " + ", ".join(_signed(v) for v in lz) + " ħ"
+        out.append({"members": idx, "energy": float(energies[idx].mean()),
+                    "parity": multiplet_parity_label(parities, idx) if parities else "",
+                    "lz": lz, "lz_text": lz_text, "lz_centre": centre,
+                    "position": pos[idx].mean(axis=0)})
+    return out
+
+
+class LevelsView(QtWidgets.QWidget):
+    """Level diagram of the session's last result."""
+
+    def __init__(self, session, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self.result = None
+        self.groups: tuple = ()
+        self.labels: list = []
+        self.bars: list = []               # (level index, x0, x1, energy shown)
+        self._label_items: list = []
+        self._relative = False
+
+        self.header = QtWidgets.QLabel("")
+        self.header.setWordWrap(True)
+        self.tolerance = ToleranceBox()
+        self.tolerance.setMinimumWidth(130)
+        self.tolerance.setToolTip("Two consecutive levels closer than this count as degenerate and are "
+                                  "drawn side by side")
+        self.tolerance.valueChanged.connect(self._on_tolerance_edited)
+        self.solver_tolerance = QtWidgets.QPushButton("use the solver's")
+        self.solver_tolerance.setToolTip("Group with the tolerance the eigensolver used for its multiplets")
+        self.solver_tolerance.clicked.connect(self._on_use_solver_tolerance)
+        self.relative = QtWidgets.QCheckBox("measure from the ground level")
+        self.relative.toggled.connect(self._on_relative_toggled)
+        row = QtWidgets.QHBoxLayout()
+        row.addWidget(QtWidgets.QLabel("degenerate when closer than"))
+        row.addWidget(self.tolerance)
+        row.addWidget(self.solver_tolerance)
+        row.addStretch(1)
+        row.addWidget(self.relative)
+
+        self.plot = make_plot()
+        item = self.plot.getPlotItem()
+        item.hideAxis("bottom")
+        item.setMouseEnabled(x=False, y=True)
+        self.bar_item = pg.PlotDataItem(pen=_BAR_PEN, connect="pairs")
+        self.sel_item = pg.PlotDataItem(pen=_SEL_PEN, connect="pairs")
+        self.leader_item = pg.PlotDataItem(pen=_LEADER_PEN, connect="pairs")
+        for it in (self.leader_item, self.bar_item, self.sel_item):
+            self.plot.addItem(it)
+        self.plot.scene().sigMouseClicked.connect(self._on_scene_clicked)
+        self.plot.scene().sigMouseMoved.connect(self._on_mouse_moved)
+        vb = item.getViewBox()
+        vb.sigResized.connect(self._layout_labels)
+        vb.sigRangeChanged.connect(lambda *_: self._layout_labels())
+
+        self.info = QtWidgets.QLabel("Hover over a level for its numbers; click it to show its state.")
+        self.info.setWordWrap(True)
+        self.info.setTextInteractionFlags(QtCore.Qt.TextInteractionFlag.TextSelectableByMouse)
+
+        inner = QtWidgets.QWidget()
+        il = QtWidgets.QVBoxLayout(inner)
+        il.setContentsMargins(0, 0, 0, 0)
+        il.addWidget(self.header)
+        il.addLayout(row)
+        il.addWidget(self.plot, 1)
+        il.addWidget(self.info)
+        self.stack = HintStack(inner, _HINT)
+        lay = QtWidgets.QVBoxLayout(self)
+        lay.setContentsMargins(4, 4, 4, 4)
+        lay.addWidget(self.stack)
+
+        session.solved.connect(self._on_solved)
+        session.selection_changed.connect(self._on_selection_changed)
+        session.project_changed.connect(self._on_project_changed)
+        if getattr(session, "result", None) is not None:
+            self._on_solved(session.result)
+
+    # -- session ----------------------------------------------------------------------------------
+    def _on_project_changed(self) -> None:
+        if getattr(self.session, "result", None) is None:
+            self.result = None
+            self.stack.show_hint(_HINT)
+
+    def _on_solved(self, result=None) -> None:
+        result = result if result is not None else self.session.result
+        if result is None:
+            self.stack.show_hint(_HINT)
+            return
+        self.result = result
+        self.stack.show_content()
+        u = result.units
+        self.tolerance.setSuffix(f" {pretty_unit(u.energy_unit)}")
+        self._sync_tolerance_box()
+        self._regroup()
+
+    def _on_selection_changed(self, _index: int = 0) -> None:
+        self._draw_selection()
+
+    # -- tolerance ----------------------------------------------------------------------------------
+    def tolerance_in_use(self) -> float:
+        tol = getattr(self.session, "degeneracy_tolerance", None)
+        if tol is None and self.result is not None:
+            tol = float(self.result.spectrum.degeneracy_tolerance)
+        return float(tol) if tol is not None else 0.0
+
+    def _sync_tolerance_box(self) -> None:
+        self.tolerance.blockSignals(True)
+        self.tolerance.setValue(max(self.tolerance_in_use(), self.tolerance.minimum()))
+        self.tolerance.blockSignals(False)
+
+    def _on_tolerance_edited(self, value: float) -> None:
+        self.set_tolerance(value)
+
+    def set_tolerance(self, value: Optional[float]) -> None:
+        """Set the session's degeneracy tolerance (None: the solver's) and regroup."""
+        self.session.degeneracy_tolerance = None if value is None else float(value)
+        self._sync_tolerance_box()
+        if self.result is not None:
+            self._regroup()
+
+    def _on_use_solver_tolerance(self) -> None:
+        self.set_tolerance(None)
+
+    def _on_relative_toggled(self, on: bool) -> None:
+        self._relative = bool(on)
+        if self.result is not None:
+            self._draw()
+
+    # -- grouping and drawing -------------------------------------------------------------------------
+    def _regroup(self) -> None:
+        from core.eigensolve import group_levels
+        result = self.result
+        tol = getattr(self.session, "degeneracy_tolerance", None)
+        self.groups = result.groups if tol is None else group_levels(result.energies, float(tol))
+        self.labels = level_labels(result, self.groups)
+        self._draw()
+
+    def _shown(self, e: float) -> float:
+        return e - float(self.result.energies[0]) if self._relative else e
+
+    def _label_text(self, lab: dict) -> str:
+        u = self.result.units
+        m = len(lab["members"])
+        parts = []
+        if m > 1:
+            parts.append(f"×{m}")
+        parts.append(fmt_energy(lab["energy"], u.energy_unit, 6))
+        if lab["parity"]:
+            parts.append(lab["parity"])
+        if lab["lz_text"]:
+            parts.append(lab["lz_text"])
+        return "   ".join(parts)
+
+    def _draw(self) -> None:
+        result = self.result
+        u = result.units
+        energies = np.asarray(result.energies)
+        self.bars = []
+        xs, ys = [], []
+        widest = max(len(g) for g in self.groups)
+        for g in self.groups:
+            m = len(g)
+            total = m * _BAR_W + (m - 1) * _BAR_GAP
+            x = -total / 2.0
+            for level in g:
+                e = self._shown(float(energies[level]))
+                self.bars.append((int(level), x, x + _BAR_W, e))
+                xs += [x, x + _BAR_W]
+                ys += [e, e]
+                x += _BAR_W + _BAR_GAP
+        self.bar_item.setData(np.array(xs), np.array(ys))
+        half = (widest * _BAR_W + (widest - 1) * _BAR_GAP) / 2.0
+        self._half = half
+        self._label_x = half + 0.6
+        ylabel = axis_title("E − E₀" if self._relative else "E", u.energy_unit)
+        set_titles(self.plot, None, ylabel)
+        for it in self._label_items:
+            self.plot.removeItem(it)
+        self._label_items = []
+        for lab in self.labels:
+            t = pg.TextItem(self._label_text(lab), anchor=(0, 0.5), color="#1b1b1b")
+            self.plot.addItem(t)
+            self._label_items.append(t)
+        lo = self._shown(float(energies.min()))
+        hi = self._shown(float(energies.max()))
+        pad = 0.08 * (hi - lo) if hi > lo else max(abs(hi), 1.0) * 0.05
+        vb = self.plot.getPlotItem().getViewBox()
+        vb.setXRange(-half - 0.4, self._label_x + 4.0 + half, padding=0)
+        vb.setYRange(lo - pad, hi + pad, padding=0)
+        self._update_header()
+        self._draw_selection()
+        self._layout_labels()
+
+    def _update_header(self) -> None:
+        result = self.result
+        u = result.units
+        spec = result.spectrum
+        n = len(result.energies)
+        degenerate = sum(1 for g in self.groups if len(g) > 1)
+        text = (f"<b>{n} levels</b> in {len(self.groups)} groups ({degenerate} degenerate) · "
+                f"kinetic energy scheme: {result.scheme}")
+        if result.grid.ndim >= 2 and any(lab["lz_text"] for lab in self.labels):
+            cx, cy = self.labels[0]["lz_centre"]
+            text += (f" · L_z about the ground state's centre ({fmt(cx, 3)}, {fmt(cy, 3)}) "
+                     f"{pretty_unit(u.length_unit)}")
+        project = result.project
+        if getattr(project, "spin", False):
+            spin = " · spin ½ included: each orbital level holds two spin states"
+            b = float(np.linalg.norm(result.magnetic_field)) if result.magnetic_field is not None else 0.0
+            if b > 0 and result.g_factor is not None:
+                split = abs(result.g_factor) * u.bohr_magneton() * b
+                spin += f", split by the Zeeman energy |g| µ_B B = {fmt_energy(split, u.energy_unit, 4)}"
+            text += spin
+        if getattr(spec, "multiplet_cut", False):
+            text += ("<br><span style='color:#9b1c1c'>The highest level may belong to a multiplet that was "
+                     "cut: ask for more states to see all of it.</span>")
+        if not getattr(spec, "converged", True):
+            text += "<br><span style='color:#9b1c1c'>The solver did not fully converge.</span>"
+        self.header.setText(text)
+
+    def _layout_labels(self, *_args) -> None:
+        """Place the multiplet labels right of the bars, pushed apart so that they never overlap."""
+        if not self._label_items or self.result is None:
+            return
+        vb = self.plot.getPlotItem().getViewBox()
+        px = vb.viewPixelSize()
+        line_h = 17.0 * (px[1] if px[1] > 0 else 0.0)
+        want = [self._shown(lab["energy"]) for lab in self.labels]
+        order = np.argsort(want, kind="stable")
+        placed = np.array(want, dtype=float)
+        prev = -np.inf
+        for i in order:
+            placed[i] = max(placed[i], prev + line_h)
+            prev = placed[i]
+        top = vb.viewRange()[1][1] - 0.5 * line_h
+        nxt = np.inf
+        for i in order[::-1]:                      # pull back below the top edge where possible
+            limit = min(top, nxt - line_h)
+            if placed[i] > limit:
+                placed[i] = limit
+            nxt = placed[i]
+        xs, ys = [], []
+        for t, lab, y_lab, y in zip(self._label_items, self.labels, placed, want):
+            t.setPos(self._label_x, float(y_lab))
+            xs += [self._half + 0.1, self._label_x - 0.05]
+            ys += [y, float(y_lab)]
+        self.leader_item.setData(np.array(xs), np.array(ys))
+
+    def _draw_selection(self) -> None:
+        sel = getattr(self.session, "selected_state", None)
+        for level, x0, x1, e in self.bars:
+            if level == sel:
+                self.sel_item.setData([x0, x1], [e, e])
+                return
+        self.sel_item.setData([], [])
+
+    # -- interaction ------------------------------------------------------------------------------
+    def level_at(self, x: float, y: float) -> Optional[int]:
+        """The level whose bar (or label) is at data point (x, y), within 6 pixels; None if none."""
+        if not self.bars:
+            return None
+        vb = self.plot.getPlotItem().getViewBox()
+        px = vb.viewPixelSize()
+        tol_y = 6.0 * px[1] if px[1] > 0 else 1e-12
+        best, best_d = None, np.inf
+        for level, x0, x1, e in self.bars:
+            if x0 - 0.1 <= x <= x1 + 0.1 and abs(y - e) <= tol_y and abs(y - e) < best_d:
+                best, best_d = level, abs(y - e)
+        if best is None and x >= self._label_x - 0.1:
+            for t, lab in zip(self._label_items, self.labels):
+                if abs(y - t.pos().y()) <= 8.0 * px[1]:
+                    return int(lab["members"][0])
+        return best
+
+    def _on_scene_clicked(self, event) -> None:
+        vb = self.plot.getPlotItem().getViewBox()
+        if not vb.sceneBoundingRect().contains(event.scenePos()):
+            return
+        p = vb.mapSceneToView(event.scenePos())
+        level = self.level_at(p.x(), p.y())
+        if level is not None:
+            self._on_level_clicked(level)
+
+    def _on_level_clicked(self, level: int) -> None:
+        """Select state ``level`` in the session (the states view then shows it)."""
+        self.session.select_state(int(level))
+
+    def describe_level(self, level: int) -> str:
+        """Plain-text numbers of one level (shown on hover)."""
+        result = self.result
+        u = result.units
+        e = np.asarray(result.energies)
+        lab = next(lb for lb in self.labels if level in lb["members"])
+        parts = [f"level {level}", f"E = {fmt_energy(e[level], u.energy_unit, 7)}",
+                 f"E − E₀ = {fmt_energy(e[level] - e[0], u.energy_unit, 5)}"]
+        if level > 0:
+            parts.append(f"above the level below by {fmt_energy(e[level] - e[level - 1], u.energy_unit, 4)}")
+        if len(lab["members"]) > 1:
+            m = lab["members"]
+            parts.append(f"one of {len(m)} degenerate levels ({m[0]}–{m[-1]})")
+        pos = lab["position"]
+        names = "xyz"[: result.grid.ndim]
+        parts.append("⟨" + ", ".join(names) + "⟩ = (" + ", ".join(fmt(p, 4) for p in pos) + ") "
+                     + pretty_unit(u.length_unit))
+        if lab["parity"]:
+            parts.append(f"mirror parity {lab['parity']}")
+        if lab["lz"] is not None:
+            parts.append("L_z eigenvalues " + ", ".join(f"{v:+.3f}" for v in lab["lz"]) + " ħ")
+        parts.append(f"residual {result.spectrum.residuals[level]:.2g} {pretty_unit(u.energy_unit)}")
+        return " · ".join(parts)
+
+    def _on_mouse_moved(self, scene_pos) -> None:
+        vb = self.plot.getPlotItem().getViewBox()
+        if self.result is None or not vb.sceneBoundingRect().contains(scene_pos):
+            return
+        p = vb.mapSceneToView(scene_pos)
+        level = self.level_at(p.x(), p.y())
+        if level is None:
+            return
+        text = self.describe_level(level)
+        self.info.setText(text)
+        view_pos = self.plot.mapFromScene(scene_pos)
+        QtWidgets.QToolTip.showText(self.plot.mapToGlobal(view_pos), text.replace(" · ", "\n"), self.plot)

@@ -1,0 +1,342 @@
+"""Sweeps: choose a parameter and a range, run the sweep through the session, and read the level fan.
+
+Tracked levels keep one colour *and* one dash pattern across the whole fan; anticrossings are marked
+with a bar spanning the gap and its size in the energy unit; exact crossings get a cross and a word.
+Clicking a point re-solves the project at that parameter value (``session.set_parameter``) and
+selects the clicked level, so the states view shows it.
+"""
+from __future__ import annotations
+
+from typing import Optional
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6 import QtCore, QtWidgets
+
+from . import colormaps
+from .common import (HintStack, NumberBox, axis_title, fmt, fmt_energy, make_plot, set_titles, show_message,
+                     status_label)
+
+__all__ = ["SweepView"]
+
+_HINT = ("No sweep yet. Pick a parameter and a range above, then press “Run sweep”: the level fan appears "
+         "here, with anticrossings marked and their gaps. Click a point of the fan to see the states there.")
+_NO_PARAMETERS = ("This project has no named parameters, so there is nothing to sweep. Add a parameter in "
+                  "the project (and use it in the potential), then come back.")
+_GAP_PEN = pg.mkPen("#111111", width=2)
+
+
+class SweepView(QtWidgets.QWidget):
+    """Form, progress and level fan of a parameter sweep."""
+
+    #: (parameter value, level index) of a clicked fan point, after asking the session to re-solve there
+    point_opened = QtCore.Signal(float, int)
+
+    def __init__(self, session, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self.sweep = None
+        self.curves: list = []             # one PlotDataItem per track
+        self.gap_items: list = []
+        self.track_labels: list = []
+        self._running = False
+        self._pending_select: Optional[int] = None
+
+        # form
+        self.parameter = QtWidgets.QComboBox()
+        self.parameter.currentIndexChanged.connect(self._on_parameter_changed)
+        self.start = self._number_box()
+        self.stop = self._number_box()
+        self.steps = QtWidgets.QSpinBox()
+        self.steps.setRange(3, 2001)
+        self.steps.setValue(21)
+        self.steps.setToolTip("Number of parameter values, both ends included")
+        self.states = QtWidgets.QSpinBox()
+        self.states.setRange(1, 500)
+        self.states.setToolTip("Number of levels solved at each point")
+        self.run_button = QtWidgets.QPushButton("Run sweep")
+        self.run_button.clicked.connect(self._on_run)
+        self.cancel_button = QtWidgets.QPushButton("Cancel")
+        self.cancel_button.setEnabled(False)
+        self.cancel_button.clicked.connect(self._on_cancel)
+        self.progress = QtWidgets.QProgressBar()
+        self.progress.setRange(0, 1000)
+        self.progress.setTextVisible(False)
+        self.progress.setVisible(False)
+        self.progress_text = QtWidgets.QLabel("")
+        form = QtWidgets.QHBoxLayout()
+        for text, w in (("sweep", self.parameter), ("from", self.start), ("to", self.stop),
+                        ("in", self.steps), ("steps,", None), ("levels", self.states)):
+            form.addWidget(QtWidgets.QLabel(text))
+            if w is not None:
+                form.addWidget(w)
+        form.addWidget(self.run_button)
+        form.addWidget(self.cancel_button)
+        form.addStretch(1)
+        self.form = QtWidgets.QWidget()
+        self.form.setLayout(form)
+        prog = QtWidgets.QHBoxLayout()
+        prog.addWidget(self.progress, 1)
+        prog.addWidget(self.progress_text)
+
+        # fan
+        self.plot = make_plot()
+        self.marker = pg.InfiniteLine(angle=90, movable=False,
+                                      pen=pg.mkPen("#777777", width=1, style=QtCore.Qt.PenStyle.DotLine))
+        self.plot.addItem(self.marker, ignoreBounds=True)
+        self.summary = QtWidgets.QLabel("")
+        self.summary.setWordWrap(True)
+        self.summary.setTextInteractionFlags(QtCore.Qt.TextInteractionFlag.TextSelectableByMouse)
+        fan = QtWidgets.QWidget()
+        fl = QtWidgets.QVBoxLayout(fan)
+        fl.setContentsMargins(0, 0, 0, 0)
+        fl.addWidget(self.plot, 1)
+        fl.addWidget(self.summary)
+        self.stack = HintStack(fan, _HINT)
+        self.status = status_label()
+
+        lay = QtWidgets.QVBoxLayout(self)
+        lay.setContentsMargins(4, 4, 4, 4)
+        lay.addWidget(self.form)
+        lay.addLayout(prog)
+        lay.addWidget(self.stack, 1)
+        lay.addWidget(self.status)
+
+        session.project_changed.connect(self._on_project_changed)
+        session.sweep_finished.connect(self._on_sweep_finished)
+        session.progressed.connect(self._on_progressed)
+        session.failed.connect(self._on_failed)
+        session.cancelled.connect(self._on_cancelled)
+        session.solved.connect(self._on_solved)
+        if hasattr(session, "parameters_changed"):
+            session.parameters_changed.connect(self._update_marker)
+        self._on_project_changed()
+        if getattr(session, "sweep_result", None) is not None:
+            self._on_sweep_finished(session.sweep_result)
+
+    @staticmethod
+    def _number_box() -> QtWidgets.QDoubleSpinBox:
+        box = NumberBox()
+        box.setMinimumWidth(90)
+        return box
+
+    # -- form ------------------------------------------------------------------------------------
+    def _on_project_changed(self) -> None:
+        project = getattr(self.session, "project", None)
+        names = list(project.parameters) if project is not None else []
+        current = self.parameter.currentText()
+        self.parameter.blockSignals(True)
+        self.parameter.clear()
+        self.parameter.addItems(names)
+        if current in names:
+            self.parameter.setCurrentText(current)
+        self.parameter.blockSignals(False)
+        self.form.setEnabled(bool(names) and not self._running)
+        if project is None:
+            return
+        if not names:
+            show_message(self.status, _NO_PARAMETERS)
+            if self.sweep is None:
+                self.stack.show_hint(_NO_PARAMETERS)
+            return
+        show_message(self.status, "")
+        if self.sweep is None:
+            self.stack.show_hint(_HINT)
+        if current not in names:
+            self.states.setValue(int(project.solver.states))
+            self._on_parameter_changed()
+        self._update_marker()
+
+    def _on_parameter_changed(self, *_args) -> None:
+        project = self.session.project
+        name = self.parameter.currentText()
+        if not name:
+            return
+        value = float(project.parameters[name])
+        rng = project.parameter_ranges.get(name)
+        if rng is not None and len(rng) == 2 and rng[1] > rng[0]:
+            lo, hi = float(rng[0]), float(rng[1])
+        else:
+            half = max(abs(value) * 0.5, 1.0)
+            lo, hi = value - half, value + half
+        step = (hi - lo) / 100.0
+        for box, v in ((self.start, lo), (self.stop, hi)):
+            box.setSingleStep(float(f"{step:.1g}"))
+            box.setValue(v)
+        self._update_marker()
+
+    def sweep_values(self) -> np.ndarray:
+        return np.linspace(self.start.value(), self.stop.value(), self.steps.value())
+
+    def _on_run(self) -> None:
+        name = self.parameter.currentText()
+        if not name:
+            show_message(self.status, _NO_PARAMETERS, error=True)
+            return
+        if self.start.value() == self.stop.value():
+            show_message(self.status, "The start and the end of the range are equal; give a range to sweep.",
+                         error=True)
+            return
+        values = self.sweep_values()
+        self._set_running(True)
+        show_message(self.status, f"Sweeping {name} over {values.size} values…")
+        try:
+            self.session.run_sweep(name, values, states=self.states.value())
+        except Exception as exc:  # noqa: BLE001 - shown in the window, never as a traceback
+            self._set_running(False)
+            show_message(self.status, f"The sweep could not start: {exc}", error=True)
+
+    def _on_cancel(self) -> None:
+        self.session.cancel_sweep()
+        show_message(self.status, "Cancelling the sweep…")
+
+    def _set_running(self, on: bool) -> None:
+        self._running = bool(on)
+        self.run_button.setEnabled(not on)
+        self.cancel_button.setEnabled(on)
+        self.progress.setVisible(on)
+        self.progress.setValue(0)
+        self.progress_text.setText("")
+        for w in (self.parameter, self.start, self.stop, self.steps, self.states):
+            w.setEnabled(not on)
+
+    def _on_progressed(self, stage: str, fraction: float) -> None:
+        if not self._running:
+            return
+        f = min(max(float(fraction), 0.0), 1.0)
+        self.progress.setValue(int(round(1000 * f)))
+        self.progress_text.setText(f"{stage} {100 * f:.0f} %")
+
+    def _on_failed(self, message: str) -> None:
+        if self._running:
+            self._set_running(False)
+            kept = " The previous fan stays on screen." if self.sweep is not None else ""
+            show_message(self.status, f"The sweep failed: {message}.{kept}", error=True)
+
+    def _on_cancelled(self) -> None:
+        if self._running:
+            self._set_running(False)
+            kept = " The previous fan stays on screen." if self.sweep is not None else ""
+            show_message(self.status, f"The sweep was cancelled.{kept}")
+
+    # -- fan -------------------------------------------------------------------------------------
+    def _on_sweep_finished(self, sweep) -> None:
+        self._set_running(False)
+        if sweep is None:
+            return
+        self.sweep = sweep
+        self.stack.show_content()
+        show_message(self.status, "")
+        self._draw_fan()
+
+    def _units(self):
+        units = getattr(self.sweep, "units", None)
+        if units is None:
+            from core.units import get_units
+            units = get_units(self.sweep.project.units)
+        elif isinstance(units, str):
+            from core.units import get_units
+            units = get_units(units)
+        return units
+
+    def _clear(self) -> None:
+        for it in self.curves + self.gap_items + self.track_labels:
+            self.plot.removeItem(it)
+        self.curves, self.gap_items, self.track_labels = [], [], []
+
+    def _draw_fan(self) -> None:
+        sweep = self.sweep
+        u = self._units()
+        self._clear()
+        x = np.asarray(sweep.values, dtype=float)
+        tracks = np.asarray(sweep.track_energies(), dtype=float)
+        set_titles(self.plot, f"{sweep.parameter} (swept parameter)", axis_title("E", u.energy_unit))
+        for t, y in enumerate(tracks):
+            pen = colormaps.track_pen(t)
+            colour = colormaps.TRACK_COLOURS[t % len(colormaps.TRACK_COLOURS)]
+            curve = pg.PlotDataItem(x, y, pen=pen, connect="finite", symbol="o", symbolSize=5,
+                                    symbolPen=None, symbolBrush=colour, name=f"track {t}")
+            curve.sigPointsClicked.connect(lambda _item, points, _ev=None, t=t: self._on_points_clicked(t, points))
+            curve.setToolTip(f"level track {t}: click a point to solve there and show the state")
+            self.plot.addItem(curve)
+            self.curves.append(curve)
+            finite = np.flatnonzero(np.isfinite(y))
+            if finite.size:
+                lab = pg.TextItem(f"{t}", anchor=(0, 0.5), color=colour)
+                lab.setPos(float(x[finite[-1]]), float(y[finite[-1]]))
+                self.plot.addItem(lab)
+                self.track_labels.append(lab)
+        lines = []
+        for ac in getattr(sweep, "anticrossings", ()) or ():
+            a, b = (int(v) for v in ac.tracks)
+            at = float(ac.at)
+            ea = float(np.interp(at, x, tracks[a]))
+            eb = float(np.interp(at, x, tracks[b]))
+            lo_e, hi_e = min(ea, eb), max(ea, eb)
+            where = f"{sweep.parameter} = {fmt(at, 4)}"
+            if getattr(ac, "kind", "anticrossing") == "crossing":
+                mark = pg.ScatterPlotItem([at], [(ea + eb) / 2], symbol="x", size=14,
+                                          pen=pg.mkPen("#111111", width=2), brush=None)
+                text = pg.TextItem("crossing", anchor=(-0.1, 1.0), color="#111111")
+                text.setPos(at, (ea + eb) / 2)
+                lines.append(f"tracks {a} and {b} cross at {where} (no gap: they do not couple)")
+                items = [mark, text]
+            else:
+                gap = float(ac.gap)
+                bar = pg.PlotDataItem([at, at], [lo_e, hi_e], pen=_GAP_PEN, symbol="_", symbolSize=12,
+                                      symbolPen=pg.mkPen("#111111", width=2))
+                text = pg.TextItem(f"gap {fmt_energy(gap, u.energy_unit, 3)}", anchor=(-0.08, 0.5),
+                                   color="#111111", fill=pg.mkBrush(255, 255, 255, 210))
+                text.setPos(at, (lo_e + hi_e) / 2)
+                lines.append(f"tracks {a} and {b} anticross at {where}: gap {fmt_energy(gap, u.energy_unit, 4)} "
+                             f"(half of it is the coupling between them)")
+                items = [bar, text]
+            for it in items:
+                it.setZValue(15)
+                self.plot.addItem(it)
+                self.gap_items.append(it)
+        head = (f"{tracks.shape[0]} tracked levels over {x.size} values of {sweep.parameter}. "
+                "Each track keeps its colour and line style; its number is at its right end.")
+        self.summary.setText(head + ("<br>" + "<br>".join(lines) if lines else
+                                     "<br>No anticrossings were found in this range."))
+        self._update_marker()
+
+    def _update_marker(self, *_args) -> None:
+        project = getattr(self.session, "project", None)
+        name = self.sweep.parameter if self.sweep is not None else self.parameter.currentText()
+        if project is not None and name in project.parameters:
+            self.marker.setValue(float(project.parameters[name]))
+            self.marker.setVisible(True)
+            self.marker.setToolTip(f"the project's current value of {name}")
+        else:
+            self.marker.setVisible(False)
+
+    # -- opening a point -------------------------------------------------------------------------
+    def _on_points_clicked(self, track: int, points) -> None:
+        if not len(points):
+            return
+        self.open_point(float(points[0].pos().x()), track)
+
+    def open_point(self, value: float, track: int) -> Optional[int]:
+        """Re-solve at ``value`` of the swept parameter and select the level that ``track`` holds there."""
+        sweep = self.sweep
+        if sweep is None:
+            return None
+        x = np.asarray(sweep.values, dtype=float)
+        p = int(np.argmin(np.abs(x - value)))
+        level = int(np.asarray(sweep.tracks)[track, p])
+        if level < 0:
+            show_message(self.status, f"Track {track} has no level at {sweep.parameter} = {fmt(x[p], 5)}.")
+            return None
+        self._pending_select = level
+        show_message(self.status, f"Solving at {sweep.parameter} = {fmt(x[p], 6)}; the states view will show "
+                     f"level {level} (track {track}).")
+        self.session.set_parameter(sweep.parameter, float(x[p]))
+        self.point_opened.emit(float(x[p]), level)
+        return level
+
+    def _on_solved(self, _result=None) -> None:
+        if self._pending_select is not None:
+            level, self._pending_select = self._pending_select, None
+            self.session.select_state(level)
+        self._update_marker()
