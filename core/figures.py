@@ -91,10 +91,10 @@ TEMPLATES = {
 }
 
 DEFAULT_LAYOUT = "potential+states4+levels"
-DEFAULT_SWEEP_LAYOUT = "potential+states2+levels+fan"
+DEFAULT_SWEEP_LAYOUT = "potential+states2+fan"
 LAYOUTS = {
     "potential+states4+levels": "the potential, the four lowest states and the level diagram (default)",
-    "potential+states2+levels+fan": "the potential, two states, the levels and the sweep fan (default with a sweep)",
+    "potential+states2+fan": "the potential, two states and the sweep fan (default with a sweep)",
     "potential+cut+levels": "the potential map, a line cut with the levels, and the level diagram",
     "states6": "the six lowest states",
     "fan": "the sweep fan alone",
@@ -593,14 +593,7 @@ def _fan_panel(sweep, parameter_unit: Optional[str]) -> dict:
                     "centre": 0.5 * (ea + eb)})
     name = str(sweep.parameter)
     label = f"{name} [{_pretty_unit(unit)}]" if unit else name
-    n_anti = sum(1 for a in acs if a["kind"] == "anticrossing")
-    n_cross = len(acs) - n_anti
-    bits = []
-    if n_anti:
-        bits.append(f"{n_anti} anticrossing{'s' if n_anti != 1 else ''}")
-    if n_cross:
-        bits.append(f"{n_cross} crossing{'s' if n_cross != 1 else ''}")
-    title = f"Levels against {name}" + (f" ({', '.join(bits)})" if bits else "")
+    title = f"Levels against {name}"
     return {"kind": "fan", "title": title, "values": values, "tracks": tracks, "anticrossings": acs,
             "x_label": label, "y_label": _label("E", units.energy_unit), "energy_unit": E,
             "parameter": name}
@@ -880,6 +873,24 @@ def _draw_state(fig, ax, p: dict, t: Template) -> None:
     ax._wellscape_colorbar = cb  # noqa: SLF001
 
 
+def _scaled_axis(axis, vmax: float, label: str) -> None:
+    """Tick labels in units of a power of ten written into the axis label (``eps [10^-3 V]``)
+    when the values are very small or very large; the plotted values are never rescaled."""
+    from matplotlib.ticker import FuncFormatter, MaxNLocator
+    axis.set_major_locator(MaxNLocator(nbins=6))
+    k = int(math.floor(math.log10(vmax))) if vmax > 0 else 0
+    if -2 <= k <= 3:
+        axis.set_label_text(label)
+        return
+    k = 3 * math.floor(k / 3)
+    scale = 10.0 ** k
+    axis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v / scale:g}"))
+    if "[" in label:
+        axis.set_label_text(label.replace("[", f"[10$^{{{k}}}$ ", 1))
+    else:
+        axis.set_label_text(f"{label} [10$^{{{k}}}$]")
+
+
 def _side_axes(ax):
     """An axes for a colour bar just right of ``ax``'s image, exactly as tall as the image."""
     return ax.inset_axes([1.04, 0.0, 0.06, 1.0])
@@ -1039,13 +1050,13 @@ def _draw_fan(fig, ax, p: dict, t: Template) -> None:
                     arrowprops={"arrowstyle": "<->", "color": "black", "linewidth": 0.8 * t.line_width,
                                 "shrinkA": 0, "shrinkB": 0})
         if rank < 8:
-            txt = ax.annotate(f"{a['gap']:.3g} {p['energy_unit']}", xy=(a["at"], hi),
+            txt = ax.annotate(f"gap {a['gap']:.3g} {p['energy_unit']}", xy=(a["at"], hi),
                               xytext=(4, 4 + (rank % 2) * 0.9 * t.font_pt), textcoords="offset points",
                               fontsize=t.font_pt * 0.72, ha="left", va="bottom")
             _outline(txt, 2.5, "white")
     ax.set_xlim(x.min(), x.max())
     ax.set_ylim(ymin - 0.04 * yspan, ymax + 0.04 * yspan)
-    ax.set_xlabel(p["x_label"])
+    _scaled_axis(ax.xaxis, float(np.abs(x).max()), p["x_label"])
     ax.set_ylabel(p["y_label"])
 
 
@@ -1054,7 +1065,7 @@ _DRAW = {"potential": _draw_potential, "state": _draw_state, "cut": _draw_cut, "
 
 
 # panels without a map: (smallest width of the axes, in font sizes; share of spare width)
-_FLEX = {"levels": (9.0, 1.0), "cut": (16.0, 2.0), "fan": (24.0, 4.0), "state": (14.0, 1.5),
+_FLEX = {"levels": (9.0, 1.0), "cut": (14.0, 2.0), "fan": (18.0, 4.0), "state": (14.0, 1.5),
          "potential": (16.0, 2.0)}
 
 
@@ -1159,12 +1170,13 @@ def _column_widths(cols: list, t: Template, height_in: Optional[float], fixed_h:
         for j, c in enumerate(cols):
             if c[0] == "map":
                 heights[j] = max(0.25, h_panels / c[2] - overheads[j][1])
-        block = [h for j, h in heights.items() if cols[j][2] > 1]
+        block = [h * math.sqrt(cols[j][1]) for j, h in heights.items() if cols[j][2] > 1]
         if block and rows > 1:
             # a map of full height beside a block of states is kept at most 1.5 times their
-            # size, so that the states stay readable
+            # linear size (square root of the area), so that the states stay readable
             cap = 1.5 * min(block)
-            heights = {j: (min(h, cap) if cols[j][2] == 1 else h) for j, h in heights.items()}
+            heights = {j: (min(h, cap / math.sqrt(cols[j][1])) if cols[j][2] == 1 else h)
+                       for j, h in heights.items()}
         return [heights[j] * cols[j][1] + overheads[j][0] if j in heights else None for j in range(len(cols))]
 
     flex_min = sum(c[2] * f + overheads[j][0] for j, c in enumerate(cols) if c[0] == "flex")
@@ -1184,23 +1196,17 @@ def _column_widths(cols: list, t: Template, height_in: Optional[float], fixed_h:
         height = height_in
         h_panels = height_in - fixed_h
     widths = widths_for(h_panels)
-    map_total = sum(w for w in widths if w is not None)
-    spare = t.width_in - map_total - flex_min
-    if spare < 0 and map_total > 0:
-        # too wide: shrink every map by the same factor (their decorations keep their size)
-        decor = sum(overheads[j][0] for j, w in enumerate(widths) if w is not None)
-        scale = max(0.1, (t.width_in - flex_min - decor) / max(map_total - decor, 1e-9))
-        widths = [overheads[j][0] + (w - overheads[j][0]) * scale if w is not None else None
-                  for j, w in enumerate(widths)]
-        spare = 0.0
+    inner = [w - overheads[j][0] if w is not None else c[2] * f for j, (w, c) in enumerate(zip(widths, cols))]
+    avail = t.width_in - sum(overheads[j][0] for j in range(len(cols)))
+    spare = avail - sum(inner)
+    if spare < 0:
+        # too wide: every panel gives up the same fraction (the decorations keep their size)
+        scale = max(0.05, avail) / sum(inner)
+        return height, [w * scale for w in inner]
     shares = sum(_FLEX[c[1]][1] for c in cols if c[0] == "flex")
-    final = []
-    for j, (w, c) in enumerate(zip(widths, cols)):
-        if w is not None:
-            final.append(w - overheads[j][0] + (spare / len(cols) if shares == 0 else 0.0))
-        else:
-            final.append(c[2] * f + spare * _FLEX[c[1]][1] / shares)
-    return height, final
+    if shares == 0:
+        return height, [w + spare / len(cols) for w in inner]
+    return height, [w + (spare * _FLEX[c[1]][1] / shares if c[0] == "flex" else 0.0) for w, c in zip(inner, cols)]
 
 
 def _estimated_overheads(cols: list, panels: Sequence[dict], cells: list, t: Template) -> dict:
@@ -1258,7 +1264,8 @@ def _fit_row_heights(fig, gs, axes: list, cells: list, panels: Sequence[dict], r
         else:
             want = 0.0
         need[r] = max(need[r], want)
-    default = max(need) if max(need) > 0 else fw / 3
+    ncols = gs.ncols
+    default = max(max(need), 0.62 * fw / ncols)
     need = [n if n > 0 else default for n in need]
     need = [n + 2 * pad_h + 0.05 for n in need]
     gs.set_height_ratios(need)
