@@ -125,6 +125,13 @@ class Sheet:
     project_hash: str = ""
     wellscape_version: str = ""
 
+    def single_panel(self, index: int) -> "Sheet":
+        """A sheet of panel ``index`` alone, with the same caption (to export one view)."""
+        if not isinstance(index, (int, np.integer)) or not 0 <= int(index) < len(self.panels):
+            raise InputError(f"panel {index!r}: the sheet has panels 0–{len(self.panels) - 1}")
+        p = self.panels[int(index)]
+        return dataclasses.replace(self, panels=(p,), layout=p["kind"], columns=None)
+
     def with_options(self, **changes) -> "Sheet":
         """A copy with other ``template``, ``columns`` or ``title`` (the plotted values stay)."""
         allowed = {"template", "columns", "title"}
@@ -578,7 +585,10 @@ def _fan_panel(sweep, parameter_unit: Optional[str]) -> dict:
     if units is None:
         units = get_units(sweep.project.units)
     E = _pretty_unit(units.energy_unit)
-    unit = parameter_unit if parameter_unit is not None else getattr(sweep, "parameter_unit", None)
+    if parameter_unit is None:
+        from .export import parameter_unit as _unit_of
+        parameter_unit = _unit_of(sweep)
+    unit = parameter_unit
     acs = []
     for ac in getattr(sweep, "anticrossings", None) or ():
         a, b = (int(t) for t in ac.tracks)
