@@ -36,7 +36,42 @@ from PySide6.QtCore import QThread, Signal
 
 from core.errors import Cancelled, NotConverged, WellscapeError
 
-__all__ = ["Job", "running_jobs", "compute_lock", "describe_error"]
+__all__ = ["Job", "running_jobs", "compute_lock", "describe_error", "guard_singleton_refcounts"]
+
+
+def guard_singleton_refcounts() -> bool:
+    """Apply the views' guard against the PySide6 6.12.0 / CPython 3.11 reference-count bug
+    (``app/views/_refcount_guard.py``: every signal emission loses a reference to True, many void
+    calls one to None) before the session emits its first signal.
+
+    The module is loaded by its path under its own package name, so that the views package's
+    ``__init__`` (which imports every view, and through them this module) is not run from here.
+    Returns whether the bug was found; False if the guard module is not there."""
+    import importlib.util
+    from pathlib import Path
+    name = "app.views._refcount_guard"
+    mod = sys.modules.get(name)
+    if mod is None:
+        path = Path(__file__).resolve().parent / "views" / "_refcount_guard.py"
+        if not path.is_file():
+            return False
+        spec = importlib.util.spec_from_file_location(name, path)
+        if spec is None or spec.loader is None:
+            return False
+        mod = importlib.util.module_from_spec(spec)
+        sys.modules[name] = mod
+        try:
+            spec.loader.exec_module(mod)
+        except Exception:      # noqa: BLE001 - a broken guard must not stop the application
+            sys.modules.pop(name, None)
+            return False
+    try:
+        return bool(mod.guard())
+    except Exception:          # noqa: BLE001
+        return False
+
+
+guard_singleton_refcounts()
 
 _JOBS: "weakref.WeakSet[Job]" = weakref.WeakSet()
 _JOBS_LOCK = threading.Lock()

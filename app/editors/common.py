@@ -1,0 +1,177 @@
+"""Small building blocks shared by the project editors."""
+from __future__ import annotations
+
+import math
+from typing import Callable, Iterable, Optional
+
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtWidgets import QFrame, QLabel, QLineEdit, QSizePolicy, QWidget
+
+from core.errors import FormulaError, WellscapeError
+from core.formula import parse_formula
+
+ERROR_STYLE = "color: #b00020;"
+HINT_STYLE = "color: palette(mid);"
+FIELD_ERROR_STYLE = "QLineEdit { border: 1px solid #b00020; background: #fff3f3; }"
+
+
+def fmt(value, digits: int = 6) -> str:
+    """A number as short text (formulas are shown as they are)."""
+    if isinstance(value, str):
+        return value
+    if value is None:
+        return ""
+    v = float(value)
+    if v == 0:
+        return "0"
+    return f"{v:.{digits}g}"
+
+
+class MessageLabel(QLabel):
+    """A one-line, word-wrapped message under an editor: an error (red) or a hint (grey)."""
+
+    def __init__(self, parent: Optional[QWidget] = None):
+        super().__init__(parent)
+        self.setWordWrap(True)
+        self.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.setSizePolicy(QSizePolicy.Policy.Preferred, QSizePolicy.Policy.Minimum)
+        self.hide()
+
+    def show_error(self, text: str) -> None:
+        self.setStyleSheet(ERROR_STYLE)
+        self.setText(text)
+        self.setVisible(bool(text))
+
+    def show_hint(self, text: str) -> None:
+        self.setStyleSheet(HINT_STYLE)
+        self.setText(text)
+        self.setVisible(bool(text))
+
+    def clear_message(self) -> None:
+        self.setText("")
+        self.hide()
+
+    @property
+    def is_error(self) -> bool:
+        return self.isVisible() and self.styleSheet() == ERROR_STYLE
+
+
+def hline() -> QFrame:
+    f = QFrame()
+    f.setFrameShape(QFrame.Shape.HLine)
+    f.setFrameShadow(QFrame.Shadow.Sunken)
+    return f
+
+
+def parse_value(text: str, parameters: Iterable[str]):
+    """A number, or a formula of parameters (returned as its text); FormulaError if neither."""
+    t = text.strip()
+    if not t:
+        raise FormulaError("enter a number or a formula of parameters", formula=text, column=1)
+    try:
+        v = float(t)
+    except ValueError:
+        pass
+    else:
+        if not math.isfinite(v):
+            raise FormulaError("enter a finite number", formula=text, column=1)
+        return v
+    f = parse_formula(t, parameters=tuple(parameters), coordinates=())
+    if f.is_constant:
+        return float(f.evaluate({}))
+    return t
+
+
+class ValueField(QLineEdit):
+    """A number, or a formula of the project's parameters (``"VP + eps/2"``), checked as you type.
+
+    ``committed(value)`` is emitted when editing finishes with a valid value that
+    differs from the one shown; ``value`` is a float or the formula's text.
+    ``allow_formula=False`` accepts plain numbers only; ``positive=True`` refuses <= 0.
+    """
+
+    committed = Signal(object)
+
+    def __init__(self, parent: Optional[QWidget] = None, *, allow_formula: bool = True, positive: bool = False,
+                 allow_empty: bool = False, message: Optional[MessageLabel] = None):
+        super().__init__(parent)
+        self.allow_formula = allow_formula
+        self.positive = positive
+        self.allow_empty = allow_empty
+        self.message = message
+        self.parameters: tuple = ()
+        self._shown = None
+        self.error: Optional[str] = None
+        self.textEdited.connect(self._check)
+        self.editingFinished.connect(self._finish)
+
+    def set_parameters(self, names: Iterable[str]) -> None:
+        self.parameters = tuple(names)
+
+    def set_value(self, value) -> None:
+        self._shown = value
+        self.setText(fmt(value) if value is not None else "")
+        self._set_error(None)
+
+    def value(self):
+        """The current valid value (float, formula text, or None when empty and allowed); raises if invalid."""
+        text = self.text().strip()
+        if not text and self.allow_empty:
+            return None
+        if self.allow_formula:
+            v = parse_value(text, self.parameters)
+        else:
+            try:
+                v = float(text)
+            except ValueError:
+                raise FormulaError(f"expected a number, got {text!r}", formula=text, column=1) from None
+            if not math.isfinite(v):
+                raise FormulaError("enter a finite number", formula=text, column=1)
+        if self.positive and isinstance(v, float) and v <= 0:
+            raise FormulaError("must be positive", formula=text, column=1)
+        return v
+
+    def _check(self, *_args) -> bool:
+        try:
+            self.value()
+        except WellscapeError as exc:
+            self._set_error(str(exc))
+            return False
+        self._set_error(None)
+        return True
+
+    def _set_error(self, message: Optional[str]) -> None:
+        self.error = message
+        self.setStyleSheet(FIELD_ERROR_STYLE if message else "")
+        self.setToolTip(message or "")
+        if self.message is not None:
+            if message:
+                self.message.show_error(message)
+            else:
+                self.message.clear_message()
+
+    def _finish(self) -> None:
+        if not self._check():
+            return
+        v = self.value()
+        if v == self._shown or (isinstance(v, float) and isinstance(self._shown, (int, float))
+                                and fmt(v) == fmt(self._shown)):
+            return
+        self._shown = v
+        self.committed.emit(v)
+
+
+def apply_edit(session, make: Callable, text: str, message: Optional[MessageLabel] = None) -> bool:
+    """Build a new project with ``make(project)`` and hand it to the session (undoable).
+
+    Errors (bad edit, validation) go to ``message``; nothing is lost. Returns True on success."""
+    try:
+        project = make(session.project)
+        session.set_project(project, text)
+    except WellscapeError as exc:
+        if message is not None:
+            message.show_error(str(exc))
+        return False
+    if message is not None and message.is_error:
+        message.clear_message()
+    return True
