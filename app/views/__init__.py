@@ -8,6 +8,10 @@ from ._refcount_guard import guard as _guard_refcounts
 
 _guard_refcounts()      # PySide6 6.12.0 on CPython 3.11 loses references to None/True (see the module)
 
+from .isosurface import share_gl_contexts as _share_gl_contexts  # noqa: E402
+
+_share_gl_contexts()    # before the QApplication exists: every GL view can use pyqtgraph's shaders
+
 from .levels_view import LevelsView  # noqa: E402
 from .potential_view import PotentialView  # noqa: E402
 from .states_view import StatesView  # noqa: E402

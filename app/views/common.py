@@ -32,12 +32,19 @@ def axis_title(name: str, unit: str) -> str:
 
 
 def density_unit(length_unit: str, ndim: int) -> str:
-    """Unit of |psi|^2 on an ndim grid: ``1/nm²``."""
+    """Unit of |psi|^2 on an ndim grid: ``nm⁻²``."""
     u = pretty_unit(length_unit)
     if not u:
         return ""
-    power = {1: "", 2: "²", 3: "³"}[ndim]
-    return f"1/{u}{power}"
+    return u + {1: "⁻¹", 2: "⁻²", 3: "⁻³"}[ndim]
+
+
+def wave_unit(length_unit: str, ndim: int) -> str:
+    """Unit of psi on an ndim grid: ``nm⁻¹`` in 2D, ``nm⁻³ᐟ²`` in 3D."""
+    u = pretty_unit(length_unit)
+    if not u:
+        return ""
+    return u + {1: "⁻¹ᐟ²", 2: "⁻¹", 3: "⁻³ᐟ²"}[ndim]
 
 
 def fmt(value: float, digits: int = 5) -> str:
@@ -111,8 +118,15 @@ def colorbar(image_items, plot: pg.PlotWidget, cmap) -> pg.ColorBarItem:
     return bar
 
 
-def set_colorbar_title(bar: pg.ColorBarItem, title: str) -> None:
-    bar.getAxis("right").setLabel(title, color="#222222")
+def set_colorbar_title(bar: pg.ColorBarItem, name: str, unit: str = "", top: Optional[float] = None) -> None:
+    """Title ``name [unit]``; when the values (up to ``top``) are very small or large, the ticks are
+    shown times a power of ten that goes into the unit: ``|ψ|² [10⁻⁴ nm⁻²]``."""
+    factor, prefix = decade(top) if top is not None else (1.0, "")
+    ax = bar.getAxis("right")
+    ax.setScale(factor)
+    u = pretty_unit(unit)
+    title = f"{name} [{prefix}{u}]" if (u or prefix) else name
+    ax.setLabel(title.replace(" ]", "]"), color="#222222")
 
 
 class NumberBox(QtWidgets.QDoubleSpinBox):
@@ -141,6 +155,19 @@ class NumberBox(QtWidgets.QDoubleSpinBox):
         except ValueError:
             state = QtGui.QValidator.State.Intermediate
         return state, text, pos
+
+
+def decade(top: float) -> tuple:
+    """``(factor, text)`` to show numbers up to ``top`` in readable units: values times ``factor``,
+    unit prefixed by ``text`` (e.g. ``(1e4, "10⁻⁴ ")`` for a top of 3e-4); ``(1, "")`` when not needed."""
+    top = abs(float(top))
+    if not np.isfinite(top) or top == 0.0:
+        return 1.0, ""
+    e = int(np.floor(np.log10(top)))
+    if -2 <= e <= 3:
+        return 1.0, ""
+    sup = str.maketrans("-0123456789", "⁻⁰¹²³⁴⁵⁶⁷⁸⁹")
+    return 10.0 ** (-e), f"10{str(e).translate(sup)} "
 
 
 def clean_zero(value: float, scale: float) -> float:

@@ -11,12 +11,22 @@ from typing import Optional, Sequence
 import numpy as np
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from .common import axis_title
+from .common import axis_title, pretty_unit
 
-__all__ = ["surface_mesh", "level_enclosing", "gl_available", "IsosurfaceWidget", "Surface"]
+__all__ = ["surface_mesh", "level_enclosing", "gl_available", "share_gl_contexts", "IsosurfaceWidget", "Surface"]
 
 _NO_GL_PLATFORMS = ("offscreen", "minimal", "vnc", "linuxfb")
 _GL_STATE: dict = {}
+
+
+def share_gl_contexts() -> bool:
+    """Ask Qt to let all OpenGL widgets share one set of GL objects (must run before the QApplication
+    exists).  pyqtgraph compiles its shaders once per process, so a second GL view (the potential's
+    and the states' isosurfaces) can only use them if the contexts share.  Returns whether it is on."""
+    attr = QtCore.Qt.ApplicationAttribute.AA_ShareOpenGLContexts
+    if QtCore.QCoreApplication.instance() is None:
+        QtCore.QCoreApplication.setAttribute(attr, True)
+    return QtCore.QCoreApplication.testAttribute(attr)
 
 
 def surface_mesh(volume: np.ndarray, level: float, grid) -> Optional[tuple]:
@@ -123,7 +133,9 @@ class IsosurfaceWidget(QtWidgets.QWidget):
             mesh = surface_mesh(s.volume, s.level, grid)
             self.meshes.append(mesh)
             lines.append(s.legend if mesh is not None else f"{s.legend}: no surface at this level")
-        self.legend.setText("   ·   ".join(lines))
+        box = f"Grey box: the grid, {grid.upper[0] - grid.lower[0]:.4g} × {grid.upper[1] - grid.lower[1]:.4g} × " \
+              f"{grid.upper[2] - grid.lower[2]:.4g} {pretty_unit(length_unit)} (x × y × z). Drag to turn it."
+        self.legend.setText("   ·   ".join(lines) + "<br>" + box)
         self._draw()
 
     def ensure_gl(self) -> bool:

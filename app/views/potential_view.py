@@ -183,11 +183,13 @@ class PotentialView(QtWidgets.QWidget):
         else:
             lo, hi = self._levels_of(v)
             self.slices.set_volume(grid, v, cmap=colormaps.POTENTIAL, levels=(lo, hi),
-                                   length_unit=u.length_unit, colour_title=axis_title("V", u.energy_unit),
+                                   length_unit=u.length_unit, colour_title=("V", u.energy_unit),
                                    keep_planes=not rebuild, centre_on=self._ground_density(grid))
             if rebuild:
                 self._default_iso_energy()
             self._update_isosurface()
+        if rebuild:
+            self._place_cut(grid)
         self._update_cut()
         self._update_levels()
 
@@ -217,7 +219,6 @@ class PotentialView(QtWidgets.QWidget):
         self.show_gates.setVisible(ndim == 2 and any(isinstance(t, GatesTerm)
                                                     for t in self.session.project.potential))
         self.iso_energy.setSuffix(f" {pretty_unit(u.energy_unit)}")
-        e_title = axis_title("V", u.energy_unit)
         if ndim == 1:
             set_titles(self.plot1d, axis_title("x", u.length_unit), axis_title("energy", u.energy_unit))
             self.levels_on_cut.setText("levels")
@@ -227,12 +228,12 @@ class PotentialView(QtWidgets.QWidget):
                        axis_title("energy", u.energy_unit))
         if ndim == 2:
             set_titles(self.plot2d, axis_title("x", u.length_unit), axis_title("y", u.length_unit))
-            set_colorbar_title(self.colorbar, e_title)
+            set_colorbar_title(self.colorbar, "V", u.energy_unit)
             self.plot2d.getPlotItem().setRange(rect=image_rect(grid), padding=0.02)
-        self._place_cut(grid)
 
     def _place_cut(self, grid) -> None:
-        """A line cut along x through the bottom of the potential, on the 2D map or the xy slice."""
+        """A line cut along x on the 2D map or the xy slice: through the ground state's centre after a
+        solve, else through the bottom of the potential (3D: through the current y plane)."""
         host = {2: self.plot2d, 3: self.slices.plots[0] if grid.ndim == 3 else None}.get(grid.ndim)
         if self.cut_roi is not None and self._cut_host is not None:
             self._cut_host.removeItem(self.cut_roi)
@@ -241,9 +242,14 @@ class PotentialView(QtWidgets.QWidget):
         if host is None:
             return
         v = self._potential
-        flat = np.unravel_index(int(np.nanargmin(v)), v.shape)
         x, y = grid.axes[0], grid.axes[1]
-        yc = float(y[flat[1]])
+        rho = self._ground_density(grid)
+        if grid.ndim == 3:
+            yc = float(y[self.slices.index[1]])
+        elif rho is not None:
+            yc = float(rho.sum(axis=0) @ y / rho.sum())
+        else:
+            yc = float(y[np.unravel_index(int(np.nanargmin(v)), v.shape)[1]])
         start, end = (float(x[0]), yc), (float(x[-1]), yc)
         self.cut_roi = pg.LineSegmentROI([start, end], pen=_CUT_PEN, movable=True)
         self.cut_roi.setZValue(20)

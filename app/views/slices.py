@@ -45,7 +45,7 @@ class SliceTriptych(QtWidgets.QWidget):
             lines = []
             for ax_in_plot, along in ((a, 90), (b, 0)):
                 line = pg.InfiniteLine(angle=along, movable=False,
-                                       pen=pg.mkPen("#ffffff", width=1, style=QtCore.Qt.PenStyle.DashLine))
+                                       pen=pg.mkPen("#8a8a8a", width=1, style=QtCore.Qt.PenStyle.DashLine))
                 plot.addItem(line)
                 lines.append((ax_in_plot, line))
             slider = QtWidgets.QSlider(QtCore.Qt.Orientation.Horizontal)
@@ -70,7 +70,7 @@ class SliceTriptych(QtWidgets.QWidget):
 
     # -- public ---------------------------------------------------------------------------
     def set_volume(self, grid, volume: np.ndarray, *, cmap: str, levels: tuple, length_unit: str,
-                   colour_title: str = "", keep_planes: bool = True, centre_on: Optional[np.ndarray] = None) -> None:
+                   colour_title: tuple = ("", ""), keep_planes: bool = True, centre_on: Optional[np.ndarray] = None) -> None:
         """Show ``volume`` (indexed [x, y, z] on ``grid``) with colour map ``cmap`` and ``levels``.
 
         New planes go through the weighted centre of ``centre_on`` (default: of ``volume``)."""
@@ -84,8 +84,9 @@ class SliceTriptych(QtWidgets.QWidget):
             self.index = self._default_index(self._volume if centre_on is None else np.asarray(centre_on))
         self.colorbar.setColorMap(colormaps.colormap(cmap))
         self.colorbar.setLevels(self._levels)
-        if colour_title:
-            set_colorbar_title(self.colorbar, colour_title)
+        if colour_title[0]:
+            set_colorbar_title(self.colorbar, colour_title[0], colour_title[1],
+                               top=max(abs(self._levels[0]), abs(self._levels[1])))
         for k, ((a, b), normal) in enumerate(_PLANES):
             set_titles = self.plots[k].getPlotItem().setLabel
             set_titles("bottom", axis_title(_NAMES[a], length_unit), color="#222222")

@@ -17,7 +17,7 @@ from core.errors import WellscapeError
 
 from . import colormaps
 from .common import (HintStack, axis_title, colorbar, density_unit, fmt, fmt_energy, image_rect, make_plot,
-                     pretty_unit, set_colorbar_title, set_titles, show_message, status_label)
+                     pretty_unit, set_colorbar_title, set_titles, show_message, status_label, wave_unit)
 from .isosurface import IsosurfaceWidget, Surface, level_enclosing
 from .slices import SliceTriptych
 
@@ -31,13 +31,6 @@ MODES = ("density", "wavefunction")
 REGIONS = ("none", "rectangle", "polygon")
 _REGION_PEN = pg.mkPen(colormaps.ACCENT, width=2)
 _NODAL_PEN = pg.mkPen("#111111", width=1.5, style=QtCore.Qt.PenStyle.DashLine)
-
-
-def _wave_unit(length_unit: str, ndim: int) -> str:
-    u = pretty_unit(length_unit)
-    if not u:
-        return ""
-    return {1: f"1/√{u}", 2: f"1/{u}", 3: f"1/{u}^(3/2)"}[ndim]
 
 
 def _qimage(rgba_xy: np.ndarray) -> QtGui.QImage:
@@ -368,7 +361,7 @@ class StatesView(QtWidgets.QWidget):
         mode = self.display_mode
         complex_ = np.iscomplexobj(psi) and float(np.abs(psi.imag).max()) > 0.0
         rho_unit = density_unit(u.length_unit, grid.ndim)
-        psi_unit = _wave_unit(u.length_unit, grid.ndim)
+        psi_unit = wave_unit(u.length_unit, grid.ndim)
         what = axis_title("|ψ|²", rho_unit) if mode == "density" else \
             (axis_title("ψ", psi_unit) if not complex_ else "ψ (phase as colour, |ψ| as brightness)")
         self.large_title.setText(f"State {i}  ·  E = {fmt_energy(result.energies[i], u.energy_unit, 7)}"
@@ -401,7 +394,7 @@ class StatesView(QtWidgets.QWidget):
             top = float(data.max()) or 1.0
             self.image.setImage(data, levels=(0.0, top), lut=colormaps.lookup_table(colormaps.DENSITY),
                                 autoLevels=False)
-            self._colorbar(colormaps.DENSITY, (0.0, top), axis_title("|ψ|²", rho_unit))
+            self._colorbar(colormaps.DENSITY, (0.0, top), "|ψ|²", rho_unit)
             self.nodal.setVisible(False)
             return ""
         if complex_:
@@ -412,16 +405,16 @@ class StatesView(QtWidgets.QWidget):
                     "A point where all colours meet is a vortex.")
         m = float(np.abs(psi).max()) or 1.0
         self.image.setImage(psi, levels=(-m, m), lut=colormaps.lookup_table(colormaps.SIGNED), autoLevels=False)
-        self._colorbar(colormaps.SIGNED, (-m, m), axis_title("ψ", psi_unit))
+        self._colorbar(colormaps.SIGNED, (-m, m), "ψ", psi_unit)
         self.nodal.setData(psi, 0.0)
         self.nodal.setVisible(True)
         return "Dashed lines: nodal lines (ψ = 0). The overall sign of a real state is arbitrary."
 
-    def _colorbar(self, cmap: str, levels, title: str) -> None:
+    def _colorbar(self, cmap: str, levels, name: str, unit: str) -> None:
         self.colorbar.setVisible(True)
         self.colorbar.setColorMap(colormaps.colormap(cmap))
         self.colorbar.setLevels(levels)
-        set_colorbar_title(self.colorbar, title)
+        set_colorbar_title(self.colorbar, name, unit, top=max(abs(levels[0]), abs(levels[1])))
 
     def _show_3d(self, psi, mode, complex_, rho_unit, psi_unit) -> str:
         result = self.result
@@ -433,18 +426,18 @@ class StatesView(QtWidgets.QWidget):
         keep = self.slices._volume is not None and self.slices._grid == grid
         if mode == "density":
             self.slices.set_volume(grid, rho, cmap=colormaps.DENSITY, levels=(0.0, float(rho.max()) or 1.0),
-                                   length_unit=u.length_unit, colour_title=axis_title("|ψ|²", rho_unit),
+                                   length_unit=u.length_unit, colour_title=("|ψ|²", rho_unit),
                                    keep_planes=keep)
             colour = colormaps.colormap(colormaps.DENSITY).map(0.55, mode="float")
             surfaces = [Surface(rho, level, (*colour[:3], 0.75),
-                                f"surface |ψ|² = {fmt(level, 3)} {rho_unit} holds {self.fraction.value()} % "
+                                f"surface |ψ|² = {fmt(level, 3)} {rho_unit}: it holds {self.fraction.value()} % "
                                 "of the probability")]
             legend = ""
         else:
             data = psi.real
             m = float(np.abs(data).max()) or 1.0
             self.slices.set_volume(grid, data, cmap=colormaps.SIGNED, levels=(-m, m), length_unit=u.length_unit,
-                                   colour_title=axis_title("Re ψ" if complex_ else "ψ", psi_unit), keep_planes=keep)
+                                   colour_title=("Re ψ" if complex_ else "ψ", psi_unit), keep_planes=keep)
             c = float(np.sqrt(level))
             lo_col = colormaps.colormap(colormaps.SIGNED).map(0.05, mode="float")
             hi_col = colormaps.colormap(colormaps.SIGNED).map(0.95, mode="float")
