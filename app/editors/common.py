@@ -53,7 +53,7 @@ class MessageLabel(QLabel):
 
     @property
     def is_error(self) -> bool:
-        return self.isVisible() and self.styleSheet() == ERROR_STYLE
+        return not self.isHidden() and bool(self.text()) and self.styleSheet() == ERROR_STYLE
 
 
 def hline() -> QFrame:
@@ -111,7 +111,8 @@ class ValueField(QLineEdit):
     def set_value(self, value) -> None:
         self._shown = value
         self.setText(fmt(value) if value is not None else "")
-        self._set_error(None)
+        if self.error:
+            self._set_error(None)
 
     def value(self):
         """The current valid value (float, formula text, or None when empty and allowed); raises if invalid."""
@@ -141,13 +142,14 @@ class ValueField(QLineEdit):
         return True
 
     def _set_error(self, message: Optional[str]) -> None:
+        had = self.error
         self.error = message
         self.setStyleSheet(FIELD_ERROR_STYLE if message else "")
         self.setToolTip(message or "")
         if self.message is not None:
             if message:
                 self.message.show_error(message)
-            else:
+            elif had and self.message.text() == had:       # clear only this field's own message
                 self.message.clear_message()
 
     def _finish(self) -> None:
