@@ -125,6 +125,11 @@ def cmd_solve(args) -> int:
                           "converged": spec.converged, "multiplet_cut": spec.multiplet_cut,
                           "method": spec.method, "notes": list(spec.notes)},
                "wellscape_version": __version__}
+        if project.spin:
+            from core.study import spin_levels
+            sl = spin_levels(result)
+            doc["spin_levels"] = {"energies": sl.energies.tolist(), "orbital": sl.orbital.tolist(),
+                                  "spin": sl.spin.tolist(), "zeeman_splitting": sl.zeeman}
         print(json.dumps(_jsonable(doc), indent=1))
         return 0
     print(f"{project.title}")
@@ -134,6 +139,10 @@ def cmd_solve(args) -> int:
           f"{spec.degeneracy_tolerance:.2g} {u.energy_unit}")
     print()
     print(format_level_table(result))
+    if project.spin:
+        from core.report import format_spin_table
+        print()
+        print(format_spin_table(result))
     for note in spec.notes:
         print(f"note: {note}")
     if spec.multiplet_cut:
@@ -236,11 +245,14 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("project")
     s.set_defaults(func=cmd_check)
 
-    try:
-        from app.sweep_cli import add_sweep_parser
-        add_sweep_parser(sub)
-    except ImportError:
-        pass
+    from app.sweep_cli import add_sweep_parser
+    add_sweep_parser(sub)
+    for module, name in (("app.converge_cli", "add_converge_parser"), ("app.figure_cli", "add_figure_parser")):
+        try:
+            adder = getattr(__import__(module, fromlist=[name]), name)
+        except (ImportError, AttributeError):
+            continue
+        adder(sub)
 
     s = sub.add_parser("open", help="open a project in the desktop window")
     s.add_argument("project", nargs="?")

@@ -66,6 +66,19 @@ def _groups(energies, tol):
     return group_levels(energies, tol)
 
 
+def format_spin_table(result: StudyResult) -> str:
+    """Spin-resolved levels (Zeeman-split orbital levels) as plain text."""
+    from .study import spin_levels
+    sl = spin_levels(result)
+    u = result.units
+    e0 = sl.energies[0]
+    lines = [f"spin-resolved levels: Zeeman splitting g*mu_B*|B| = {sl.zeeman:.6g} {u.energy_unit}",
+             f"{'level':>6}  {'orbital':>7}  {'spin':>5}  {'E [' + u.energy_unit + ']':>14}  {'E-E0 [' + u.energy_unit + ']':>14}"]
+    for i, (e, o, s) in enumerate(zip(sl.energies, sl.orbital, sl.spin)):
+        lines.append(f"{i:>6}  {o:>7}  {'+1/2' if s > 0 else '-1/2':>5}  {e:>14.6f}  {e - e0:>14.6f}")
+    return "\n".join(lines)
+
+
 def format_level_table(result: StudyResult, *, tolerance: Optional[float] = None) -> str:
     """Plain-text table of the multiplets (energy unit and length unit in the header)."""
     u = result.units

@@ -13,9 +13,10 @@ from .potentials import evaluate_potential, magnetic_field, project_g_factor, pr
 from .project import Project
 from .resources import check_memory
 from .solve import choose_scheme
+from .errors import InputError
 from .units import get_units
 
-__all__ = ["StudyResult", "solve_project", "project_hamiltonian"]
+__all__ = ["StudyResult", "solve_project", "project_hamiltonian", "SpinLevels", "spin_levels"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -88,3 +89,37 @@ def solve_project(project: Project, *, parameters: Optional[Mapping[str, float]]
     return StudyResult(project=project, parameters=params, grid=grid, potential=v, spectrum=spec,
                        masses=project_masses(project, params), scheme=scheme, scheme_reason=reason,
                        magnetic_field=tuple(h.magnetic_field), g_factor=project_g_factor(project, params))
+
+
+@dataclass(frozen=True, eq=False)
+class SpinLevels:
+    """Orbital levels doubled by spin with the Zeeman term g* mu_B B S_B (no spin-orbit coupling).
+
+    ``spin`` is the projection (+1/2 or -1/2, in units of hbar) on the field direction (on z when B = 0).
+    """
+
+    energies: np.ndarray       # (2K,) ascending, energy unit
+    orbital: np.ndarray        # (2K,) index of the orbital level
+    spin: np.ndarray           # (2K,) +0.5 or -0.5
+    zeeman: float              # g* mu_B |B|, the splitting of each orbital level, energy unit
+
+
+def spin_levels(result: "StudyResult") -> SpinLevels:
+    """Spin-resolved levels E = E_orbital + g* mu_B |B| s, s = +-1/2.
+
+    The Zeeman energy g* mu_B B . sigma / 2 commutes with the orbital Hamiltonian when there is no
+    spin-orbit coupling, so each orbital level splits into two with spin along +-B.
+    """
+    g = result.g_factor
+    if g is None:
+        raise InputError("the material has no g-factor; give material.g_factor in the project to include spin")
+    b = float(np.linalg.norm(result.magnetic_field))
+    u = get_units(result.project.units)
+    ez = g * u.bohr_magneton() * b
+    e = result.spectrum.energies
+    k = e.size
+    energies = np.concatenate([e + 0.5 * ez, e - 0.5 * ez])
+    orbital = np.concatenate([np.arange(k), np.arange(k)])
+    spin = np.concatenate([np.full(k, 0.5), np.full(k, -0.5)])
+    order = np.lexsort((-spin, energies))
+    return SpinLevels(energies=energies[order], orbital=orbital[order], spin=spin[order], zeeman=float(abs(ez)))

@@ -28,6 +28,7 @@ import json
 import math
 import os
 import time
+import warnings
 from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -172,6 +173,9 @@ def _observables(result) -> dict:
     out = {name: pos[:, a] for a, name in enumerate("xyz"[: g.ndim])}
     if g.ndim >= 2:
         out["lz"] = angular_momentum_z(g, st)
+    inv = _inversion_parity(g, st, result.potential)
+    if inv is not None:
+        out["parity_inversion"] = inv
     try:
         par = mirror_parity(g, st, result.potential)
         for a in "xyz"[: g.ndim]:
@@ -180,6 +184,40 @@ def _observables(result) -> dict:
     except WellscapeError:
         pass
     return out
+
+
+def _inversion_parity(grid, states, potential, rtol=1e-9):
+    """Parity under r -> -r about the grid centre (a rotation by pi in 2D), when the grid and the
+    potential have that symmetry; it survives a perpendicular magnetic field, unlike single mirrors.
+    Returns +1/-1 per state (0 when mixed), or None when the symmetry is absent."""
+    flip = (slice(None, None, -1),) * grid.ndim
+    for ax in grid.axes:
+        if not np.allclose(ax - ax.mean(), -(ax[::-1] - ax.mean()), atol=1e-9 * np.ptp(ax)):
+            return None
+    v = np.asarray(potential)
+    if not np.allclose(v, v[flip], rtol=rtol, atol=rtol * max(np.abs(v).max(), 1e-300)):
+        return None
+    flat = states.reshape(len(states), -1)
+    mirrored = states[(slice(None),) + flip].reshape(len(states), -1)
+    val = np.real(np.sum(np.conj(flat) * mirrored, axis=1)) / np.maximum(np.sum(np.abs(flat) ** 2, axis=1), 1e-300)
+    return np.where(val > 0.99, 1.0, np.where(val < -0.99, -1.0, 0.0))
+
+
+def _point_data(result, k: int):
+    """(energies, observables, states) of one solve; spin-resolved (2k levels) when the project asks."""
+    obs = {n: a[:k] for n, a in _observables(result).items()}
+    e = result.energies[:k].copy()
+    st = result.spectrum.states[:k]
+    if result.project.spin:
+        from .study import spin_levels
+        sl = spin_levels(result)
+        keep = sl.orbital < k
+        orb = sl.orbital[keep]
+        e = sl.energies[keep]
+        obs = {n: a[orb] for n, a in obs.items()}
+        obs["spin"] = sl.spin[keep]
+        st = st[orb]
+    return e, obs, st.copy()
 
 
 def _solve_chunk(project_dict: dict, base_dir, pname: str, values: list, k: int, keep_states: bool,
@@ -202,13 +240,10 @@ def _solve_chunk(project_dict: dict, base_dir, pname: str, values: list, k: int,
             raise type(exc)(f"at {pname} = {v:.6g}: {exc}") from None
         if r.energies.size < k:
             raise InputError(f"at {pname} = {v:.6g}: only {r.energies.size} states were found")
-        energies.append(r.energies[:k].copy())
-        o = _observables(r)
-        obs.append({n: a[:k] for n, a in o.items()})
-        if keep_states or i == 0 or i == len(values) - 1:
-            states.append(r.spectrum.states[:k].copy())
-        else:
-            states.append(None)
+        e, o, st = _point_data(r, k)
+        energies.append(e)
+        obs.append(o)
+        states.append(st)
         prev = r
     return energies, obs, states
 
@@ -226,8 +261,8 @@ def _iter_local(project, pname, values, k, keep_states, progress, should_stop):
             raise type(exc)(f"at {pname} = {v:.6g}: {exc}") from None
         if r.energies.size < k:
             raise InputError(f"at {pname} = {v:.6g}: only {r.energies.size} states were found")
-        o = _observables(r)
-        yield i, r.energies[:k].copy(), {n: a[:k] for n, a in o.items()}, r.spectrum.states[:k].copy()
+        e, o, st = _point_data(r, k)
+        yield i, e, o, st
         prev = r
         if progress is not None:
             progress("sweep", (i + 1) / len(values))
@@ -271,13 +306,17 @@ def find_close_approaches(values, track_e, labels=None, *, relative=0.3) -> list
     for a in range(t_count):
         for b in range(a + 1, t_count):
             d = track_e[b] - track_e[a]
-            sign_change = np.nonzero(np.sign(d[:-1]) * np.sign(d[1:]) < 0)[0]
             ad = np.abs(d)
-            for i in sign_change:
-                j = i if ad[i] <= ad[i + 1] else i + 1
-                differ = labels is not None and np.any(labels[a, j] != labels[b, j])
+            tiny = 1e-9 * max(float(np.abs(track_e).max()), 1e-300)
+            nz = np.nonzero(ad > tiny)[0]            # skip points where the two are exactly degenerate
+            sign_change = [(nz[q], nz[q + 1]) for q in range(nz.size - 1) if d[nz[q]] * d[nz[q + 1]] < 0]
+            for i, i2 in sign_change:
+                j = int(np.argmin(ad[i:i2 + 1])) + i
+                # compare labels away from the degeneracy, where the states have a definite symmetry
+                differ = labels is not None and (np.any(labels[a, i] != labels[b, i])
+                                                 or np.any(labels[a, i2] != labels[b, i2]))
                 # interpolate the crossing point linearly
-                x0 = values[i] - d[i] * (values[i + 1] - values[i]) / (d[i + 1] - d[i])
+                x0 = values[i] - d[i] * (values[i2] - values[i]) / (d[i2] - d[i])
                 if differ or labels is None:
                     found.append(Anticrossing(at=float(x0), gap=0.0, tracks=(a, b), kind="crossing", index=int(j),
                                               sampled_gap=float(ad[j]),
@@ -308,7 +347,9 @@ def find_close_approaches(values, track_e, labels=None, *, relative=0.3) -> list
                 if xs.size >= 4:
                     slope0 = (ys.max() - ys.min()) / max(abs(xs[-1] - xs[0]) / 2, 1e-300)
                     try:
-                        popt, _ = curve_fit(_two_level, xs, ys, p0=[values[j], slope0, gap], maxfev=4000)
+                        with warnings.catch_warnings():
+                            warnings.simplefilter("ignore")
+                            popt, _ = curve_fit(_two_level, xs, ys, p0=[values[j], slope0, gap], maxfev=4000)
                         resid = ys - _two_level(xs, *popt)
                         if abs(popt[2]) <= 1.5 * gap + 1e-300 and xs.min() <= popt[0] <= xs.max():
                             fit = {"centre": float(popt[0]), "gap": float(abs(popt[2])), "slope": float(abs(popt[1])),
@@ -319,19 +360,54 @@ def find_close_approaches(values, track_e, labels=None, *, relative=0.3) -> list
                 found.append(Anticrossing(at=float(fit.get("centre", values[j])), gap=gap, tracks=(a, b),
                                           kind="anticrossing", index=int(j), sampled_gap=float(ad[j]), fit=fit,
                                           reason="the levels approach and turn back"))
+    span = float(np.ptp(values)) if values.size else 0.0
+    found = [replace(c, at=0.0) if abs(c.at) < 1e-9 * span else c for c in found]
     found.sort(key=lambda c: c.at)
     return found
 
 
+def _align_degenerate(states_list, energies, dv, spin=None, rel=1e-7):
+    """Within each degenerate multiplet at a point, rotate the basis to best match the previous point's
+    states (polar decomposition of the overlap block), so tracking is not confused by an arbitrary basis."""
+    out = list(states_list)
+    for p in range(1, len(out)):
+        e = energies[p]
+        scale = max(float(np.abs(e).max()), float(e[-1] - e[0]), 1e-300)
+        groups, cur = [], [0]
+        for i in range(1, e.size):
+            same_spin = spin is None or spin[p][i] == spin[p][cur[-1]]
+            if e[i] - e[cur[-1]] <= rel * scale and same_spin:
+                cur.append(i)
+            else:
+                groups.append(cur)
+                cur = [i]
+        groups.append(cur)
+        if all(len(g) == 1 for g in groups):
+            continue
+        cur_states = out[p].copy()
+        prev = out[p - 1].reshape(len(out[p - 1]), -1)
+        for g in groups:
+            if len(g) == 1:
+                continue
+            block = cur_states[g].reshape(len(g), -1)
+            c = (np.conj(prev) @ block.T) * dv                 # <prev_i | cur_g>
+            best = np.argsort(-np.sum(np.abs(c) ** 2, axis=1))[: len(g)]
+            u, _, vh = np.linalg.svd(c[best].T)                # polar factor of the |G| x |G| block
+            rot = u @ vh                                        # columns: combination for each prev state
+            cur_states[g] = (rot.T @ block).reshape((len(g),) + out[p].shape[1:])
+        out[p] = cur_states
+    return out
+
+
 def _labels_from_observables(obs: dict, tracks: np.ndarray) -> Optional[np.ndarray]:
-    keys = [k for k in sorted(obs) if k.startswith("parity_")]
+    keys = [k for k in sorted(obs) if k.startswith("parity_") or k == "spin"]
     if not keys:
         return None
     p = np.arange(tracks.shape[1])
     codes = np.zeros(tracks.shape, dtype=np.int64)
     for n, key in enumerate(keys):
         vals = np.stack([obs[key][p, t] for t in tracks])
-        codes += (np.round(vals).astype(np.int64) + 1) * (3 ** n)
+        codes += (np.round(2 * vals).astype(np.int64) + 2) * (5 ** n)
     return codes
 
 
@@ -341,12 +417,16 @@ def _assemble(project, target, values, energies, obs_list, states_list, keep_sta
     e = np.array(energies)
     obs = {name: np.array([o[name] for o in obs_list]) for name in (obs_list[0] if obs_list else {})}
     grid = project.grid
+    states_list = _align_degenerate(states_list, e, grid.volume_element,
+                                    obs.get("spin") if "spin" in obs else None)
     overlaps = []
     for i in range(p - 1):
         a, b = states_list[i], states_list[i + 1]
         if a is None or b is None:
             raise InputError("internal: states missing for tracking")
         ov = np.abs(np.conj(a.reshape(len(a), -1)) @ b.reshape(len(b), -1).T) ** 2 * grid.volume_element**2
+        if "spin" in obs:                               # spinor overlap: orbital overlap times same spin
+            ov = ov * (obs["spin"][i][:, None] == obs["spin"][i + 1][None, :])
         overlaps.append(ov)
     tracks = track_levels(overlaps) if p > 1 else np.arange(e.shape[1])[:, None]
     labels = _labels_from_observables(obs, tracks) if p > 1 else None
@@ -432,8 +512,6 @@ def run_sweep(project: Project, parameter: str, values, *, states: Optional[int]
     # tracking across chunks needs the states at chunk edges; interior points of a chunk without
     # kept states are tracked within the chunk by re-solving neighbours is not needed: every point
     # keeps its states when tracking across the whole sweep, so ask for them when not kept
-    if any(s is None for s in sts):
-        sts = _fill_states_for_tracking(prepared, pname, vals, k, sts)
     return _assemble(prepared, parameter, vals, energies, obs, sts, keep_states, t0, True)
 
 

@@ -86,3 +86,22 @@ def test_command_line_does_not_import_qt():
             "sys.exit(1 if bad else 0)") % str(SAMPLE)
     proc = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, timeout=120)
     assert proc.returncode == 0, proc.stderr
+
+
+def test_sweep_command_json_and_table(capsys, tmp_path):
+    """`wellscape sweep` prints the documented JSON and writes sweep.npz/csv."""
+    double = ROOT / "sample_projects" / "atom_tilted_double_well.json"
+    code, out, err = run(capsys, "sweep", str(double), "--vary", "tilt", "--from", "-0.02", "--to", "0.02",
+                         "--steps", "5", "--states", "2", "--json", "--out", str(tmp_path))
+    assert code == 0, err
+    doc = json.loads(out)
+    assert set(doc) >= {"parameter", "values", "energies", "tracks", "anticrossings"}
+    assert doc["parameter"] == "tilt" and len(doc["values"]) == 5
+    assert any(a["levels"] == [0, 1] for a in doc["anticrossings"])
+    assert (tmp_path / "sweep.npz").exists() and (tmp_path / "sweep.csv").exists()
+    code, out, err = run(capsys, "sweep", str(double), "--vary", "tilt", "--from", "-0.02", "--to", "0.02",
+                         "--steps", "5", "--states", "2")
+    assert code == 0 and "anticrossings (1)" in out and "h*kHz" in out
+    code, out, err = run(capsys, "sweep", str(double), "--vary", "tilt", "--from", "0", "--to", "1",
+                         "--steps", "0")
+    assert code == 2 and "steps" in err
