@@ -273,7 +273,6 @@ class MainWindow(QMainWindow):
         s = self.session
         name = s.path.name if s.path else "untitled"
         self.setWindowTitle(f"{name}{'*' if s.dirty else ''} - {s.project.title} - Wellscape")
-        self.setWindowModified(s.dirty)
 
     # -- files ------------------------------------------------------------------------------------------
     def _may_discard(self) -> bool:
@@ -423,7 +422,7 @@ class MainWindow(QMainWindow):
         self.strip.show_message(f"Solve failed: {message}.{keep}", "error")
 
     def _on_cancelled(self) -> None:
-        if self.session.solving:     # replaced by a newer request: not worth a message
+        if self.session.solve_queued:     # replaced by a newer request: not worth a message
             return
         keep = " The previous results are still shown." if self.session.result is not None else ""
         self.strip.show_message(f"Solve cancelled.{keep}", "warn")

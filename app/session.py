@@ -312,6 +312,11 @@ class Session(QObject):
         return self._solve_job is not None
 
     @property
+    def solve_queued(self) -> bool:
+        """True when a newer solve request waits for the running one to end."""
+        return self._pending_mode is not None
+
+    @property
     def sweeping(self) -> bool:
         return self._sweep_job is not None
 
