@@ -173,6 +173,8 @@ class LevelsView(QtWidgets.QWidget):
         session.solved.connect(self._on_solved)
         session.selection_changed.connect(self._on_selection_changed)
         session.project_changed.connect(self._on_project_changed)
+        if hasattr(session, "degeneracy_changed"):
+            session.degeneracy_changed.connect(self._on_degeneracy_changed)
         if getattr(session, "result", None) is not None:
             self._on_solved(session.result)
 
@@ -214,7 +216,14 @@ class LevelsView(QtWidgets.QWidget):
 
     def set_tolerance(self, value: Optional[float]) -> None:
         """Set the session's degeneracy tolerance (None: the solver's) and regroup."""
-        self.session.degeneracy_tolerance = None if value is None else float(value)
+        try:
+            self.session.degeneracy_tolerance = None if value is None else float(value)
+        except WellscapeError as exc:
+            self.info.setText(f"Tolerance not changed: {exc}")
+        if not hasattr(self.session, "degeneracy_changed"):
+            self._on_degeneracy_changed()
+
+    def _on_degeneracy_changed(self) -> None:
         self._sync_tolerance_box()
         if self.result is not None:
             self._regroup()

@@ -131,8 +131,10 @@ class PotentialView(QtWidgets.QWidget):
 
         for name, slot in (("project_changed", self._on_project_changed),
                            ("potential_changed", self._on_potential_changed),
-                           ("solved", self._on_solved)):
-            getattr(session, name).connect(slot)
+                           ("solved", self._on_solved),
+                           ("degeneracy_changed", self._update_levels)):
+            if hasattr(session, name):
+                getattr(session, name).connect(slot)
         self._on_project_changed()
 
     # -- session signals ------------------------------------------------------------------------

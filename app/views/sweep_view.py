@@ -104,9 +104,16 @@ class SweepView(QtWidgets.QWidget):
 
         session.project_changed.connect(self._on_project_changed)
         session.sweep_finished.connect(self._on_sweep_finished)
-        session.progressed.connect(self._on_progressed)
-        session.failed.connect(self._on_failed)
-        session.cancelled.connect(self._on_cancelled)
+        if hasattr(session, "sweep_failed"):
+            # sweep-specific signals: a solve's progress or failure never touches the sweep form
+            session.sweep_progressed.connect(lambda f: self._on_progressed("sweep", f))
+            session.sweep_failed.connect(self._on_sweep_failed)
+        else:
+            session.progressed.connect(self._on_progressed)
+            session.failed.connect(self._on_failed)
+            session.cancelled.connect(self._on_cancelled)
+        if hasattr(session, "busy_changed"):
+            session.busy_changed.connect(self._on_busy_changed)
         session.solved.connect(self._on_solved)
         if hasattr(session, "parameters_changed"):
             session.parameters_changed.connect(self._update_marker)
@@ -181,10 +188,13 @@ class SweepView(QtWidgets.QWidget):
         self._set_running(True)
         show_message(self.status, f"Sweeping {name} over {values.size} values…")
         try:
-            self.session.run_sweep(name, values, states=self.states.value())
+            accepted = self.session.run_sweep(name, values, states=self.states.value())
         except Exception as exc:  # noqa: BLE001 - shown in the window, never as a traceback
             self._set_running(False)
             show_message(self.status, f"The sweep could not start: {exc}", error=True)
+            return
+        if accepted is False and self._running:      # refused at once; the reason came via sweep_failed
+            self._set_running(False)
 
     def _on_cancel(self) -> None:
         self.session.cancel_sweep()
@@ -206,6 +216,18 @@ class SweepView(QtWidgets.QWidget):
         f = min(max(float(fraction), 0.0), 1.0)
         self.progress.setValue(int(round(1000 * f)))
         self.progress_text.setText(f"{stage} {100 * f:.0f} %")
+
+    def _on_sweep_failed(self, message: str) -> None:
+        if "cancel" in str(message).lower():
+            self._on_cancelled()
+        else:
+            self._on_failed(message)
+
+    def _on_busy_changed(self, busy: bool) -> None:
+        """The session stopped its work without a result for us (e.g. the project changed meanwhile)."""
+        if not busy and self._running and not getattr(self.session, "sweeping", False):
+            self._set_running(False)
+            show_message(self.status, "The sweep stopped before it finished (the project changed?).")
 
     def _on_failed(self, message: str) -> None:
         if self._running:
@@ -332,6 +354,8 @@ class SweepView(QtWidgets.QWidget):
         show_message(self.status, f"Solving at {sweep.parameter} = {fmt(x[p], 6)}; the states view will show "
                      f"level {level} (track {track}).")
         self.session.set_parameter(sweep.parameter, float(x[p]))
+        if getattr(self.session, "result", None) is None and hasattr(self.session, "solve"):
+            self.session.solve()          # set_parameter re-solves only when a result is on show
         self.point_opened.emit(float(x[p]), level)
         return level
 

@@ -516,3 +516,36 @@ def test_render_views_to_png(qtbot, tmp_path, r2e, r3):
             img = view.grab().toImage()
             colours = {img.pixel(x, y) for x in range(0, img.width(), 5) for y in range(0, img.height(), 5)}
             assert len(colours) > 20, f"{path.name} looks blank"
+
+
+# --- with the application's own Session (worker threads, undo) -----------------------------------
+
+def test_views_follow_a_real_session_through_solve_and_sweep(qtbot, session):
+    """The views over app.session.Session: a solve through its worker repaints levels and states, a
+    sweep through its worker draws one fan curve per track, a gate-free project shows no gates."""
+    project = dataclasses.replace(_elliptical_dot(), grid=_elliptical_dot().grid.with_points([24, 24]),
+                                  solver=dataclasses.replace(_elliptical_dot().solver, states=4))
+    session.set_project(project, "smaller grid for the test")
+    views = [PotentialView(session), LevelsView(session), StatesView(session), SweepView(session)]
+    for v in views:
+        qtbot.addWidget(v)
+    pot, lev, sta, swe = views
+    assert lev.stack.showing_hint and not pot.stack.showing_hint
+    np.testing.assert_array_equal(pot.image.image, session.potential)
+    with qtbot.waitSignal(session.solved, timeout=60000):
+        session.solve()
+    assert not lev.stack.showing_hint and len(sta.tiles) == len(session.result.energies)
+    lev._on_level_clicked(2)
+    assert session.selected_state == 2 and sta.tiles[2].selected
+    lev.set_tolerance(1.0)                                  # 1 meV merges the split second shell
+    assert session.degeneracy_tolerance == 1.0 and [len(g) for g in lev.groups][:2] == [1, 2]
+    swe.parameter.setCurrentText("ell")
+    swe.steps.setValue(4)
+    swe.states.setValue(3)
+    with qtbot.waitSignal(session.sweep_finished, timeout=120000):
+        swe.run_button.click()
+    assert not swe.stack.showing_hint and swe.run_button.isEnabled()
+    assert len(swe.curves) == session.sweep_result.track_energies().shape[0]
+    for t, curve in enumerate(swe.curves):
+        np.testing.assert_array_equal(curve.getData()[1], session.sweep_result.track_energies()[t])
+    qtbot.waitUntil(lambda: not getattr(session, "sweeping", False), timeout=10000)
