@@ -131,7 +131,7 @@ class MainWindow(QMainWindow):
 
         from .editors import ProjectEditors
         self.editors = ProjectEditors(self.session)
-        self.editors.setMinimumWidth(340)
+        self.editors.setMinimumWidth(360)
         self.tabs = QTabWidget()
         self.tabs.setDocumentMode(True)
         self.views: dict = {}
@@ -145,7 +145,7 @@ class MainWindow(QMainWindow):
         splitter.addWidget(self.tabs)
         splitter.setStretchFactor(0, 0)
         splitter.setStretchFactor(1, 1)
-        splitter.setSizes([380, 1000])
+        splitter.setSizes([400, 1040])
         splitter.setChildrenCollapsible(False)
         self.splitter = splitter
 

@@ -67,7 +67,9 @@ class GridPanel(QWidget):
             for c, w in enumerate((label, lo, hi, pts, bnd)):
                 self.table.addWidget(w, a + 1, c)
             self.rows.append((label, lo, hi, pts, bnd))
+        self.unit_label.setWordWrap(True)
         self.spacing = QLabel()
+        self.spacing.setWordWrap(True)
         self.estimate = QLabel()
         self.estimate.setWordWrap(True)
         self.finer = QPushButton("Finer x2")

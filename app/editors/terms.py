@@ -178,6 +178,7 @@ class TermsPanel(QWidget):
         for w in (self.nothing, self.formula, self.gates, self.map, self.field_note):
             self.detail.addWidget(w)
         self.detail_title = QLabel()
+        self.detail_title.setWordWrap(True)
 
         lay = QVBoxLayout(self)
         lay.addWidget(self.tree)
