@@ -208,15 +208,13 @@ def _power_label(name: str, unit: str, power: str) -> str:
 
 
 def _nice_length(span: float) -> float:
-    """A round length (1, 2 or 5 times a power of ten) near a quarter of ``span``."""
+    """The round length (1, 2 or 5 times a power of ten) nearest to a quarter of ``span``."""
     target = span / 4.0
     if not target > 0:
         return 0.0
     exp = math.floor(math.log10(target))
-    for m in (5.0, 2.0, 1.0):
-        if m * 10**exp <= target:
-            return m * 10**exp
-    return 10**exp
+    options = [m * 10.0 ** e for e in (exp, exp + 1) for m in (1.0, 2.0, 5.0)]
+    return min(options, key=lambda v: abs(math.log(v / target)))
 
 
 def _fmt_len(value: float) -> str:
@@ -528,8 +526,9 @@ def _state_panels(result, levels: Sequence[int], mode: str, three_d: str, crop: 
     except Exception:  # noqa: BLE001 - parity is a label, never a reason to fail a figure
         par = [dict() for _ in levels]
     group_of = {i: tuple(g) for g in result.groups for i in g}
-    shown = sorted({i for lv in levels for i in group_of.get(lv, (lv,))})
-    dec = _decimals(energies[shown] if len(shown) > 1 else energies)
+    means = {g: float(np.mean(energies[list(g)])) for g in {group_of.get(lv, (lv,)) for lv in levels}}
+    dec = _decimals(np.array(sorted(means.values())) if len(means) > 1
+                    else np.array([float(np.mean(energies[list(g)])) for g in result.groups]))
     raw = [_state_arrays(result, lv, mode, three_d) for lv in levels]
     window = None
     if grid.ndim >= 2 and crop:
@@ -566,7 +565,8 @@ def _levels_panel(result, highlight: Sequence[int]) -> dict:
     u = result.units
     e = np.asarray(result.energies, dtype=float)
     return {"kind": "levels", "title": "Levels", "energies": e, "groups": [list(g) for g in result.groups],
-            "highlight": [int(i) for i in highlight], "decimals": _decimals(e, ignore_below=0.01),
+            "highlight": [int(i) for i in highlight],
+            "decimals": _decimals(np.array([float(np.mean(e[list(g)])) for g in result.groups]), ignore_below=0.01),
             "y_label": _label("E", u.energy_unit), "energy_unit": _pretty_unit(u.energy_unit)}
 
 
@@ -1284,6 +1284,11 @@ def _fit_row_heights(fig, gs, axes: list, cells: list, panels: Sequence[dict], r
     return height
 
 
+def _layout(fig) -> None:
+    """Run the layout engine (constrained layout) without drawing the artists."""
+    fig.get_layout_engine().execute(fig)
+
+
 def _figure_in_context(sheet: Sheet, t: Template, columns: Optional[int]):
     from matplotlib.figure import Figure
     panels = sheet.panels
@@ -1321,13 +1326,13 @@ def _figure_in_context(sheet: Sheet, t: Template, columns: Optional[int]):
         if not ylab:
             ax.set_ylabel("")
             ax.tick_params(labelleft=False)
-    fig.draw_without_rendering()
+    _layout(fig)
     _fit_colorbar_labels(fig, axes, t)
     if cols is None and t.height_in is None:
         # second pass for a plain grid of free height: each row as tall as its tallest map needs
         height = _fit_row_heights(fig, gs, axes, cells, panels, rows, cap_h + title_h, pad_h)
         set_rect(height)
-        fig.draw_without_rendering()
+        _layout(fig)
         _fit_colorbar_labels(fig, axes, t)
     if cols is not None:
         # second pass: measure what the decorations really take and size the columns again
@@ -1344,13 +1349,15 @@ def _figure_in_context(sheet: Sheet, t: Template, columns: Optional[int]):
     fig.text(0.008, cap_h / height - 0.2 * t.caption_pt / 72.0 / height, "\n".join(caption), ha="left", va="top",
              fontsize=t.caption_pt, color="0.2", linespacing=1.25)
     if cols is not None:
-        fig.draw_without_rendering()
+        _layout(fig)
         _fit_colorbar_labels(fig, axes, t)
     for ax, p in zip(axes, panels):
         if p["kind"] == "levels":
             _draw_levels(fig, ax, p, t)
         elif p["kind"] == "potential":
             _label_gates(fig, ax, p, t)
+    # the layout is final: keep it as it is when the file is written (saves a layout pass)
+    fig.set_layout_engine("none")
     fig._wellscape_panels = axes  # noqa: SLF001 - handy for callers that inspect the drawing
     return fig
 
@@ -1644,9 +1651,12 @@ def _read_panel(r: _Reader, raw, path: str) -> dict:
             r.fail(path, f"a {kind} panel needs {key!r}")
         return d[key]
 
-    for key in ("x_label", "y_label", "value_label", "length_unit", "energy_unit", "parameter"):
-        if key in d:
-            out[key] = r.text(d[key], f"{path}.{key}", limit=200)
+    required = {"potential": ("x_label", "y_label", "value_label", "length_unit"),
+                "state": ("x_label", "value_label") + (() if "s" in d else ("y_label",)),
+                "cut": ("x_label", "y_label"), "levels": ("y_label", "energy_unit"),
+                "fan": ("x_label", "y_label", "energy_unit", "parameter")}[kind]
+    for key in required:
+        out[key] = r.text(need(key), f"{path}.{key}", limit=200)
     if kind in ("potential", "state") and "s" not in d:
         x = r.increasing(r.array(need("x"), f"{path}.x", 1, min_size=2), f"{path}.x")
         y = r.increasing(r.array(need("y"), f"{path}.y", 1, min_size=2), f"{path}.y")
@@ -1673,7 +1683,6 @@ def _read_panel(r: _Reader, raw, path: str) -> dict:
             out["gates"].append({"label": r.text(g.get("label", ""), f"{gp}.label", limit=200),
                                  "voltage": r.number(g.get("voltage"), f"{gp}.voltage"), "vertices": verts})
         out["scale_bar"] = r.number(need("scale_bar"), f"{path}.scale_bar")
-        out.setdefault("length_unit", "")
     elif kind == "state":
         out["level"] = r.integer(need("level"), f"{path}.level")
         out["energy"] = r.number(need("energy"), f"{path}.energy")
@@ -1706,7 +1715,6 @@ def _read_panel(r: _Reader, raw, path: str) -> dict:
         out.update({"energies": e, "groups": r.groups(need("groups"), f"{path}.groups", e.size),
                     "highlight": [r.integer(k, f"{path}.highlight[{i}]", 0, e.size - 1) for i, k in enumerate(hl)],
                     "decimals": r.integer(need("decimals"), f"{path}.decimals", 0, 12)})
-        out.setdefault("energy_unit", "")
     elif kind == "fan":
         x = r.array(need("values"), f"{path}.values", 1, min_size=2)
         tr = r.array(need("tracks"), f"{path}.tracks", 2, allow_nan=True)
@@ -1732,12 +1740,6 @@ def _read_panel(r: _Reader, raw, path: str) -> dict:
                             "tracks": [r.integer(t, f"{ap}.tracks", 0, tr.shape[0] - 1) for t in tracks],
                             "kind": kind_ac, "centre": r.number(a.get("centre"), f"{ap}.centre")})
         out.update({"values": x, "tracks": tr, "anticrossings": out_acs})
-        out.setdefault("energy_unit", "")
-        out.setdefault("parameter", "")
-    for key in ("x_label", "y_label"):
-        out.setdefault(key, "")
-    if kind in ("potential", "state"):
-        out.setdefault("value_label", "")
     return out
 
 
