@@ -170,6 +170,36 @@ def decade(top: float) -> tuple:
     return 10.0 ** (-e), f"10{str(e).translate(sup)} "
 
 
+def contour_lines(data: np.ndarray, levels, axes: tuple, keep: Optional[np.ndarray] = None) -> tuple:
+    """Contour lines of a 2D array on grid ``axes`` as ``(x, y)`` arrays with NaN between pieces.
+
+    Marching squares (skimage.measure.find_contours; vertices by linear interpolation along cell
+    edges), mapped from indices to physical coordinates.  ``keep`` (boolean, data's shape) drops the
+    vertices that fall in cells where it is False (used to hide nodal lines in a state's empty tails).
+    """
+    from skimage.measure import find_contours
+    data = np.asarray(data, dtype=float)
+    ax0, ax1 = (np.asarray(a, dtype=float) for a in axes)
+    h0 = ax0[1] - ax0[0] if ax0.size > 1 else 1.0
+    h1 = ax1[1] - ax1[0] if ax1.size > 1 else 1.0
+    xs, ys = [], []
+    for level in np.atleast_1d(levels):
+        for piece in find_contours(data, float(level)):
+            r, c = piece[:, 0], piece[:, 1]
+            x = ax0[0] + r * h0
+            y = ax1[0] + c * h1
+            if keep is not None:
+                ok = keep[np.clip(np.rint(r).astype(int), 0, data.shape[0] - 1),
+                          np.clip(np.rint(c).astype(int), 0, data.shape[1] - 1)]
+                x = np.where(ok, x, np.nan)
+                y = np.where(ok, y, np.nan)
+            xs += [x, [np.nan]]
+            ys += [y, [np.nan]]
+    if not xs:
+        return np.array([]), np.array([])
+    return np.concatenate(xs), np.concatenate(ys)
+
+
 def clean_zero(value: float, scale: float) -> float:
     """Round-off (below 1e-9 of ``scale``) shown as exactly 0."""
     return 0.0 if abs(value) < 1e-9 * abs(scale) else float(value)

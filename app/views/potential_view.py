@@ -18,7 +18,7 @@ from core.errors import WellscapeError
 from core.project import GatesTerm
 
 from . import colormaps
-from .common import (HintStack, axis_title, colorbar, fmt, fmt_energy, image_rect, make_plot, pretty_unit,
+from .common import (HintStack, axis_title, clean_zero, colorbar, contour_lines, fmt, fmt_energy, image_rect, make_plot, pretty_unit,
                      sample_line, set_colorbar_title, set_titles, show_message, status_label, text_item, view_units)
 from .isosurface import IsosurfaceWidget, Surface
 from .slices import SliceTriptych
@@ -48,7 +48,7 @@ class PotentialView(QtWidgets.QWidget):
         self._potential: Optional[np.ndarray] = None
         self.gate_rois: list = []          # (roi, term index, gate index)
         self.gate_labels: list = []
-        self.contours: list = []
+        self._gate_signature: list = []
         self.level_lines: list = []
         self.cut_roi = None
         self._cut_host = None
@@ -91,6 +91,9 @@ class PotentialView(QtWidgets.QWidget):
         self.image = pg.ImageItem(axisOrder="col-major")
         self.plot2d.addItem(self.image)
         self.colorbar = colorbar(self.image, self.plot2d, colormaps.colormap(colormaps.POTENTIAL))
+        self.contours = pg.PlotDataItem(pen=_CONTOUR_PEN, connect="finite")
+        self.contours.setZValue(5)
+        self.plot2d.addItem(self.contours)
         # 3D page
         self.slices = SliceTriptych()
         self.slices.planes_changed.connect(lambda *_: self._update_cut())
@@ -144,6 +147,7 @@ class PotentialView(QtWidgets.QWidget):
             self.stack.show_hint(_HINT)
             return
         self._grid = None                  # force a full rebuild for the (maybe new) grid
+        self._gate_signature = []
         self._on_potential_changed()
 
     def _on_potential_changed(self) -> None:
@@ -278,19 +282,12 @@ class PotentialView(QtWidgets.QWidget):
         if self.ndim != 2 or self._potential is None:
             return
         values = self.contour_values()
-        while len(self.contours) > len(values):
-            iso = self.contours.pop()
-            scene = iso.scene()
-            iso.setParentItem(None)
-            if scene is not None:
-                scene.removeItem(iso)
-        while len(self.contours) < len(values):
-            iso = pg.IsocurveItem(level=0.0, pen=_CONTOUR_PEN, axisOrder="col-major")
-            iso.setParentItem(self.image)
-            iso.setZValue(5)
-            self.contours.append(iso)
-        for iso, level in zip(self.contours, values):
-            iso.setData(self._potential, level)
+        # contours are a guide for the eye: on fine grids trace them on every k-th point (<= 160 per
+        # axis), which keeps live updates fast; the map itself is always shown at full resolution
+        k = max(1, int(np.ceil(max(self._potential.shape) / 160)))
+        axes = tuple(a[::k] for a in self._grid.axes[:2])
+        x, y = contour_lines(self._potential[::k, ::k], values, axes)
+        self.contours.setData(x, y, connect="finite")
         tip = ", ".join(fmt(c, 4) for c in values)
         self.image.setToolTip(f"contour lines at V = {tip} {pretty_unit(view_units(self.session).energy_unit)}"
                               if values else "")
@@ -327,12 +324,19 @@ class PotentialView(QtWidgets.QWidget):
         self.gate_rois, self.gate_labels = [], []
 
     def _update_gates(self) -> None:
+        """Draw the gates; outlines are rebuilt only when their geometry changes (a voltage change
+        only rewrites the labels), so that live parameter changes stay fast."""
         if self._dragging:
             return
-        self._clear_gates()
-        if self.ndim != 2 or not self.show_gates.isChecked():
+        outlines = self.gate_outlines() if (self.ndim == 2 and self.show_gates.isChecked()) else []
+        signature = [(ti, gi, verts.tobytes(), movable) for ti, gi, _label, verts, movable in outlines]
+        if self.gate_rois and signature == self._gate_signature:
+            for t, (_ti, _gi, label, _v, _m) in zip(self.gate_labels, outlines):
+                t.setText(label)
             return
-        for ti, gi, label, verts, movable in self.gate_outlines():
+        self._clear_gates()
+        self._gate_signature = signature
+        for ti, gi, label, verts, movable in outlines:
             roi = pg.PolyLineROI([tuple(map(float, p)) for p in verts], closed=True, movable=movable,
                                  pen=_GATE_PEN if movable else _GATE_FIXED_PEN)
             roi.setZValue(10)
@@ -348,10 +352,15 @@ class PotentialView(QtWidgets.QWidget):
             roi.sigRegionChangeFinished.connect(lambda r, ti=ti, gi=gi: self._on_gate_moved(r, ti, gi))
             self.plot2d.addItem(roi)
             self.gate_rois.append((roi, ti, gi))
-            cx, cy = verts.mean(axis=0)
-            t = text_item(label, anchor=(0.5, 0.5), colour="#222222")
-            t.fill = pg.mkBrush(255, 255, 255, 200)
-            t.setPos(float(cx), float(cy))
+            # the label sits just above the gate's top edge (kept inside the grid's box), clear of the cut
+            g = self._grid
+            mean_x = float(verts[:, 0].mean())
+            cx = float(np.clip(mean_x, g.lower[0], g.upper[0]))
+            top = float(np.clip(verts[:, 1].max(), g.lower[1], g.upper[1]))
+            side = 0.0 if mean_x <= g.lower[0] else (1.0 if mean_x >= g.upper[0] else 0.5)
+            t = text_item(label, anchor=(side, 1.0), colour="#222222")
+            t.fill = pg.mkBrush(255, 255, 255, 210)
+            t.setPos(cx, top)
             t.setZValue(11)
             self.plot2d.addItem(t)
             self.gate_labels.append(t)
@@ -451,10 +460,12 @@ class PotentialView(QtWidgets.QWidget):
         if self.cut_roi is not None and dist.size:
             a, b = (self.cut_roi.mapToParent(h.pos()) for h in self.cut_roi.getHandles()[:2])
             u = view_units(self.session)
+            scale = max(abs(v) for v in self._grid.lower + self._grid.upper)
+            ax_, ay_, bx_, by_ = (clean_zero(v, scale) for v in (a.x(), a.y(), b.x(), b.y()))
             where = f" in the plane z = {fmt(self._grid.axes[2][self.slices.index[2]], 4)} " \
                     f"{pretty_unit(u.length_unit)}" if self.ndim == 3 else ""
             self.cut_caption.setText(
-                f"Cut from ({fmt(a.x(), 4)}, {fmt(a.y(), 4)}) to ({fmt(b.x(), 4)}, {fmt(b.y(), 4)}) "
+                f"Cut from ({fmt(ax_, 4)}, {fmt(ay_, 4)}) to ({fmt(bx_, 4)}, {fmt(by_, 4)}) "
                 f"{pretty_unit(u.length_unit)}{where}. Drag the black line or its ends to move it.")
 
     def level_groups(self) -> list:
@@ -476,9 +487,7 @@ class PotentialView(QtWidgets.QWidget):
         if not self.levels_on_cut.isChecked() or self._potential is None:
             return
         groups = self.level_groups()
-        span = (max(g[0] for g in groups) - min(g[0] for g in groups)) if groups else 0.0
-        if self._potential is not None:
-            span = max(span, float(np.nanmax(self._potential) - np.nanmin(self._potential)))
+        span = self._frame_levels(plot, groups)
         slot, previous = 0, None
         for energy, first, mult in groups:
             # close levels get their labels staggered along the line, so that they never overlap
@@ -490,3 +499,22 @@ class PotentialView(QtWidgets.QWidget):
                                               "anchors": [(1, 1), (1, 1)]})
             plot.addItem(line)
             self.level_lines.append((line, plot))
+
+    def _frame_levels(self, plot, groups) -> float:
+        """Show the bottom of the well and the levels: V up to twice the highest level's height above
+        the bottom (a high barrier would otherwise squash the levels); the plot's "A" button shows all.
+        Returns the energy span shown (for spacing the level labels)."""
+        if not groups:
+            return 0.0
+        energies = [g[0] for g in groups]
+        v = self.curve1d.getData()[1] if self.ndim == 1 else self.cut_curve.getData()[1]
+        if v is None or not np.any(np.isfinite(v)):
+            return max(energies) - min(energies)
+        lo, hi = float(np.nanmin(v)), float(np.nanmax(v))
+        top = max(energies)
+        if top <= lo:
+            return max(hi, top) - min(lo, min(energies))
+        upper = max(min(hi, top + (top - lo)), top + 0.1 * (top - lo))     # levels always in view
+        pad = 0.05 * (upper - lo)
+        plot.getPlotItem().setYRange(lo - pad, upper + pad, padding=0)
+        return upper - lo

@@ -16,7 +16,7 @@ from PySide6 import QtCore, QtGui, QtWidgets
 from core.errors import WellscapeError
 
 from . import colormaps
-from .common import (HintStack, axis_title, colorbar, density_unit, fmt, fmt_energy, image_rect, make_plot,
+from .common import (HintStack, axis_title, colorbar, contour_lines, density_unit, fmt, fmt_energy, image_rect, make_plot,
                      pretty_unit, set_colorbar_title, set_titles, show_message, status_label, wave_unit)
 from .isosurface import IsosurfaceWidget, Surface, level_enclosing
 from .slices import SliceTriptych
@@ -150,8 +150,9 @@ class StatesView(QtWidgets.QWidget):
         self.plot2d = make_plot(aspect_locked=True)
         self.image = pg.ImageItem(axisOrder="col-major")
         self.plot2d.addItem(self.image)
-        self.nodal = pg.IsocurveItem(level=0.0, pen=_NODAL_PEN, axisOrder="col-major")
-        self.nodal.setParentItem(self.image)
+        self.nodal = pg.PlotDataItem(pen=_NODAL_PEN, connect="finite")
+        self.nodal.setZValue(5)
+        self.plot2d.addItem(self.nodal)
         self.colorbar = colorbar(self.image, self.plot2d, colormaps.colormap(colormaps.DENSITY))
         self.slices = SliceTriptych()
         self.isosurface = IsosurfaceWidget()
@@ -406,9 +407,20 @@ class StatesView(QtWidgets.QWidget):
         m = float(np.abs(psi).max()) or 1.0
         self.image.setImage(psi, levels=(-m, m), lut=colormaps.lookup_table(colormaps.SIGNED), autoLevels=False)
         self._colorbar(colormaps.SIGNED, (-m, m), "ψ", psi_unit)
-        self.nodal.setData(psi, 0.0)
+        self.nodal.setData(*self.nodal_lines(psi, self.result.grid.axes[:2]), connect="finite")
         self.nodal.setVisible(True)
         return "Dashed lines: nodal lines (ψ = 0). The overall sign of a real state is arbitrary."
+
+    @staticmethod
+    def nodal_lines(psi: np.ndarray, axes: tuple, floor: float = 0.02) -> tuple:
+        """``(x, y)`` of the nodal lines psi = 0 of a real 2D state, drawn only where the local amplitude
+        (the largest |psi| among a point and its neighbours) reaches ``floor`` of the maximum: in the
+        empty tails, round-off would otherwise draw sign changes of noise."""
+        from scipy.ndimage import maximum_filter
+        amp = np.abs(psi)
+        top = float(amp.max()) or 1.0
+        keep = maximum_filter(amp, size=3, mode="nearest") >= floor * top
+        return contour_lines(psi, [0.0], axes, keep=keep)
 
     def _colorbar(self, cmap: str, levels, name: str, unit: str) -> None:
         self.colorbar.setVisible(True)

@@ -184,8 +184,17 @@ def test_potential_view_2d_map_contours_and_live_update(qtbot, r2):
     assert view.plot2d.getPlotItem().getAxis("left").labelText == "y [nm]"
     assert view.colorbar.getAxis("right").labelText == "V [meV]"
     values = view.contour_values()
-    assert len(values) == 8 == len(view.contours)
+    assert len(values) == 8
     assert min(values) > s.potential.min() and max(values) < s.potential.max()
+    # every drawn contour vertex lies on a cell edge where the bilinear interpolant of V (scipy's
+    # RegularGridInterpolator, linear) equals one of the contour levels, to round-off
+    from scipy.interpolate import RegularGridInterpolator
+    cx, cy = view.contours.getData()
+    ok = np.isfinite(cx)
+    assert ok.sum() > 100
+    v_at = RegularGridInterpolator(r2.grid.axes, s.potential)(np.column_stack([cx[ok], cy[ok]]))
+    nearest = np.min(np.abs(v_at[:, None] - np.array(values)[None, :]), axis=1)
+    assert nearest.max() < 1e-9 * s.potential.max()
     # a parameter changes: the map follows on potential_changed
     changed = r2.project.with_parameters(hw=6.0)
     s.project = changed
@@ -345,6 +354,20 @@ def test_states_view_gallery_and_selection(qtbot, r2):
     view.mode.setCurrentIndex(1)                          # signed psi for real states, with nodal lines
     np.testing.assert_allclose(view.image.image, r2.states[3])
     assert view.nodal.isVisible() and "nodal" in view.legend.text()
+
+
+def test_nodal_lines_of_an_x_like_state_lie_on_x_equals_0(r2e):
+    """State 1 of the elliptical dot is x-like: psi ~ x exp(-x^2/2lx^2 - y^2/2ly^2), whose only node is
+    the line x = 0 (first excited oscillator state, a Hermite function H_1; e.g. D. J. Griffiths,
+    Introduction to Quantum Mechanics, 2nd ed., sec. 2.3.2 (2005), recalled from memory).  The grid is
+    mirror-symmetric about x = 0, so the interpolated node falls on x = 0 up to the state's parity
+    error (tolerance 1e-3 of the spacing); the tails, where psi is round-off, draw no line."""
+    psi = r2e.states[1]
+    x, y = StatesView.nodal_lines(psi, r2e.grid.axes)
+    ok = np.isfinite(x)
+    assert ok.sum() > 10
+    assert np.max(np.abs(x[ok])) < 1e-3 * r2e.grid.spacing[0]
+    assert np.ptp(y[ok]) > 50.0                            # the line crosses the state (l_y = 26 nm)
 
 
 def test_region_probability_matches_core_and_gaussian(qtbot, r2e):
