@@ -1210,7 +1210,14 @@ def _column_widths(cols: list, t: Template, height_in: Optional[float], fixed_h:
     avail = t.width_in - sum(overheads[j][0] for j in range(len(cols)))
     spare = avail - sum(inner)
     if spare < 0:
-        # too wide: every panel gives up the same fraction (the decorations keep their size)
+        # too wide: the maps shrink (their decorations keep their size) and the plots keep
+        # the width their labels need; only when the maps would become tiny does everything shrink
+        is_map = [c[0] == "map" for c in cols]
+        maps = sum(w for w, m in zip(inner, is_map) if m)
+        rest = sum(w for w, m in zip(inner, is_map) if not m)
+        s = (avail - rest) / maps if maps > 0 else 0.0
+        if maps > 0 and s >= 0.35:
+            return height, [w * s if m else w for w, m in zip(inner, is_map)]
         scale = max(0.05, avail) / sum(inner)
         return height, [w * scale for w in inner]
     shares = sum(_FLEX[c[1]][1] for c in cols if c[0] == "flex")
