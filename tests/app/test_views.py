@@ -572,3 +572,37 @@ def test_views_follow_a_real_session_through_solve_and_sweep(qtbot, session):
     for t, curve in enumerate(swe.curves):
         np.testing.assert_array_equal(curve.getData()[1], session.sweep_result.track_energies()[t])
     qtbot.waitUntil(lambda: not getattr(session, "sweeping", False), timeout=10000)
+
+
+@pytest.fixture(scope="module")
+def r_field():
+    """The round InAs dot in B = 1 T along z with spin switched on (complex states)."""
+    p = dataclasses.replace(_round_dot(), grid=_round_dot().grid.with_points([28, 28]),
+                            magnetic_field=(0.0, 0.0, 1.0), spin=True)
+    return solve_project(p, states=3)
+
+
+def test_spin_note_gives_the_zeeman_energy(qtbot, r_field):
+    """|g| mu_B B for InAs (g from the material table) at B = 1 T, against scipy.constants' Bohr magneton
+    (CODATA): mu_B = 0.057884 meV/T."""
+    from scipy import constants
+    view = _view(qtbot, LevelsView, _session(r_field))
+    mu_b = constants.physical_constants["Bohr magneton"][0] / (1e-3 * constants.e)       # meV/T
+    expected = abs(r_field.g_factor) * mu_b * 1.0
+    text = view.header.text()
+    assert "spin ½ included" in text and f"{expected:.4g} meV" in text
+
+
+def test_complex_states_show_phase_with_a_legend_in_words(qtbot, r_field):
+    s = _session(r_field)
+    view = _view(qtbot, StatesView, s)
+    assert np.iscomplexobj(r_field.states)
+    view.mode.setCurrentIndex(1)
+    img = view.image.image
+    assert img.shape == r_field.grid.shape + (4,) and img.dtype == np.uint8
+    assert not view.colorbar.isVisible() and "phase" in view.legend.text()
+    # brightness follows |psi|: black where the state vanishes, bright only where |psi| is large
+    amp = np.abs(r_field.states[0]) / np.abs(r_field.states[0]).max()
+    lum = img[..., :3].astype(float).max(axis=2)
+    assert lum[amp < 0.01].max() <= 0.01 * 255 + 1
+    assert amp[np.unravel_index(np.argmax(lum), lum.shape)] > 0.5
