@@ -467,7 +467,7 @@ def _state_arrays(result, level: int, mode: str, three_d: str) -> tuple:
             psi = psi / phase
             imag = float(np.linalg.norm(psi.imag)) / max(float(np.linalg.norm(psi)), 1e-300)
             if imag > 1e-3:
-                mode, note = "density", "complex, so |ψ|²"
+                mode, note = "density", "complex ψ: |ψ|² shown"
             psi = psi.real
         if mode == "signed":
             k = np.argmax(np.abs(psi))
