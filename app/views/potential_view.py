@@ -376,7 +376,9 @@ class PotentialView(QtWidgets.QWidget):
 
     def _on_gate_moved(self, roi, term_index: int, gate_index: int) -> None:
         self._dragging = False
-        self.move_gate(term_index, gate_index, self.roi_vertices(roi))
+        vertices = self.roi_vertices(roi)
+        # hand the edit over after the ROI has finished its own event: the new project rebuilds the outlines
+        QtCore.QTimer.singleShot(0, self, lambda: self.move_gate(term_index, gate_index, vertices))
 
     def move_gate(self, term_index: int, gate_index: int, vertices) -> bool:
         """Give gate ``gate_index`` of term ``term_index`` new corners (m, 2) and send the project to the

@@ -249,6 +249,14 @@ def test_gates_are_drawn_and_dragging_edits_the_project(qtbot):
     np.testing.assert_allclose(np.sort(moved, axis=0), np.sort(verts, axis=0), atol=1e-9)
     if before.rectangle is not None:        # an axis-aligned move keeps a rectangle a rectangle
         assert after.rectangle is not None and after.polygon is None
+    # dragging an outline on the map (the ROI reports its new place) edits the project the same way
+    roi, ti, gi = view.gate_rois[-1]
+    old = np.asarray(gate_list(s.project.potential[ti], params)[gi].vertices)
+    n_calls = len(s.calls)
+    roi.setPos(roi.pos() + QtCore.QPointF(0.0, -12.0))          # emits sigRegionChangeFinished
+    qtbot.waitUntil(lambda: len(s.calls) > n_calls, timeout=2000)
+    new = np.asarray(gate_list(s.project.potential[ti], params)[gi].vertices)
+    np.testing.assert_allclose(np.sort(new, axis=0), np.sort(old + [0.0, -12.0], axis=0), atol=1e-6)
 
 
 def test_invalid_gate_outline_is_refused_and_nothing_is_lost(qtbot):
