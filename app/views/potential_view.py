@@ -410,7 +410,13 @@ class PotentialView(QtWidgets.QWidget):
         terms[term_index] = dataclasses.replace(term, gates=tuple(gates))
         new_project = dataclasses.replace(project, potential=tuple(terms))
         show_message(self.status, "")
-        self.session.set_project(new_project, f"move gate {spec.label}")
+        try:
+            self.session.set_project(new_project, f"move gate {spec.label}")
+        except WellscapeError as exc:
+            show_message(self.status, f"Gate {spec.label!r} was not moved: {exc}", error=True)
+            self._gate_signature = []
+            self._update_gates()
+            return False
         return True
 
     # -- 3D isosurface --------------------------------------------------------------------------
