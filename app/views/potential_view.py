@@ -395,6 +395,7 @@ class PotentialView(QtWidgets.QWidget):
             validate_polygon(verts, label=spec.label)
         except WellscapeError as exc:
             show_message(self.status, f"Gate {spec.label!r} was not moved: {exc}", error=True)
+            self._gate_signature = []          # redraw the outline where the project still has it
             self._update_gates()
             return False
         xs, ys = np.unique(verts[:, 0]), np.unique(verts[:, 1])
