@@ -180,6 +180,77 @@ def _orthonormalize(a: np.ndarray, b: np.ndarray, rng, locked: Optional[np.ndarr
     raise NotConverged("could not orthonormalise the search block")
 
 
+# --- coarse-grid start ------------------------------------------------------------------------
+
+def _coarse_points(n: int, periodic: bool) -> int:
+    return n // 2 if periodic else (n + 1) // 2 - 1
+
+
+def _linear_1d(x_from: np.ndarray, x_to: np.ndarray, period: Optional[float], walls: Optional[tuple]) -> np.ndarray:
+    """Dense matrix of linear interpolation from points ``x_from`` to ``x_to`` (zero at hard walls if given)."""
+    mat = np.zeros((x_to.size, x_from.size))
+    if period is not None:
+        xs = np.concatenate([x_from, [x_from[0] + period]])
+        idx = np.concatenate([np.arange(x_from.size), [0]])
+    elif walls is not None:
+        xs = np.concatenate([[walls[0]], x_from, [walls[1]]])
+        idx = np.concatenate([[-1], np.arange(x_from.size), [-1]])
+    else:
+        xs, idx = x_from, np.arange(x_from.size)
+    for i, x in enumerate(x_to):
+        if period is not None:
+            x = xs[0] + (x - xs[0]) % period
+        j = int(np.clip(np.searchsorted(xs, x) - 1, 0, xs.size - 2))
+        w = (x - xs[j]) / (xs[j + 1] - xs[j])
+        w = min(max(w, 0.0), 1.0)
+        for col, weight in ((idx[j], 1.0 - w), (idx[j + 1], w)):
+            if col >= 0:
+                mat[i, col] += weight
+    return mat
+
+
+def _sine_prolongation(n_fine: int, n_coarse: int) -> np.ndarray:
+    """Interpolation by the box's sine modes 1..n_coarse (exact for them), interior nodes on both grids."""
+    modes = np.arange(1, n_coarse + 1)
+    sf = np.sin(np.pi * np.outer(np.arange(1, n_fine + 1) / (n_fine + 1), modes))
+    sc = np.sin(np.pi * np.outer(np.arange(1, n_coarse + 1) / (n_coarse + 1), modes))
+    return sf @ (2.0 / (n_coarse + 1) * sc.T)
+
+
+def _apply_axis(mat: np.ndarray, x: np.ndarray, axis: int) -> np.ndarray:
+    """Contract ``mat`` (n_out x n_in) with ``x`` along ``axis``."""
+    moved = np.moveaxis(x, axis, -1)
+    out = moved @ mat.T
+    return np.ascontiguousarray(np.moveaxis(out, -1, axis))
+
+
+def _coarse_start(h: Hamiltonian, k: int, guard, tol, deg, should_stop, progress) -> Optional[np.ndarray]:
+    from .hamiltonian import rebuild_on_grid
+    g = h.grid
+    pts = [_coarse_points(n, per) for n, per in zip(g.shape, g.periodic)]
+    gc = Grid(g.lower, g.upper, pts, g.boundary)
+    restrict, prolong = [], []
+    for a in range(g.ndim):
+        xf, xc = g.axes[a], gc.axes[a]
+        period = (g.upper[a] - g.lower[a]) if g.periodic[a] else None
+        restrict.append(_linear_1d(xf, xc, period, None))
+        if g.periodic[a]:
+            prolong.append(_linear_1d(xc, xf, period, None))
+        else:
+            prolong.append(_sine_prolongation(g.shape[a], pts[a]))
+    vc = h.potential
+    for a in range(g.ndim):
+        vc = _apply_axis(restrict[a], vc, a)
+    hc = rebuild_on_grid(h, gc, vc)
+    sub = None if progress is None else (lambda stage, f: progress("coarse grid", 0.3 * f))
+    coarse = lowest_states(hc, k, tolerance=max(tol, 1e-5), guard=guard, should_stop=should_stop,
+                           degeneracy_tolerance=deg, progress=sub, check_memory_first=False)
+    block = coarse.block()
+    for a in range(g.ndim):
+        block = _apply_axis(prolong[a], block, a + 1)
+    return block
+
+
 def _random_block(rng, m, n, dtype):
     x = rng.standard_normal((m, n))
     if np.issubdtype(dtype, np.complexfloating):
@@ -226,7 +297,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
                   start: Optional[np.ndarray] = None, progress: ProgressFn = None,
                   should_stop: StopFn = None, degeneracy_tolerance: float = 1e-6,
                   max_iterations: int = 300, dense_limit: int = 1200, seed: int = 12345,
-                  check_memory_first: bool = True) -> Spectrum:
+                  check_memory_first: bool = True, coarse_start: bool = True) -> Spectrum:
     """The ``k`` lowest eigenpairs of ``h`` (more if the k-th level's multiplet continues).
 
     Parameters
@@ -246,6 +317,8 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
     degeneracy_tolerance : levels closer than this (relative to the energy scale)
         count as one multiplet; a multiplet is never cut at the k-th level.
     dense_limit : problems with at most this many unknowns are solved densely.
+    coarse_start : without ``start``, large problems first solve on a grid half as fine and
+        interpolate (sine modes for hard walls), which cuts the work of a cold solve.
     """
     t0 = time.perf_counter()
     n = h.size
@@ -274,6 +347,11 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
     lower, upper = h.bounds()
 
     # --- starting block ------------------------------------------------------------------
+    coarse_note = None
+    if (start is None and coarse_start and n >= 30000
+            and all(_coarse_points(nn, per) >= 16 for nn, per in zip(h.grid.shape, h.grid.periodic))):
+        start = _coarse_start(h, k, guard, tol, degeneracy_tolerance, should_stop, progress)
+        coarse_note = "started from a solve on a grid half as fine"
     if start is not None:
         st = np.asarray(start)
         if st.shape[1:] != h.grid.shape and st.shape != h.grid.shape:
@@ -336,7 +414,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
     cut = theta[-1] if warm else min(max(weyl_level_estimate(h, 1.3 * m), lower + 1e-9 * (upper - lower)),
                                      theta[-1])
     iterations = 0
-    notes = []
+    notes = [coarse_note] if coarse_note else []
 
     def partial(converged=False, cut_flag=False):
         all_theta = np.concatenate([locked_theta, theta])

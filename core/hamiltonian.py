@@ -28,7 +28,7 @@ from .kinetic import check_scheme, kinetic_matrix_1d, stencil
 from .units import get_units
 from . import kernels
 
-__all__ = ["Hamiltonian", "build_hamiltonian", "build", "as_masses", "vector_potential", "GAUGES"]
+__all__ = ["Hamiltonian", "build_hamiltonian", "build", "rebuild_on_grid", "as_masses", "vector_potential", "GAUGES"]
 
 GAUGES = ("symmetric", "landau")
 
@@ -103,6 +103,8 @@ class Hamiltonian:
     phases: tuple | None       # per axis exp(i q A_a x_a / hbar) on the grid, or None
     magnetic_field: tuple
     gauge: str
+    kappa: float = 0.0                 # q / hbar in 1 / (magnetic unit * length unit^2)
+    gauge_centre: tuple | None = None
 
     def __post_init__(self):
         g = self.grid
@@ -306,7 +308,26 @@ def build_hamiltonian(grid: Grid, potential, *, mass=1.0, units="dimensionless",
         mesh = grid.mesh_sparse()
         phases = tuple(np.exp(1j * kappa * avec[a] * (mesh[a] - centre[a])) for a in range(grid.ndim))
     return Hamiltonian(grid=grid, potential=v, prefactors=prefactors, scheme=scheme, kinetic_1d=kin,
-                       phases=phases, magnetic_field=tuple(float(x) for x in b), gauge=gauge)
+                       phases=phases, magnetic_field=tuple(float(x) for x in b), gauge=gauge,
+                       kappa=u.phase_per_flux_area() if phases is not None else 0.0,
+                       gauge_centre=None if gauge_centre is None else tuple(np.resize(np.asarray(gauge_centre, float), 3)))
+
+
+def rebuild_on_grid(h: Hamiltonian, grid: Grid, potential: np.ndarray) -> Hamiltonian:
+    """The same physics (masses, scheme, field, gauge) on another grid with the potential given there."""
+    v = check_potential(grid, potential)
+    kin = tuple(kinetic_matrix_1d(h.scheme, grid.shape[a], grid.spacing[a], grid.periodic[a])
+                for a in range(grid.ndim))
+    phases = None
+    if h.phases is not None:
+        b = np.asarray(h.magnetic_field, dtype=float)
+        avec = vector_potential(grid, b, gauge=h.gauge, centre=h.gauge_centre)
+        centre = np.zeros(3) if h.gauge_centre is None else np.asarray(h.gauge_centre, float)
+        mesh = grid.mesh_sparse()
+        phases = tuple(np.exp(1j * h.kappa * avec[a] * (mesh[a] - centre[a])) for a in range(grid.ndim))
+    return Hamiltonian(grid=grid, potential=v, prefactors=h.prefactors, scheme=h.scheme, kinetic_1d=kin,
+                       phases=phases, magnetic_field=h.magnetic_field, gauge=h.gauge, kappa=h.kappa,
+                       gauge_centre=h.gauge_centre)
 
 
 build = build_hamiltonian

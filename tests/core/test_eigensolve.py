@@ -268,3 +268,15 @@ def test_memory_estimate_refuses_a_huge_request(monkeypatch):
     g = Grid([0, 0, 0], [1, 1, 1], [40, 40, 40])
     with pytest.raises(MemoryLimitError, match="coarser grid"):
         solve_states(g, 0.0, states=20, scheme="fd2")
+
+
+def test_coarse_grid_start_gives_the_same_states():
+    """A cold solve of a large grid first solves on a grid half as fine and interpolates (sine modes);
+    the converged levels must not depend on that start (compared with a random start, same tolerance)."""
+    g = Grid([-8, -8], [8, 8], [180, 180])
+    h = build_hamiltonian(g, oscillator(g), scheme="fd2")
+    coarse = lowest_states(h, 6, tolerance=1e-9)
+    plain = lowest_states(h, 6, tolerance=1e-9, coarse_start=False)
+    assert any("half as fine" in note for note in coarse.notes)
+    np.testing.assert_allclose(coarse.energies, plain.energies, rtol=1e-11)
+    assert coarse.applications < plain.applications
