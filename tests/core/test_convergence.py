@@ -1,0 +1,251 @@
+"""Convergence studies: Richardson extrapolation, observed orders, resolved / not-resolved splittings.
+
+Sources:
+* Richardson extrapolation: L. F. Richardson, Phil. Trans. R. Soc. A 210, 307 (1911): for an error
+  expansion E(h) = E + a h^p + ..., E(h2) + (E(h2) - E(h1)) / ((h1/h2)^p - 1) removes the h^p term.
+* 3D isotropic oscillator: E = hbar w (n + 3/2), shell n holding (n+1)(n+2)/2 states
+  (C. Cohen-Tannoudji, B. Diu, F. Laloe, Quantum Mechanics, Wiley 1977, vol. 1, complement B_VII).
+* Anisotropic 2D oscillator: E = hbar w_x (n_x + 1/2) + hbar w_y (n_y + 1/2) (separation of
+  variables; same textbook, chapter V).
+* Second-order differences converge like h^2 (the truncation error of the centred second
+  difference is -(h^2/12) f''''; textbook fact, e.g. R. J. LeVeque, Finite Difference Methods for
+  Ordinary and Partial Differential Equations, SIAM 2007, section 1.5).
+* Linear interpolation error is at most h^2/8 max|f''| on each interval (textbook fact, e.g.
+  R. L. Burden, J. D. Faires, Numerical Analysis, 9th ed., Brooks/Cole 2011, theorem 3.3).
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from core import Grid
+from core.convergence import (NOT_RESOLVED, RESOLVED, convergence_study, default_degeneracy_tolerance,
+                              interpolate_states, match_levels, observed_order, richardson)
+from core.eigensolve import group_levels
+from core.errors import Cancelled, InputError, MemoryLimitError
+from core.project import FormulaTerm, MaterialSpec, Project, SolverSettings
+
+SHELLS_3D = np.repeat([1.5, 2.5, 3.5], [1, 3, 6])
+
+
+def oscillator_project(points=35, half=5.5, states=10, scheme="fd2", ndim=3):
+    """hbar = m = omega = 1; the walls at +-5.5 shift the third shell by about exp(-30), far below anything tested."""
+    axes = "xyz"[:ndim]
+    return Project(title="Oscillator in a box of our own", units="dimensionless", material=MaterialSpec(mass=1.0),
+                   grid=Grid([-half] * ndim, [half] * ndim, [points] * ndim),
+                   potential=(FormulaTerm("trap", "0.5*(" + " + ".join(f"{a}**2" for a in axes) + ")"),),
+                   electric_field=(0.0,) * ndim, solver=SolverSettings(states=states, scheme=scheme, tolerance=1e-9))
+
+
+def elliptical_project(points, ell=0.01, scheme="fd2"):
+    return Project(title="Slightly elliptical dot of our own", units="dimensionless", material=MaterialSpec(mass=1.0),
+                   grid=Grid([-6.0, -6.0], [6.0, 6.0], [points, points]), parameters={"ell": ell},
+                   potential=(FormulaTerm("trap", "0.5*((1 - ell)*x**2 + (1 + ell)*y**2)"),),
+                   electric_field=(0.0, 0.0), solver=SolverSettings(states=3, scheme=scheme, tolerance=1e-9))
+
+
+# --- the formulas ---------------------------------------------------------------------------------------
+
+def test_richardson_removes_the_leading_power_exactly():
+    """For E(h) = E + a h^p the two-grid formula returns E (Richardson 1911), for any ratio of spacings."""
+    for p in (2.0, 4.0, 6.0):
+        e = lambda h: 1.25 + 0.7 * h**p   # noqa: E731
+        assert richardson(e(0.3), e(0.21), 0.3, 0.21, p) == pytest.approx(1.25, abs=1e-14)
+
+
+def test_observed_order_recovers_the_power_with_unequal_ratios():
+    """(E1-E2)/(E2-E3) = (h1^p - h2^p)/(h2^p - h3^p) solved for p, grids not in a constant ratio."""
+    hs = np.array([0.5, 0.33, 0.2])
+    for p in (1.0, 2.0, 4.0, 7.5):
+        e = 3.0 - 0.4 * hs**p
+        assert observed_order(e, hs) == pytest.approx(p, abs=1e-6)
+    assert math.isnan(observed_order([1.0, 1.1, 1.05], hs))                 # oscillating: no order
+    assert math.isinf(observed_order([1.0, 1.1, 1.1 + 1e-9], hs))           # converged: faster than any power
+
+
+def test_linear_interpolation_between_grids_is_second_order():
+    """A product of sines (zero at the hard walls) moved from a coarse grid to a fine one is within the
+    linear-interpolation bound h^2/8 max|f''| per axis."""
+    coarse = Grid([0.0, 0.0], [2.0, 1.0], [15, 11])
+    fine = Grid([0.0, 0.0], [2.0, 1.0], [40, 33])
+    f = lambda x, y: np.sin(math.pi * x / 2.0) * np.sin(2 * math.pi * y)   # noqa: E731
+    src = f(*coarse.mesh())[None]
+    got = interpolate_states(src, coarse, fine)[0]
+    h = coarse.spacing
+    bound = h[0] ** 2 / 8 * (math.pi / 2) ** 2 + h[1] ** 2 / 8 * (2 * math.pi) ** 2
+    assert np.abs(got - f(*fine.mesh())).max() <= bound
+
+
+def test_matching_pairs_reordered_and_rotated_levels():
+    """Levels given in another order, with a degenerate pair mixed by a rotation, are matched to themselves
+    (pure bookkeeping: orthonormal test functions on one grid)."""
+    g = Grid([0.0], [1.0], [60])
+    x = g.axes[0]
+    basis = np.array([np.sin((n + 1) * math.pi * x) for n in range(5)])
+    energies = np.array([1.0, 2.0, 2.0, 3.0, 4.0])
+    c, s = math.cos(0.6), math.sin(0.6)
+    other = np.array([basis[3], basis[0], c * basis[1] + s * basis[2], basis[4], -s * basis[1] + c * basis[2]])
+    other_e = np.array([3.01, 1.01, 2.01, 4.01, 2.02])
+    idx = match_levels(basis, energies, other, other_e)
+    assert idx[0] == 1 and idx[3] == 0 and idx[4] == 3
+    assert sorted(idx[1:3].tolist()) == [2, 4] and idx[1] == 2          # the pair in energy order
+
+
+# --- the 3D oscillator: a grid artefact must not pass for physics --------------------------------------
+
+@pytest.fixture(scope="module")
+def oscillator_report():
+    return convergence_study(oscillator_project(), factor=1.5, grids=3)
+
+
+def test_oscillator_extrapolation_beats_finest_grid_tenfold(oscillator_report):
+    """Richardson extrapolation with order 2 recovers hbar w (n + 3/2) at least 10x better than the finest
+    grid, every level; the error estimates cover the true errors; the observed order is about 2."""
+    r = oscillator_report
+    assert r.levels == 10
+    fine_err = np.abs(r.project_energies - SHELLS_3D)
+    ext_err = np.abs(r.extrapolated - SHELLS_3D)
+    assert np.all(ext_err <= 0.1 * fine_err)
+    assert np.all(ext_err <= r.errors)
+    # the estimate of the project grid's own error is close to its true error (the h^4 remainder is ~5%)
+    np.testing.assert_allclose(r.grid_errors, fine_err, rtol=0.15)
+    assert r.observed_order == pytest.approx(2.0, abs=0.3)
+    assert r.expected_order == 2.0 and r.scheme == "fd2"
+    assert r.warnings == ()
+
+
+def test_oscillator_third_shell_artefact_is_not_resolved(oscillator_report):
+    """On a cubic fd2 grid the 6-fold shell n = 2 splits into two triplets ((2,0,0)-like and (1,1,0)-like)
+    by an O(h^2) grid artefact; the study must flag that splitting 'not resolved', and the gaps between
+    shells (exactly hbar w) 'resolved'."""
+    r = oscillator_report
+    proj = r.project_energies
+    third = list(range(4, 10))
+    assert np.ptp(proj[third]) > 1e-3                           # the artefact is visible on the grid
+    inside = [s for s in r.splittings() if s.lower in third and s.upper in third]
+    assert len(inside) == 5 and all(s.verdict == NOT_RESOLVED for s in inside)
+    assert max(abs(s.project_splitting) for s in inside) == pytest.approx(np.ptp(proj[third]))
+    between = [s for s in r.splittings() if (s.lower in third) != (s.upper in third) or
+               (s.lower == 0) != (s.upper == 0)]
+    assert len(between) == 2
+    for s in between:
+        assert s.verdict == RESOLVED and s.splitting == pytest.approx(1.0, abs=0.01)
+        assert s.mark == "\u2713" and s.ascii_mark == "+"
+
+
+def test_default_tolerance_groups_the_whole_shells(oscillator_report):
+    """The degeneracy tolerance built from the errors groups the project grid's levels into the true shells
+    1, 3, 6 (the artefact split of the third shell is absorbed, the shell gaps of hbar w are not)."""
+    tol = default_degeneracy_tolerance(oscillator_report)
+    groups = group_levels(oscillator_report.project_energies, tol)
+    assert [len(g) for g in groups] == [1, 3, 6]
+    assert tol < 0.5
+
+
+def test_report_as_plain_data(oscillator_report):
+    d = oscillator_report.to_dict()
+    assert d["scheme"] == "fd2" and len(d["levels"]) == 10 and len(d["grids"]) == 3
+    assert sum(g["project_grid"] for g in d["grids"]) == 1 and d["grids"][-1]["project_grid"]
+    assert {s["verdict"] for s in d["splittings"]} == {RESOLVED, NOT_RESOLVED}
+    import json
+    json.dumps(d)
+
+
+# --- an elliptical dot: a real small splitting is resolved once the grid is fine enough -----------------
+
+@pytest.mark.parametrize("points,verdict", [(24, NOT_RESOLVED), (48, RESOLVED)])
+def test_elliptical_dot_splitting_resolved_when_grid_fine_enough(points, verdict):
+    """w_x = sqrt(1 - ell), w_y = sqrt(1 + ell) with ell = 0.01: the first excited pair is split by
+    w_y - w_x = 0.0100001. On a coarse grid (24 points, spacing 0.48) the grid error dwarfs it: not
+    resolved. On 48 points (spacing 0.24) it is resolved, and the extrapolated splitting agrees with the
+    exact one within the stated error."""
+    ell = 0.01
+    r = convergence_study(elliptical_project(points, ell), levels=3)
+    exact = math.sqrt(1 + ell) - math.sqrt(1 - ell)
+    pair = [s for s in r.splittings() if {s.lower, s.upper} == {1, 2}]
+    assert len(pair) == 1
+    s = pair[0]
+    assert s.verdict == verdict
+    if verdict == RESOLVED:
+        assert abs(s.splitting - exact) <= s.error
+        assert s.splitting > s.error
+
+
+# --- the spectral scheme --------------------------------------------------------------------------------
+
+def test_spectral_smooth_trap_converges_beyond_any_power():
+    """Spectral scheme on the 2D oscillator: levels n + 1 (same textbook), errors below 1e-8 and covering the
+    true error; no warning."""
+    r = convergence_study(oscillator_project(points=30, half=6.0, states=6, scheme="spectral", ndim=2))
+    exact = np.array([1.0, 2.0, 2.0, 3.0, 3.0, 3.0])
+    assert np.all(np.abs(r.extrapolated - exact) <= r.errors + 1e-12)
+    assert np.all(r.errors < 1e-8)
+    assert r.warnings == ()
+
+
+def test_spectral_scheme_with_a_step_is_flagged():
+    """A finite circular well (a step in V) spoils the spectral scheme's convergence to about second
+    order (Gibbs-like error at the step; DESIGN measurements, common practice): the study must say so."""
+    p = Project(title="Step well of our own", units="dimensionless", material=MaterialSpec(mass=1.0),
+                grid=Grid([-6.0, -6.0], [6.0, 6.0], [40, 40]),
+                potential=(FormulaTerm("well", "5*(x**2 + y**2 > 9)"),), electric_field=(0.0, 0.0),
+                solver=SolverSettings(states=3, scheme="spectral", tolerance=1e-9))
+    r = convergence_study(p)
+    assert r.observed_order < 4.0
+    assert any("step" in w for w in r.warnings)
+    # the error of the finest grid, estimated with the observed order, is not below the last change
+    assert np.all(r.errors >= np.abs(r.energies[-1] - r.energies[-2]) - 1e-15)
+
+
+# --- requests and refusals ------------------------------------------------------------------------------
+
+def test_bad_requests_are_refused_clearly():
+    p = oscillator_project(points=12, ndim=2)
+    with pytest.raises(InputError, match="factor"):
+        convergence_study(p, factor=1.0)
+    with pytest.raises(InputError, match="2 to 5 grids"):
+        convergence_study(p, grids=1)
+    with pytest.raises(InputError, match="too coarse"):
+        convergence_study(p, factor=2.0, grids=3)
+    with pytest.raises(InputError, match="levels"):
+        convergence_study(p, levels=-1)
+
+
+def test_refused_before_solving_when_memory_is_short(monkeypatch):
+    import core.estimate as est
+    monkeypatch.setattr(est, "available_memory_bytes", lambda: 10_000)
+    with pytest.raises(MemoryLimitError, match="coarser grid"):
+        convergence_study(oscillator_project(points=30, ndim=2, states=4))
+
+
+def test_cancel_stops_the_study():
+    calls = []
+
+    def stop():
+        calls.append(1)
+        return len(calls) > 1
+
+    with pytest.raises(Cancelled):
+        convergence_study(oscillator_project(points=40, ndim=2, states=4), should_stop=stop)
+
+
+def test_two_grids_and_progress():
+    """Two grids give an extrapolation but no observed order, and say so; progress reaches 1."""
+    seen = []
+    r = convergence_study(oscillator_project(points=40, ndim=2, states=3), grids=2,
+                          progress=lambda stage, f: seen.append((stage, f)))
+    assert len(r.grids) == 2 and np.all(np.isnan(r.observed_orders))
+    assert any("two grids" in w for w in r.warnings)
+    assert seen and max(f for _, f in seen) == pytest.approx(1.0)
+    assert all(stage.startswith("grid ") for stage, _ in seen)
+    exact = np.array([1.0, 2.0, 2.0])
+    assert np.all(np.abs(r.extrapolated - exact) <= r.errors)
+
+
+def test_finer_direction_keeps_the_project_grid_as_reference():
+    r = convergence_study(oscillator_project(points=16, ndim=2, states=3), grids=2, refine="finer")
+    assert r.reference_index == 0 and r.grids[0] == oscillator_project(points=16, ndim=2).grid
+    assert r.grids[1].points[0] > 16
+    assert any("not the finest" in w for w in r.warnings)
