@@ -182,7 +182,7 @@ class MainWindow(QMainWindow):
         s.path_changed.connect(self._update_title)
         s.project_changed.connect(self._update_title)
         s.notice.connect(lambda text: self.strip.show_message(text, "warn"))
-        s.sweep_started.connect(lambda: self.strip.sweep_label.setText("sweep 0%"))
+        s.sweep_started.connect(self._on_sweep_started)
         s.sweep_progressed.connect(lambda f: self.strip.sweep_label.setText(f"sweep {100 * f:.0f}%"))
         s.sweep_finished.connect(self._on_sweep_finished)
         s.sweep_failed.connect(self._on_sweep_failed)
@@ -427,6 +427,13 @@ class MainWindow(QMainWindow):
         keep = " The previous results are still shown." if self.session.result is not None else ""
         self.strip.show_message(f"Solve cancelled.{keep}", "warn")
 
+    def _on_sweep_started(self) -> None:
+        self.strip.sweep_label.setText("sweep 0%")
+        if not self._tick.isActive():
+            self._elapsed.start()
+            self._tick.start()
+        self.strip.show_message("Sweeping...")
+
     def _on_sweep_finished(self, _result) -> None:
         self.strip.sweep_label.setText("")
         self.strip.show_message("Sweep finished.", "ok")
@@ -533,6 +540,8 @@ def run_gui(args) -> int:
         QTimer.singleShot(0, window.offer_recovery)
         if do_solve:
             QTimer.singleShot(0, window.solve)
+        else:
+            QTimer.singleShot(300, window.session.warm_up)
     app.exec()
     window.session.shutdown()
     ref.clear()

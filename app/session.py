@@ -207,9 +207,14 @@ class Session(QObject):
         self._pending_mode: Optional[str] = None
         self._sweep_job: Optional[Job] = None
         self._finished_jobs: list = []
+        self._aux_jobs: list = []         # background work whose results nobody waits for (warm-up)
+        self._analyses: dict = {}
         self.last_solve_seconds: Optional[float] = None
         self._result_mode: Optional[str] = None       # how the latest result was started: live (warm) or cold
-        self.live_tolerance: Optional[float] = None   # None: the project's tolerance during drags too
+        #: residual tolerance of the warm-started solves during a drag (never tighter than the project's);
+        #: 1e-5 halves their cost against 1e-7 and still gives energies to ~1e-9 of the energy scale
+        #: (measured on the elliptical sample at 128^2); the confirming solve uses the project's own
+        self.live_tolerance: Optional[float] = 1e-5
 
         self._settings = settings if settings is not None else QSettings(ORGANIZATION, APPLICATION)
         if recovery_dir is None:
@@ -575,6 +580,14 @@ class Session(QObject):
         if self._solve_mode != "live" and job.tag[1] != self._project:
             job.cancel()
 
+    def add_result_analysis(self, name: str, fn) -> None:
+        """Run ``fn(result)`` in the worker after every solve and keep its value in
+        ``result.extra[name]`` (``result.extra[name + "_error"]`` holds the message if it raised).
+
+        For observables a view needs on every result (level labels, <L_z>, parities): computed
+        next to the solve, they never hold up the window.  ``fn`` must not touch widgets."""
+        self._analyses[str(name)] = fn
+
     def _start_solve(self, mode: str) -> None:
         from core.study import solve_project
         project = self._project
@@ -582,13 +595,24 @@ class Session(QObject):
         tolerance = None
         if mode == "live" and self.result is not None and self.result.grid == project.grid:
             start = self.result.spectrum.block()
-            tolerance = self.live_tolerance
+            if self.live_tolerance is not None:
+                tolerance = max(float(self.live_tolerance), project.solver.tolerance)
         self._solve_mode = mode
         self._pending_mode = None
 
+        analyses = dict(self._analyses)
+
         def work(progress, should_stop):
-            return solve_project(project, start=start, tolerance=tolerance, progress=progress,
-                                 should_stop=should_stop)
+            result = solve_project(project, start=start, tolerance=tolerance, progress=progress,
+                                   should_stop=should_stop)
+            for name, fn in analyses.items():
+                if should_stop():
+                    break
+                try:
+                    result.extra[name] = fn(result)
+                except Exception as exc:      # noqa: BLE001 - a label is never a reason to fail a solve
+                    result.extra[name + "_error"] = describe_error(exc)
+            return result
 
         job = Job(work, kind="solve", tag=(self._generation, project))
         job.progressed.connect(self.progressed)
@@ -646,6 +670,32 @@ class Session(QObject):
             self._start_solve(mode)
         elif self._solve_job is None and self._sweep_job is None:
             self.busy_changed.emit(False)
+
+    def warm_up(self) -> None:
+        """Load the solver's compiled kernels and lazy imports in the background, once.
+
+        The first solve of a process spends about a second loading numba's cached kernels, with
+        the interpreter lock held, which would freeze the window in the middle of the user's
+        first solve.  Doing it on a tiny problem right after the window opens moves that pause to
+        a moment when nothing is waiting."""
+        if self._shut_down or self._aux_jobs:
+            return
+        import dataclasses as dc
+
+        from core.grid import Grid
+
+        base = core_new_project()
+        tiny = dc.replace(base, grid=Grid([-120.0, -120.0], [120.0, 120.0], [40, 40]),
+                          solver=dc.replace(base.solver, states=2, scheme="fd2", tolerance=1e-4))
+
+        def work(progress, should_stop):
+            from core.study import solve_project
+            return solve_project(tiny, should_stop=should_stop)
+
+        job = Job(work, kind="warm-up")
+        job.finished.connect(lambda: self._finished_jobs.append(job))
+        self._aux_jobs.append(job)
+        job.start()
 
     # ------------------------------------------------------------------ sweeps
     def run_sweep(self, parameter: str, values: Sequence[float], states: Optional[int] = None, *,
@@ -737,7 +787,7 @@ class Session(QObject):
     # ------------------------------------------------------------------ shutdown
     def _cancel_jobs(self) -> None:
         self._pending_mode = None
-        for job in (self._solve_job, self._sweep_job):
+        for job in (self._solve_job, self._sweep_job, *self._aux_jobs):
             if job is not None:
                 job.cancel()
 
@@ -748,7 +798,7 @@ class Session(QObject):
         self._generation += 1            # results still in the event queue are dropped
         self._autosave_timer.stop()
         self._cancel_jobs()
-        for job in (self._solve_job, self._sweep_job):
+        for job in (self._solve_job, self._sweep_job, *self._aux_jobs):
             if job is not None:
                 job.join()
         self._solve_job = None

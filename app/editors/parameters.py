@@ -65,6 +65,13 @@ class ParameterRow(QWidget):
         grid.addWidget(self.range_label, 1, 1)
         grid.setColumnStretch(1, 1)
 
+        # slider events are coalesced: at most one live update per pass of the event loop, always
+        # the latest position, so a busy window skips positions instead of falling behind
+        self._live_pending: Optional[float] = None
+        self._live_timer = QTimer(self)
+        self._live_timer.setSingleShot(True)
+        self._live_timer.setInterval(0)
+        self._live_timer.timeout.connect(self._send_live)
         self._settle = QTimer(self)
         self._settle.setSingleShot(True)
         self._settle.setInterval(350)
@@ -101,16 +108,32 @@ class ParameterRow(QWidget):
     def _on_slider_moved(self, position: int) -> None:
         v = self.value_at(position)
         self.field.set_value(v)
-        self.panel.send(self.name, v, live=True)
+        self._live_pending = v
+        if not self._live_timer.isActive():
+            self._live_timer.start()
         if not self.slider.isSliderDown():
             self._settle.start()
 
+    def _send_live(self) -> None:
+        v, self._live_pending = self._live_pending, None
+        if v is not None:
+            self.panel.send(self.name, v, live=True)
+
+    def flush(self) -> None:
+        """Send a coalesced slider position now (tests, and before the release)."""
+        self._live_timer.stop()
+        self._send_live()
+
     def _on_slider_released(self) -> None:
         self._settle.stop()
+        self._live_timer.stop()              # the final value follows as the end of the drag
+        self._live_pending = None
         self.panel.send(self.name, self.value_at(self.slider.value()), live=False)
 
     def _settle_now(self) -> None:
         if not self.slider.isSliderDown():
+            self._live_timer.stop()
+            self._live_pending = None
             self.panel.send(self.name, self.value_at(self.slider.value()), live=False)
 
     def _on_field_committed(self, value) -> None:

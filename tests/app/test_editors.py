@@ -92,6 +92,7 @@ def test_slider_drag_is_live_and_one_undo_step(double_dot, qtbot):
         row.slider.setSliderDown(True)
         for pos in (600, 700, 800):
             row.slider.setValue(pos)
+            row.flush()                                      # slider events are coalesced per event-loop pass
         row.slider.setSliderDown(False)           # emits sliderReleased
     finally:
         double_dot.set_parameter = real
@@ -101,6 +102,18 @@ def test_slider_drag_is_live_and_one_undo_step(double_dot, qtbot):
     assert double_dot.undo_stack.count() == 1
     double_dot.undo_stack.undo()
     assert double_dot.project.parameters["eps"] == 0.0
+
+
+def test_slider_events_are_coalesced(double_dot, qtbot):
+    panel = make(ParametersPanel, double_dot, qtbot)
+    row = panel.rows["eps"]
+    row.slider.setSliderDown(True)
+    for pos in range(510, 610, 10):                          # ten moves before the loop runs
+        row.slider.setValue(pos)
+    qtbot.waitUntil(lambda: double_dot.project.parameters["eps"] != 0.0, timeout=2000)
+    assert double_dot.project.parameters["eps"] == pytest.approx(row.value_at(600))
+    row.slider.setSliderDown(False)
+    assert double_dot.undo_stack.count() == 1
 
 
 def test_typed_value_and_bad_value(double_dot, qtbot):

@@ -274,3 +274,26 @@ def test_sweep_runs_in_worker(session, qtbot):
     ground = np.asarray(sweep.energies)[:, 0]
     expected = [oscillator_levels(small_dot().with_parameters(hw=hw), 1)[0] for hw in (2.0, 3.0, 4.0)]
     np.testing.assert_allclose(ground, expected, rtol=1e-6)
+
+
+def test_result_analysis_runs_in_the_worker(session, qtbot):
+    import threading
+    seen = {}
+
+    def analyse(result):
+        seen["thread"] = threading.current_thread() is threading.main_thread()
+        return float(result.energies[0])
+
+    def broken(result):
+        raise ValueError("no labels today")
+
+    session.add_result_analysis("ground", analyse)
+    session.add_result_analysis("labels", broken)
+    session.set_project(small_dot(), "small grid")
+    with qtbot.waitSignal(session.solved, timeout=SOLVE_TIMEOUT_MS) as blocker:
+        session.solve()
+    wait_idle(qtbot, session)
+    result = blocker.args[0]
+    assert seen["thread"] is False
+    assert result.extra["ground"] == result.energies[0]
+    assert "no labels today" in result.extra["labels_error"]
