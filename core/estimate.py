@@ -181,8 +181,12 @@ def _suggestion(grid: Grid, states: int, complex_: bool, scheme: str, budget: fl
     if scheme != "spectral":
         parts.append("the spectral scheme (for a smooth potential it is accurate on far fewer points)")
     item = _state_bytes(complex_)
-    rows = budget / max(largest_factor, 1e-300) / (4.0 * n * item) - _EXTRA_ROWS
-    k_fit = int(math.floor((rows - 4) / 1.5)) if rows > 5 else 0
+    rows = (budget / max(largest_factor, 1e-300) - 6 * 8 * n) / (4.0 * n * item) - _EXTRA_ROWS
+    k_fit = 0
+    for k in range(int(states) - 1, 0, -1):      # the largest k whose block fits
+        if block_size(k) <= rows:
+            k_fit = k
+            break
     if 1 <= k_fit < states:
         parts.append(f"fewer states (about {k_fit} fit)")
     if grids > 1:
