@@ -6,9 +6,7 @@ no files itself: the :class:`app.session.Session` calls :mod:`core`.
 """
 from __future__ import annotations
 
-import os
 import sys
-import time
 import traceback
 from pathlib import Path
 from typing import Callable, Optional

@@ -37,7 +37,7 @@ import numpy as np
 from PySide6.QtCore import QObject, QSettings, QStandardPaths, QTimer, Signal
 from PySide6.QtGui import QUndoCommand, QUndoStack
 
-from core.errors import InputError, ProjectError, WellscapeError
+from core.errors import InputError, WellscapeError
 from core.project import (MapTerm, Project, load_project, new_project as core_new_project, project_from_dict,
                           project_to_dict, save_project)
 

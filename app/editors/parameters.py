@@ -10,11 +10,10 @@ from __future__ import annotations
 from typing import Optional
 
 from PySide6.QtCore import Qt, QTimer
-from PySide6.QtGui import QAction
 from PySide6.QtWidgets import (QDialog, QDialogButtonBox, QFormLayout, QGridLayout, QHBoxLayout, QLabel,
                                QLineEdit, QMenu, QPushButton, QSlider, QToolButton, QVBoxLayout, QWidget)
 
-from core.errors import InputError, WellscapeError
+from core.errors import WellscapeError
 
 from . import edits
 from .common import MessageLabel, ValueField, apply_edit, fmt

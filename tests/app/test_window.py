@@ -11,6 +11,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QFileDialog, QLabel
 
 from app.main import VIEW_SPECS, MainWindow
@@ -55,8 +56,7 @@ def test_open_every_sample(window, path, qtbot):
 def test_solve_through_the_worker(window, qtbot):
     window.session.set_project(small_dot(), "small grid")
     with qtbot.waitSignal(window.session.solved, timeout=SOLVE_TIMEOUT_MS) as blocker:
-        qtbot.mouseClick(window.strip.solve_button, qtbot.LeftButton if hasattr(qtbot, "LeftButton")
-                         else __import__("PySide6.QtCore").QtCore.Qt.MouseButton.LeftButton)
+        qtbot.mouseClick(window.strip.solve_button, Qt.MouseButton.LeftButton)
     wait_idle(qtbot, window.session)
     result = blocker.args[0]
     # Fock-Darwin levels at B = 0 (see tests/app/test_session.py::oscillator_levels); sinc-DVR converged
@@ -71,7 +71,7 @@ def test_cancel_a_solve(window, qtbot):
         window.solve()
     assert window.strip.cancel_button.isEnabled() and window.cancel_action.isEnabled()
     with qtbot.waitSignal(window.session.cancelled, timeout=SOLVE_TIMEOUT_MS):
-        qtbot.mouseClick(window.strip.cancel_button, __import__("PySide6.QtCore").QtCore.Qt.MouseButton.LeftButton)
+        qtbot.mouseClick(window.strip.cancel_button, Qt.MouseButton.LeftButton)
     wait_idle(qtbot, window.session)
     assert "cancelled" in window.strip.message.text().lower()
     assert window.session.result is None
