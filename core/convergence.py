@@ -421,7 +421,7 @@ def convergence_study(project: Project, *, factor: float = 1.5, grids: int = 3, 
     largest grid will not fit.
     """
     t0 = time.perf_counter()
-    k_report = int(levels or project.solver.states)
+    k_report = int(project.solver.states if levels is None else levels)
     if k_report < 1:
         raise InputError(f"levels must be a positive integer, got {levels!r}")
     gs = convergence_grids(project.grid, factor, grids, refine)

@@ -281,7 +281,7 @@ def estimate_convergence(project: Project, *, factor: float = 1.5, grids: int = 
     """Estimate a convergence study: one solve per grid (memory of the largest, time of all)."""
     from .convergence import study_states
     gs = convergence_grids(project.grid, factor, grids, refine)
-    k = study_states(int(levels or project.solver.states))
+    k = study_states(int(project.solver.states if levels is None else levels))
     largest = gs[-1]
     # one measured rate on the project's grid, scaled to the other grids (building a Hamiltonian on
     # each grid costs as much as evaluating its potential; measuring on each would cost more)
