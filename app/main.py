@@ -119,11 +119,13 @@ def _placeholder(title: str, reason: str) -> QWidget:
 class MainWindow(QMainWindow):
     """One project per window."""
 
-    def __init__(self, session: Optional[Session] = None, *, confirm_close: Optional[Callable] = None):
+    def __init__(self, session: Optional[Session] = None, *, confirm_close: Optional[Callable] = None,
+                 ask_restore: Optional[Callable] = None):
         super().__init__()
         configure_pyqtgraph()
         self.session = session if session is not None else Session(self)
         self.confirm_close = confirm_close or self._ask_save_changes
+        self.ask_restore = ask_restore or self._ask_restore
         self._closing = False
         self.setObjectName("WellscapeMainWindow")
 
@@ -345,27 +347,32 @@ class MainWindow(QMainWindow):
 
     def offer_recovery(self) -> None:
         """After a crash: offer the unsaved work that was left behind."""
-        entries = self.session.recoverable()
-        for entry in entries:
-            box = QMessageBox(self)
-            box.setIcon(QMessageBox.Icon.Question)
-            box.setWindowTitle("Restore unsaved work?")
-            where = entry.original.name if entry.original else "an unsaved project"
-            box.setText(f"Wellscape did not close normally. Unsaved changes to {where} "
-                        f"(\"{entry.title}\") from {entry.saved_at} were kept.\n\nRestore them?")
-            restore = box.addButton("Restore", QMessageBox.ButtonRole.AcceptRole)
-            box.addButton("Discard", QMessageBox.ButtonRole.DestructiveRole)
-            later = box.addButton("Not now", QMessageBox.ButtonRole.RejectRole)
-            box.exec()
-            clicked = box.clickedButton()
-            if clicked is restore:
+        for entry in self.session.recoverable():
+            answer = self.ask_restore(entry)
+            if answer == "restore":
+                if not self._may_discard():
+                    return
                 try:
                     self.session.restore(entry)
                 except WellscapeError as exc:
                     self.strip.show_message(f"Could not restore: {exc}", "error")
                 return
-            if clicked is not later:
+            if answer == "discard":
                 self.session.discard_recovery(entry)
+
+    def _ask_restore(self, entry) -> str:
+        box = QMessageBox(self)
+        box.setIcon(QMessageBox.Icon.Question)
+        box.setWindowTitle("Restore unsaved work?")
+        where = entry.original.name if entry.original else "an unsaved project"
+        box.setText(f"Wellscape did not close normally. Unsaved changes to {where} "
+                    f"(\"{entry.title}\") from {entry.saved_at} were kept.\n\nRestore them?")
+        restore = box.addButton("Restore", QMessageBox.ButtonRole.AcceptRole)
+        discard = box.addButton("Discard", QMessageBox.ButtonRole.DestructiveRole)
+        box.addButton("Not now", QMessageBox.ButtonRole.RejectRole)
+        box.exec()
+        clicked = box.clickedButton()
+        return "restore" if clicked is restore else "discard" if clicked is discard else "later"
 
     # -- solving ------------------------------------------------------------------------------------------
     def solve(self) -> None:

@@ -189,3 +189,20 @@ def test_screenshot_command(tmp_path):
     assert "Traceback" not in proc.stderr
     width, height = _png_size(out)
     assert width >= 800 and height >= 500
+
+
+def test_offers_to_restore_after_a_crash(session, settings, qtbot, tmp_path):
+    # a window that crashed left its recovery copy behind (its process, 999999999, is gone)
+    left = tmp_path / "left-behind.json"
+    save_project(dataclasses.replace(small_dot(), title="Work from before the crash"), left)
+    settings.setValue("recovery/999999999", [str(left), "", "2024-01-01 12:00:00", "Work from before the crash"])
+    asked = []
+    w = MainWindow(session=session, confirm_close=lambda: "discard",
+                   ask_restore=lambda entry: asked.append(entry.title) or "restore")
+    qtbot.addWidget(w)
+    w.offer_recovery()
+    assert asked == ["Work from before the crash"]
+    assert session.project.title == "Work from before the crash" and session.dirty
+    assert w.windowTitle().startswith("untitled*")
+    assert session.recoverable() == [] and not left.exists()
+    w.close()
