@@ -502,6 +502,15 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         degree = np.ceil(np.arccosh(target) / np.arccosh(xt)).astype(int)
         hardest = int(min(max(need - nlock, 1), p)) - 1
         dmax = int(np.clip(degree[: hardest + 1].max(), 4, 120))
+        # keep the filter's dynamic range resolvable: the lowest component present in the block must not
+        # outgrow the hardest wanted one by more than ~1e5, or SVQB drops the wanted directions as noise
+        first_random = not warm and iterations == 1
+        lowest_present = a0 if first_random else theta[0]
+        hard_theta = weyl_level_estimate(h, need) if first_random else theta[hardest]
+        span = (np.arccosh(max(abs((lowest_present - c) / e), 1.0 + 1e-12))
+                - np.arccosh(max(abs((hard_theta - c) / e), 1.0 + 1e-12)))
+        if span > 0:
+            dmax = int(max(4, min(dmax, np.floor(np.log(1e5) / span))))
         degree = np.clip(degree, 2, dmax)
         degree[hardest:] = dmax
         degree = np.maximum.accumulate(degree)          # non-decreasing, so active rows form a suffix
