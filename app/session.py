@@ -475,6 +475,8 @@ class Session(QObject):
         """Write the project to the recovery file if it has unsaved changes not yet written."""
         if self._shut_down or not self._dirty or self._autosaved is self._project:
             return False
+        if self._solve_mode == "live" or self._pending_mode == "live":
+            return False                  # mid-drag: the copy is written once the drag has settled
         try:
             self._recovery_dir.mkdir(parents=True, exist_ok=True)
             save_project(_absolute_map_paths(self._project), self._recovery_file)
