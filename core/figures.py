@@ -1805,35 +1805,9 @@ def sheet_from_dict(data: Any, *, source: str = "sheet") -> Sheet:
                  wellscape_version=r.text(d.get("wellscape_version", ""), "wellscape_version", limit=40))
 
 
-def _refuse_constant(name):
-    raise ValueError(f"{name} is not allowed in a sheet file")
-
-
 def load_sheet(path: Union[str, os.PathLike]) -> Sheet:
     """Read and validate ``NAME.sheet.json``; raises :class:`InputError` naming any problem."""
+    from .jsonfile import parse_json, read_text_file
     p = Path(path)
-    try:
-        size = p.stat().st_size
-    except FileNotFoundError:
-        raise InputError(f"no such sheet file: {p}") from None
-    except OSError as exc:
-        raise InputError(f"cannot read {p}: {exc.strerror or exc}") from None
-    if p.is_dir():
-        raise InputError(f"{p} is a folder, not a sheet file")
-    if size > MAX_SHEET_BYTES:
-        raise InputError(f"{p} is {size / 2**20:.0f} MiB, more than a sheet file holds")
-    try:
-        text = p.read_bytes().decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise InputError(f"{p} is not UTF-8 text (byte {exc.start})") from None
-    except OSError as exc:
-        raise InputError(f"cannot read {p}: {exc.strerror or exc}") from None
-    try:
-        data = json.loads(text, parse_constant=_refuse_constant)
-    except json.JSONDecodeError as exc:
-        raise InputError(f"{p} is not valid JSON: {exc.msg} at line {exc.lineno}, column {exc.colno}") from None
-    except ValueError as exc:
-        raise InputError(f"{p}: {exc}") from None
-    except RecursionError:
-        raise InputError(f"{p}: the JSON is nested too deeply") from None
+    data = parse_json(read_text_file(p, kind="sheet file", max_bytes=MAX_SHEET_BYTES), source=str(p))
     return sheet_from_dict(data, source=str(p))

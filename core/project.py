@@ -40,6 +40,7 @@ from typing import Any, Callable, Optional, Union
 from .errors import FormulaError, InputError, ProjectError
 from .formula import RESERVED_NAMES, parse_formula
 from .grid import BOUNDARIES, Grid
+from .jsonfile import parse_json, read_text_file
 from .kinetic import SCHEMES
 from .materials import get_material, material_names
 from .units import UNIT_SYSTEMS
@@ -569,42 +570,14 @@ def project_to_json(project: Project) -> str:
 
 
 def project_from_json(text: str, *, base_dir: Optional[str] = None, source: str = "project") -> Project:
-    try:
-        data = json.loads(text, parse_constant=_refuse_constant)
-    except json.JSONDecodeError as exc:
-        raise ProjectError(f"{source} is not valid JSON: {exc.msg} at line {exc.lineno}, column {exc.colno}") from None
-    except ValueError as exc:
-        raise ProjectError(f"{source}: {exc}") from None
-    except RecursionError:
-        raise ProjectError(f"{source}: the JSON is nested too deeply") from None
-    return project_from_dict(data, base_dir=base_dir)
-
-
-def _refuse_constant(name):
-    raise ValueError(f"{name} is not allowed in a project file; use a finite number")
+    return project_from_dict(parse_json(text, source=source, error=ProjectError), base_dir=base_dir)
 
 
 def load_project(path: Union[str, os.PathLike]) -> Project:
     """Read and validate a project file. Raises ProjectError (or InputError) naming the problem."""
     p = Path(path)
-    try:
-        size = p.stat().st_size
-    except FileNotFoundError:
-        raise ProjectError(f"no such project file: {p}") from None
-    except OSError as exc:
-        raise ProjectError(f"cannot read {p}: {exc.strerror or exc}") from None
-    if p.is_dir():
-        raise ProjectError(f"{p} is a folder, not a project file")
-    if size > MAX_FILE_BYTES:
-        raise ProjectError(f"{p} is {size / 2**20:.0f} MiB; a project file is small JSON (put arrays in map files)")
-    try:
-        raw = p.read_bytes()
-    except OSError as exc:
-        raise ProjectError(f"cannot read {p}: {exc.strerror or exc}") from None
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise ProjectError(f"{p} is not UTF-8 text (byte {exc.start}); project files are UTF-8 JSON") from None
+    text = read_text_file(p, kind="project file", max_bytes=MAX_FILE_BYTES, error=ProjectError,
+                          too_big_hint=" (put arrays in map files)")
     return project_from_json(text, base_dir=str(p.resolve().parent), source=str(p))
 
 
