@@ -54,13 +54,15 @@ DENSE_LIMIT = 300
 
 # Fill of SuperLU's L+U (MMD on A+A^T, symmetric mode) per row, measured on this kind of machine
 # for second-order differences (stencil half-width 1) and fitted as c * (N / 4096)**e:
-#   2D: 31, 40, 52 per row at 64^2, 128^2, 256^2;  3D: 149, 294, 480 per row at 16^3, 24^3, 32^3.
+#   2D: 31, 40, 52 per row at 64^2, 128^2, 256^2;
+#   3D: 149, 294, 480, 946 per row at 16^3, 24^3, 32^3, 48^3 (the fit gives 1076 at 48^3).
 # Wider stencils scale the fill by about r^2 (measured r^1.85 for fd8 in 2D, r^2.07 for fd4 in 3D).
 # The spectral scheme couples whole lines, so its factor is taken as dense.  The estimate is then
-# doubled: it is used to refuse, so it must not be low.
+# multiplied by 1.5: it is used to refuse, so it must not be low.  At 64^3 it gives about 11 GiB
+# where about 8 GB were measured.
 _FILL_FIT = {1: (4.0, 0.0), 2: (31.0, 0.2), 3: (149.0, 0.6)}
-_FILL_SAFETY = 2.0
-_BYTES_PER_FACTOR_ENTRY = 20      # value, row index and SuperLU's supernodal bookkeeping (measured 10-16)
+_FILL_SAFETY = 1.5
+_BYTES_PER_FACTOR_ENTRY = 16      # value, row index and SuperLU's supernodal bookkeeping (measured 9.5-16)
 _SECONDS_PER_FLOP_UNIT = 1.0e-9   # time ~ c * nnz(L+U)^2 / N; c measured 0.85-1.0e-9 s in 3D here (rough)
 
 
