@@ -429,7 +429,9 @@ def convergence_study(project: Project, *, factor: float = 1.5, grids: int = 3, 
                          refine=refine, measure=False).check()
     ref_index = gs.index(project.grid) if project.grid in gs else (len(gs) - 1 if refine == "coarser" else 0)
     if scheme is None:
-        scheme = project_hamiltonian(project, parameters=parameters)[3]
+        scheme = project.solver.scheme
+        if scheme == "auto":       # decided once, on the project's grid
+            scheme = project_hamiltonian(project, parameters=parameters)[3]
     expected = scheme_order(scheme)
     k_solve = study_states(k_report)
     common = gs[0]                                       # overlaps are taken on the coarsest grid
