@@ -5,7 +5,7 @@ import math
 from typing import Callable, Iterable, Optional
 
 from PySide6.QtCore import Qt, Signal
-from PySide6.QtWidgets import QFrame, QLabel, QLineEdit, QSizePolicy, QWidget
+from PySide6.QtWidgets import QComboBox, QFrame, QLabel, QLineEdit, QSizePolicy, QWidget
 
 from core.errors import FormulaError, WellscapeError
 from core.formula import parse_formula
@@ -54,6 +54,22 @@ class MessageLabel(QLabel):
     @property
     def is_error(self) -> bool:
         return not self.isHidden() and bool(self.text()) and self.styleSheet() == ERROR_STYLE
+
+
+def compact(combo: QComboBox, chars: int = 10) -> QComboBox:
+    """Let a combo box be narrower than its longest item (the column is narrow; the list pops up wide)."""
+    combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
+    combo.setMinimumContentsLength(chars)
+    combo.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Fixed)
+    return combo
+
+
+def wrapped(text: str = "", *, hint: bool = False) -> QLabel:
+    label = QLabel(text)
+    label.setWordWrap(True)
+    if hint:
+        label.setStyleSheet(HINT_STYLE)
+    return label
 
 
 def hline() -> QFrame:

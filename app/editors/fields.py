@@ -29,7 +29,9 @@ class FieldsPanel(QWidget):
         for a, f in enumerate(self.magnetic):
             f.committed.connect(lambda v, a=a: self._set_component("magnetic_field", a, v))
         self.electric_title = QLabel()
+        self.electric_title.setWordWrap(True)
         self.magnetic_title = QLabel()
+        self.magnetic_title.setWordWrap(True)
         erow, mrow = QHBoxLayout(), QHBoxLayout()
         self.electric_labels = []
         for a in range(3):
@@ -43,7 +45,8 @@ class FieldsPanel(QWidget):
         self.term_hint.setWordWrap(True)
         self.add_term_button = QPushButton("Add a uniform-field term")
         self.add_term_button.clicked.connect(self.add_field_term)
-        self.spin = QCheckBox("Include spin (Zeeman splitting of every orbital level)")
+        self.spin = QCheckBox("Include spin (Zeeman splitting)")
+        self.spin.setToolTip("Each orbital level splits into two, by g* mu_B B")
         self.spin.toggled.connect(self._on_spin)
         form = QFormLayout()
         form.addRow(self.electric_title)
@@ -55,7 +58,9 @@ class FieldsPanel(QWidget):
         form.addRow(self.spin)
         lay = QVBoxLayout(self)
         lay.addLayout(form)
-        lay.addWidget(QLabel("Each component is a number or a formula of parameters (e.g. B for a sweep)."))
+        note = QLabel("Each component is a number or a formula of parameters (e.g. B, to sweep it).")
+        note.setWordWrap(True)
+        lay.addWidget(note)
         lay.addWidget(self.message)
         lay.addStretch(1)
         session.project_changed.connect(self.refresh)

@@ -42,6 +42,7 @@ class GatesEditor(QWidget):
         self.lever.committed.connect(lambda v: self._edit_term(lever=v))
         self.depth_unit = QLabel()
         form = QFormLayout()
+        form.setRowWrapPolicy(QFormLayout.RowWrapPolicy.WrapLongRows)
         drow = QHBoxLayout()
         drow.addWidget(self.depth)
         drow.addWidget(self.depth_unit)

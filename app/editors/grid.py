@@ -12,7 +12,7 @@ from core.errors import InputError, WellscapeError
 from core.grid import HARD_WALL, PERIODIC, Grid
 from core.resources import available_memory_bytes, format_bytes
 
-from .common import MessageLabel, apply_edit, fmt
+from .common import MessageLabel, apply_edit, compact, fmt
 
 __all__ = ["GridPanel", "memory_estimate"]
 
@@ -57,6 +57,7 @@ class GridPanel(QWidget):
             pts.setKeyboardTracking(False)
             bnd = QComboBox()
             bnd.addItems(list(BOUNDARY_NAMES.values()))
+            compact(bnd, 6)
             label = QLabel(name)
             for w in (lo, hi):
                 w.setMaximumWidth(80)

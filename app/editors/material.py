@@ -5,6 +5,7 @@ import dataclasses
 import re
 from typing import Optional
 
+from PySide6.QtCore import Qt
 from PySide6.QtWidgets import (QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QHBoxLayout, QLabel,
                                QLineEdit, QVBoxLayout, QWidget)
 
@@ -13,7 +14,7 @@ from core.materials import ALGAAS_X_MAX, get_material, material_names
 from core.project import MaterialSpec
 from core.units import UNIT_SYSTEMS
 
-from .common import MessageLabel, ValueField, apply_edit, fmt, parse_value
+from .common import MessageLabel, ValueField, apply_edit, compact, fmt, parse_value
 
 __all__ = ["MaterialPanel"]
 
@@ -23,7 +24,7 @@ _ALLOY_RE = re.compile(r"^al(\d+(?:\.\d*)?|\.\d+)ga", re.IGNORECASE)
 
 
 def _units_text(u) -> str:
-    return f"{u.name}: lengths in {u.length_unit}, energies in {u.energy_unit}, masses in {u.mass_unit}"
+    return f"{u.name} ({u.length_unit}, {u.energy_unit}, {u.mass_unit})"
 
 
 class MaterialPanel(QWidget):
@@ -35,9 +36,14 @@ class MaterialPanel(QWidget):
         self.units = QComboBox()
         for name, u in UNIT_SYSTEMS.items():
             self.units.addItem(_units_text(u), name)
+        for name, u in UNIT_SYSTEMS.items():
+            self.units.setItemData(self.units.findData(name), f"lengths in {u.length_unit}, energies in "
+                                   f"{u.energy_unit}, masses in {u.mass_unit}", Qt.ItemDataRole.ToolTipRole)
+        compact(self.units)
         self.units.currentIndexChanged.connect(self._on_units)
         self.material = QComboBox()
         self.material.addItems([n for n in material_names() if n != ALLOY] + [ALLOY, CUSTOM])
+        compact(self.material, 8)
         self.material.currentTextChanged.connect(self._on_material)
         self.fraction = QDoubleSpinBox()
         self.fraction.setRange(0.0, ALGAAS_X_MAX)
@@ -76,6 +82,7 @@ class MaterialPanel(QWidget):
         g_row.addWidget(self.g_factor, 1)
         g_row.addWidget(self.override_g)
         form = QFormLayout()
+        form.setRowWrapPolicy(QFormLayout.RowWrapPolicy.WrapLongRows)
         form.addRow("Units", self.units)
         form.addRow("Material", mrow)
         form.addRow("", self.table_values)

@@ -4,21 +4,28 @@ from __future__ import annotations
 import dataclasses
 from typing import Optional
 
+from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QComboBox, QFormLayout, QLabel, QLineEdit, QSpinBox, QVBoxLayout, QWidget
 
 from core.kinetic import SCHEMES
 
-from .common import MessageLabel, apply_edit
+from .common import MessageLabel, apply_edit, compact
 
 __all__ = ["SolverPanel", "SCHEME_NAMES"]
 
 SCHEME_NAMES = {
-    "auto": "automatic (chosen from the potential's smoothness)",
-    "fd2": "2nd-order differences (best with steps)",
+    "auto": "automatic",
+    "fd2": "2nd-order differences",
     "fd4": "4th-order differences",
     "fd6": "6th-order differences",
     "fd8": "8th-order differences",
-    "spectral": "spectral sinc-DVR (smooth potentials)",
+    "spectral": "spectral (sinc-DVR)",
+}
+SCHEME_TIPS = {
+    "auto": "Chosen from the potential's smoothness: spectral for smooth potentials, 2nd-order differences "
+            "for steps",
+    "fd2": "Robust with steps and hard walls; converges as the grid spacing squared",
+    "spectral": "Converges faster than any power of the spacing on smooth potentials (few points needed)",
 }
 
 
@@ -37,6 +44,9 @@ class SolverPanel(QWidget):
         self.scheme = QComboBox()
         for s in ("auto",) + tuple(SCHEMES):
             self.scheme.addItem(SCHEME_NAMES.get(s, s), s)
+            if s in SCHEME_TIPS:
+                self.scheme.setItemData(self.scheme.count() - 1, SCHEME_TIPS[s], Qt.ItemDataRole.ToolTipRole)
+        compact(self.scheme)
         self.scheme.currentIndexChanged.connect(self._commit)
         self.tolerance = QLineEdit()
         self.tolerance.setToolTip("Residual tolerance relative to the energy scale (e.g. 1e-7); energies are "

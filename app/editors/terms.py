@@ -16,7 +16,7 @@ from core.maps import INTERPOLATION_METHODS
 from core.project import FieldTerm, FormulaTerm, GatesTerm, MapTerm
 
 from . import edits
-from .common import MessageLabel, ValueField, apply_edit, fmt
+from .common import MessageLabel, ValueField, apply_edit, compact, fmt
 from .formula import FormulaEditor
 from .gates import GatesEditor
 
@@ -52,11 +52,13 @@ class MapEditor(QWidget):
         self.scale.committed.connect(lambda v: self._edit(scale=v))
         self.method = QComboBox()
         self.method.addItems(list(INTERPOLATION_METHODS))
+        compact(self.method, 6)
         self.method.currentTextChanged.connect(lambda m: self._edit(method=m))
         frow = QHBoxLayout()
         frow.addWidget(self.file, 1)
         frow.addWidget(self.browse)
         form = QFormLayout(self)
+        form.setRowWrapPolicy(QFormLayout.RowWrapPolicy.WrapLongRows)
         form.setContentsMargins(0, 0, 0, 0)
         form.addRow("File", frow)
         form.addRow("Array name", self.array)
