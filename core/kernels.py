@@ -49,7 +49,7 @@ def neighbour_table(n: int, radius: int, periodic: bool):
     return idx, sgn
 
 
-@njit(parallel=True, cache=True, fastmath=False, error_model="numpy")
+@njit(parallel=True, cache=True, nogil=True, fastmath=False, error_model="numpy")
 def fd_step_real(X, V, cx, cy, cz, ix, sx, iy, sy, iz, sz, alpha, shift, beta, Z, Y):  # pragma: no cover - compiled
     m, n0, n1, n2 = X.shape
     rx = cx.shape[0] - 1
@@ -106,7 +106,7 @@ def _row_real(X, Y, Z, vl, b, i, j, n2, d0, cx, cy, cz, ix, sx, iy, sy, iz, sz,
             yl[k] = alpha * yl[k] + beta * zl[k]
 
 
-@njit(parallel=True, cache=True, fastmath=False)
+@njit(parallel=True, cache=True, nogil=True, fastmath=False)
 def fd_step_phased(X, V, cx, cy, cz, ix, sx, iy, sy, iz, sz, px, py, pz,
                    alpha, shift, beta, Z, Y):  # pragma: no cover - compiled
     m, n0, n1, n2 = X.shape

@@ -419,7 +419,9 @@ def test_region_probability_matches_core_and_gaussian(qtbot, r2e):
     view.set_region("polygon", vertices=poly)
     np.testing.assert_array_equal(view.region_mask(), polygon_mask(grid, poly))
     assert view.region_probability() == probability_in_region(grid, r2e.states[:1], polygon_mask(grid, poly))[0]
-    assert view.region_probability() == pytest.approx(0.5, abs=1e-9)
+    # the solved state is mirror-symmetric only to the solver's tolerance (relative residual 1e-7), so
+    # its weight on each half differs from 1/2 by at most ~1e-7 (measured 1e-8)
+    assert view.region_probability() == pytest.approx(0.5, abs=1e-6)
 
 
 def test_states_view_1d_and_3d(qtbot, r1, r3):
