@@ -175,6 +175,9 @@ class LevelsView(QtWidgets.QWidget):
         session.project_changed.connect(self._on_project_changed)
         if hasattr(session, "degeneracy_changed"):
             session.degeneracy_changed.connect(self._on_degeneracy_changed)
+        if hasattr(session, "add_result_analysis"):
+            # labels need <L_z> per multiplet: compute them in the solve's worker, not on the GUI thread
+            session.add_result_analysis("level_labels", lambda r: level_labels(r, r.groups))
         if getattr(session, "result", None) is not None:
             self._on_solved(session.result)
 
@@ -242,7 +245,8 @@ class LevelsView(QtWidgets.QWidget):
         result = self.result
         tol = getattr(self.session, "degeneracy_tolerance", None)
         self.groups = result.groups if tol is None else group_levels(result.energies, float(tol))
-        self.labels = level_labels(result, self.groups)
+        ready = getattr(result, "extra", {}).get("level_labels") if tol is None else None
+        self.labels = ready if ready is not None else level_labels(result, self.groups)
         self._draw()
 
     def _shown(self, e: float) -> float:
