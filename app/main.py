@@ -216,6 +216,11 @@ class MainWindow(QMainWindow):
         a.triggered.connect(slot)
         return a
 
+    def export_sheet(self) -> None:
+        from app.export_dialog import ExportSheetDialog
+        dialog = ExportSheetDialog(self.session, self)
+        dialog.exec()
+
     def _build_menus(self) -> None:
         mb = self.menuBar()
         f = mb.addMenu("&File")
@@ -234,6 +239,9 @@ class MainWindow(QMainWindow):
         self.save_as_action = self._action("Save &as...", self.save_as, QKeySequence.StandardKey.SaveAs)
         f.addAction(self.save_action)
         f.addAction(self.save_as_action)
+        f.addSeparator()
+        f.addAction(self._action("&Export figure sheet...", self.export_sheet, None,
+                                 "A multi-panel figure (PDF, SVG or PNG) of the latest results, with its data"))
         f.addSeparator()
         f.addAction(self._action("&Quit", self.close, QKeySequence.StandardKey.Quit))
 
