@@ -352,23 +352,30 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
             and all(_coarse_points(nn, per) >= 16 for nn, per in zip(h.grid.shape, h.grid.periodic))):
         start = _coarse_start(h, k, guard, tol, degeneracy_tolerance, should_stop, progress)
         coarse_note = "started from a solve on a grid half as fine"
+    blk = np.empty((m, n), dtype=dtype)
+    x0 = None
     if start is not None:
         st = np.asarray(start)
         if st.shape[1:] != h.grid.shape and st.shape != h.grid.shape:
             raise InputError(f"start vectors have shape {st.shape}, expected (m, {h.grid.shape})")
-        st = st.reshape(-1, n).astype(np.result_type(st.dtype, dtype), copy=True)
-        if np.issubdtype(st.dtype, np.complexfloating) and dtype == np.float64:
-            st = np.concatenate([st.real, st.imag])
-        st = st[np.linalg.norm(st, axis=1) > 0][:m]
-        x0 = np.concatenate([st, _random_block(rng, m - len(st), n, dtype)]) if len(st) < m else st
-        x0 = x0.astype(dtype, copy=False)
+        st = st.reshape(-1, n)
+        # fill the block row by row (no block-sized temporaries: peak memory matters on large grids)
+        rows = 0
+        parts = (lambda r: (r.real, r.imag)) if (np.iscomplexobj(st) and dtype == np.float64) else (lambda r: (r,))
+        for row in st:
+            for part in parts(row):
+                if rows < m and np.any(part):
+                    blk[rows] = part
+                    rows += 1
+        for i in range(rows, m):
+            blk[i] = _random_block(rng, 1, n, dtype)[0]
+        del st, start
+        x0 = True
         warm = True
     else:
-        x0 = None
         warm = False
 
     buf = [np.empty((m, n), dtype=dtype) for _ in range(3)]
-    blk = np.empty((m, n), dtype=dtype)
 
     def rayleigh_ritz(q, count_locked, hq_buf, tmp_buf):
         """RR on orthonormal rows q; Ritz vectors go to blk[count_locked:]; returns theta, residual norms."""
@@ -401,9 +408,6 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
                 blk[i] = _random_block(rng, 1, n, dtype)[0]
         else:
             rng.standard_normal(out=blk)
-    else:
-        blk[:] = x0
-        del x0
     theta, res = orthonormalize_and_rr(blk[:m], 0)
     nlock = 0
     locked_theta = np.empty(0)
