@@ -15,12 +15,12 @@ import csv
 import io
 import json
 import os
-import tempfile
 from pathlib import Path
 from typing import Optional, Sequence, Union
 
 import numpy as np
 
+from .atomic import atomic_write
 from .errors import InputError
 
 __all__ = ["levels_csv_text", "write_levels_csv", "write_states_npz", "read_states_npz", "sweep_csv_text",
@@ -34,40 +34,8 @@ PathLike = Union[str, os.PathLike]
 # --- helpers ---------------------------------------------------------------------------------
 
 def _atomic(path: PathLike, write) -> Path:
-    """Call ``write(tmp_path)`` and move the result to ``path``; clean up on failure."""
-    p = Path(path)
-    folder = p.parent if str(p.parent) else Path(".")
-    if not folder.is_dir():
-        raise InputError(f"cannot write {p}: the folder {folder} does not exist")
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=p.suffix or ".tmp", dir=folder)
-        os.close(fd)
-    except OSError as exc:
-        raise InputError(f"cannot write in {folder}: {exc.strerror or exc}") from None
-    try:
-        write(tmp)
-        try:
-            mode = os.stat(p).st_mode & 0o7777
-        except OSError:
-            umask = os.umask(0)
-            os.umask(umask)
-            mode = 0o666 & ~umask
-        os.chmod(tmp, mode)
-        os.replace(tmp, p)
-    except OSError as exc:
-        _unlink(tmp)
-        raise InputError(f"cannot write {p}: {exc.strerror or exc}") from None
-    except BaseException:
-        _unlink(tmp)
-        raise
-    return p
-
-
-def _unlink(path) -> None:
-    try:
-        os.unlink(path)
-    except OSError:
-        pass
+    """Call ``write(tmp_path)`` and move the result to ``path`` (see :func:`core.atomic.atomic_write`)."""
+    return atomic_write(path, write)
 
 
 def _write_text(path: PathLike, text: str) -> Path:

@@ -40,7 +40,6 @@ import json
 import math
 import os
 import re
-import tempfile
 import textwrap
 from dataclasses import dataclass
 from pathlib import Path
@@ -48,6 +47,7 @@ from typing import Any, Optional, Sequence, Union
 
 import numpy as np
 
+from .atomic import atomic_write
 from .errors import InputError
 
 __all__ = ["Sheet", "Template", "TEMPLATES", "LAYOUTS", "DEFAULT_LAYOUT", "DEFAULT_SWEEP_LAYOUT",
@@ -1424,42 +1424,14 @@ def render_sheet(sheet: Sheet, path: Union[str, os.PathLike], *, dpi: float = 20
                     "Description": f"project hash {sheet.project_hash}"}
     else:
         metadata = {"Title": meta_title, "Software": creator, "Description": f"project hash {sheet.project_hash}"}
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=f".{fmt}", dir=folder)
-        os.close(fd)
-    except OSError as exc:
-        raise InputError(f"cannot write in {folder}: {exc.strerror or exc}") from None
-    try:
+    def draw(tmp):
         with matplotlib.rc_context(_rc(t)):
             fig = _figure_in_context(sheet, t, cols)
             if fmt == "png":
                 FigureCanvasAgg(fig)
             fig.savefig(tmp, format=fmt, dpi=dpi, metadata=metadata)
-        os.chmod(tmp, _file_mode(p))
-        os.replace(tmp, p)
-    except OSError as exc:
-        _unlink(tmp)
-        raise InputError(f"cannot write {p}: {exc.strerror or exc}") from None
-    except BaseException:
-        _unlink(tmp)
-        raise
-    return p
 
-
-def _file_mode(path: Path) -> int:
-    try:
-        return os.stat(path).st_mode & 0o7777
-    except OSError:
-        umask = os.umask(0)
-        os.umask(umask)
-        return 0o666 & ~umask
-
-
-def _unlink(path) -> None:
-    try:
-        os.unlink(path)
-    except OSError:
-        pass
+    return atomic_write(p, draw, suffix=f".{fmt}")
 
 
 def sheet_json_path(figure_path: Union[str, os.PathLike]) -> Path:
@@ -1508,22 +1480,7 @@ def _check_replaceable(path: Path) -> None:
 
 
 def _atomic_text(path: Path, text: str) -> None:
-    folder = path.parent if str(path.parent) else Path(".")
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
-    except OSError as exc:
-        raise InputError(f"cannot write in {folder}: {exc.strerror or exc}") from None
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-        os.chmod(tmp, _file_mode(path))
-        os.replace(tmp, path)
-    except OSError as exc:
-        _unlink(tmp)
-        raise InputError(f"cannot write {path}: {exc.strerror or exc}") from None
-    except BaseException:
-        _unlink(tmp)
-        raise
+    atomic_write(path, data=text.encode("utf-8"), suffix=".tmp")
 
 
 # --- the sheet's JSON document ------------------------------------------------------------------

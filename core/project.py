@@ -32,11 +32,11 @@ import json
 import math
 import os
 import re
-import tempfile
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Callable, Optional, Union
 
+from .atomic import atomic_write
 from .errors import FormulaError, InputError, ProjectError
 from .formula import RESERVED_NAMES, parse_formula
 from .grid import BOUNDARIES, Grid
@@ -589,7 +589,6 @@ def save_project(project: Project, path: Union[str, os.PathLike]) -> Path:
     """
     p = Path(path)
     text = project_to_json(project)
-    folder = p.parent if str(p.parent) else Path(".")
     if p.exists():
         try:
             old = json.loads(p.read_text(encoding="utf-8-sig"))
@@ -598,34 +597,6 @@ def save_project(project: Project, path: Union[str, os.PathLike]) -> Path:
             old_version = None
         if isinstance(old_version, int) and old_version < CURRENT_SCHEMA_VERSION:
             bak = p.with_name(p.name + ".bak")
-            _atomic_write(bak, p.read_bytes(), folder)
-    _atomic_write(p, text.encode("utf-8"), folder)
+            atomic_write(bak, data=p.read_bytes(), verb="save")
+    atomic_write(p, data=text.encode("utf-8"), verb="save")
     return p
-
-
-def _atomic_write(path: Path, data: bytes, folder: Path) -> None:
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
-    except OSError as exc:
-        raise InputError(f"cannot write in {folder}: {exc.strerror or exc}") from None
-    try:
-        try:
-            mode = os.stat(path).st_mode & 0o7777
-        except OSError:
-            umask = os.umask(0)
-            os.umask(umask)
-            mode = 0o666 & ~umask
-        os.chmod(tmp, mode)
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException as exc:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        if isinstance(exc, OSError):
-            raise InputError(f"cannot save {path}: {exc.strerror or exc}") from None
-        raise
