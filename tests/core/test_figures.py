@@ -187,10 +187,14 @@ def test_regenerating_from_the_sheet_json_plots_the_same_values(sheet, fig, tmp_
             if isinstance(value, np.ndarray):
                 assert np.array_equal(value, b[key]), (a["kind"], key)     # exact, float64 round trip
     first, second = _plotted(fig), _plotted(sheet_figure(again))
-    for (ims1, lines1), (ims2, lines2) in zip(first, second):
+    for panel, (ims1, lines1), (ims2, lines2) in zip(sheet.panels, first, second):
         assert len(ims1) == len(ims2) and len(lines1) == len(lines2)
         assert all(np.array_equal(u, v, equal_nan=True) for u, v in zip(ims1, ims2))
-        assert all(np.array_equal(u, v, equal_nan=True) for u, v in zip(lines1, lines2))  # NaN breaks lines
+        # the level diagram's bar widths are layout (they follow text extents); its energies are the data
+        cols = slice(1, 2) if panel["kind"] == "levels" else slice(None)
+        bad = [(u[:3].tolist(), v[:3].tolist()) for u, v in zip(lines1, lines2)
+               if not np.array_equal(u[:, cols], v[:, cols], equal_nan=True)]   # NaN breaks lines
+        assert not bad, bad
     redrawn = render_sheet(again, tmp_path / "again.png", dpi=50)
     assert np.array_equal(np.asarray(Image.open(fig_path)), np.asarray(Image.open(redrawn)))
 
