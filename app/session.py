@@ -180,6 +180,7 @@ class Session(QObject):
     degeneracy_changed = Signal()
     notice = Signal(str)              # a one-line message for the status strip (warnings, autosave trouble)
     busy_changed = Signal(bool)       # a solve or sweep started or ended
+    estimated = Signal(object)        # core.estimate.Estimate of a solve that is about to run (not live ones)
 
     def __init__(self, parent: Optional[QObject] = None, *, project: Optional[Project] = None,
                  settings: Optional[QSettings] = None, recovery_dir: Optional[Path] = None,
@@ -230,6 +231,10 @@ class Session(QObject):
         self._autosave_timer.timeout.connect(self.autosave)
         self._autosave_timer.start()
         self._shut_down = False
+        from .checks import NumberChecks
+        #: convergence studies and level-count certificates of this session's project and results
+        self.checks = NumberChecks(self)
+        self.checks.changed.connect(self.degeneracy_changed)     # a study may bring an error-based tolerance
 
     # ------------------------------------------------------------------ properties
     @property
@@ -295,10 +300,30 @@ class Session(QObject):
             self.degeneracy_changed.emit()
 
     def effective_degeneracy_tolerance(self) -> Optional[float]:
-        """The tolerance in use: the user's, else the latest solve's (None before any solve)."""
+        """The tolerance in use: the user's; else one built from the error estimates of a convergence
+        study of this result's project (:func:`core.convergence.default_degeneracy_tolerance`); else
+        the latest solve's (None before any solve)."""
         if self._degeneracy_tolerance is not None:
             return self._degeneracy_tolerance
-        return None if self.result is None else float(self.result.spectrum.degeneracy_tolerance)
+        if self.result is None:
+            return None
+        tol = self.error_based_tolerance()
+        return tol if tol is not None else float(self.result.spectrum.degeneracy_tolerance)
+
+    def error_based_tolerance(self) -> Optional[float]:
+        """The degeneracy tolerance built from a convergence study of the latest result's project, if any."""
+        report = self.checks.report_for(self.result) if self.result is not None else None
+        if report is None:
+            return None
+        from core.convergence import default_degeneracy_tolerance
+        tol = float(default_degeneracy_tolerance(report))
+        return tol if tol > 0 else None
+
+    @property
+    def result_mode(self) -> Optional[str]:
+        """How the latest result was started: "live" (a warm solve during a slider drag), "settle"
+        (the confirming solve after one) or "manual"; None before any solve."""
+        return self._result_mode
 
     def groups(self) -> tuple:
         """Degenerate multiplets of the latest result (tuples of level indices) at the tolerance in use."""
@@ -603,8 +628,14 @@ class Session(QObject):
         self._pending_mode = None
 
         analyses = dict(self._analyses)
+        live = mode == "live"
 
-        def work(progress, should_stop):
+        def work(progress, should_stop, note):
+            if not live:
+                from core.estimate import estimate_solve
+                est = estimate_solve(project)
+                note(est)
+                est.check()        # refused before any large allocation, with a suggestion
             result = solve_project(project, start=start, tolerance=tolerance, progress=progress,
                                    should_stop=should_stop)
             for name, fn in analyses.items():
@@ -616,8 +647,9 @@ class Session(QObject):
                     result.extra[name + "_error"] = describe_error(exc)
             return result
 
-        job = Job(work, kind="solve", tag=(self._generation, project))
+        job = Job(work, kind="solve", tag=(self._generation, project), notes=True)
         job.progressed.connect(self.progressed)
+        job.noted.connect(self._on_estimated)
         job.solved.connect(self._on_solved)
         job.failed.connect(self._on_solve_failed)
         job.cancelled.connect(self._on_solve_cancelled)
@@ -627,6 +659,11 @@ class Session(QObject):
         job.start()
         self.solve_started.emit()
         self.busy_changed.emit(True)
+
+    def _on_estimated(self, estimate) -> None:
+        job = self._current_job()
+        if job is not None and job.tag[0] == self._generation:
+            self.estimated.emit(estimate)
 
     def _current_job(self) -> Optional[Job]:
         job = self.sender()
@@ -799,6 +836,7 @@ class Session(QObject):
         self._shut_down = True
         self._generation += 1            # results still in the event queue are dropped
         self._autosave_timer.stop()
+        self.checks.shutdown()
         self._cancel_jobs()
         for job in (self._solve_job, self._sweep_job, *self._aux_jobs):
             if job is not None:

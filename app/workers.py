@@ -142,14 +142,21 @@ class Job(QThread):
     solved = Signal(object)
     failed = Signal(str)
     cancelled = Signal()
+    noted = Signal(object)            # something the work reports before its result (e.g. an estimate)
 
     PROGRESS_INTERVAL_S = 0.05
 
-    def __init__(self, work: Callable, *, kind: str = "solve", tag: object = None, parent=None):
+    def __init__(self, work: Callable, *, kind: str = "solve", tag: object = None, parent=None,
+                 exclusive: bool = True, notes: bool = False):
+        """``exclusive``: hold :data:`compute_lock` while working (False for work that does not run
+        numba's parallel kernels, e.g. a sparse factorisation).  ``notes``: the work takes a third
+        keyword, ``note(obj)``, which emits :attr:`noted` from the worker thread."""
         super().__init__(parent)
         self._work = work
         self.kind = kind
         self.tag = tag
+        self._exclusive = bool(exclusive)
+        self._notes = bool(notes)
         self._stop = threading.Event()
         self._last_progress = 0.0
         self.started_at: Optional[float] = None
@@ -196,11 +203,14 @@ class Job(QThread):
 
     def run(self) -> None:  # noqa: D401 - Qt override
         self.started_at = time.perf_counter()
+        kwargs = {"progress": self._progress, "should_stop": self.should_stop}
+        if self._notes:
+            kwargs["note"] = self.noted.emit
         try:
-            with compute_lock:
+            with (compute_lock if self._exclusive else _NullLock()):
                 if self._stop.is_set():
                     raise Cancelled("cancelled before it started")
-                result = self._work(progress=self._progress, should_stop=self.should_stop)
+                result = self._work(**kwargs)
         except Cancelled:
             self.cancelled.emit()
         except BaseException as exc:      # noqa: BLE001 - a worker must never die silently

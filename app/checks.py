@@ -1,0 +1,265 @@
+"""Trust in the numbers, in the window: convergence studies and certified level counts in the background.
+
+:class:`NumberChecks` belongs to a :class:`app.session.Session` (``session.checks``) and runs two
+kinds of check, each in a :class:`app.workers.Job`:
+
+* **convergence** - :func:`core.convergence.convergence_study` of the project as it is now: levels
+  on the project's grid and coarser ones, Richardson-extrapolated, with error estimates and a
+  "resolved" / "not resolved" verdict for every splitting.  Its memory and time estimate
+  (:func:`core.estimate.estimate_convergence`) is reported before the study starts, and a study
+  that will not fit is refused with a suggestion.
+* **count** - :func:`core.inertia.certify_count` on the latest result: an independent count of the
+  eigenvalues below a shift just above the top returned level (Sylvester's law of inertia), so
+  that a missed level is caught.  After every solve that is not a live (slider) solve, the count
+  runs by itself when the factorisation is estimated to take at most
+  :attr:`NumberChecks.auto_count_seconds`; larger counts run when asked for, in a separate process
+  so that Cancel (and closing the window) stops them at once.
+
+A report applies while the project is unchanged; a certificate applies to the result it counted.
+Views ask :meth:`report_for` / :meth:`certificate_for` and repaint on :attr:`changed`.
+"""
+from __future__ import annotations
+
+import multiprocessing as mp
+import queue
+from typing import Optional
+
+from PySide6.QtCore import QObject, Signal
+
+from core.errors import Cancelled
+
+from .workers import Job
+
+__all__ = ["NumberChecks", "CONVERGENCE", "COUNT"]
+
+CONVERGENCE = "convergence"
+COUNT = "count"
+#: a count estimated to take longer than this runs in its own process (cancellable at once)
+_IN_THREAD_SECONDS = 10.0
+
+
+def _count_in_child(out, hamiltonian, spectrum, max_seconds) -> None:    # pragma: no cover - child process
+    from core.inertia import certify_count
+    try:
+        out.put(("ok", certify_count(hamiltonian, spectrum, max_seconds=max_seconds)))
+    except BaseException as exc:          # noqa: BLE001 - reported to the parent as a message
+        out.put(("error", f"{type(exc).__name__}: {exc}"))
+
+
+def _count_in_process(hamiltonian, spectrum, max_seconds, should_stop, poll_s: float = 0.1):
+    """certify_count in a spawned process; terminated at once when ``should_stop()`` turns True."""
+    ctx = mp.get_context("spawn")
+    out = ctx.Queue()
+    proc = ctx.Process(target=_count_in_child, args=(out, hamiltonian, spectrum, max_seconds),
+                       name="wellscape-count", daemon=True)
+    proc.start()
+    try:
+        while True:
+            if should_stop():
+                raise Cancelled("level count cancelled")
+            try:
+                status, value = out.get(timeout=poll_s)
+                break
+            except queue.Empty:
+                if not proc.is_alive():
+                    raise RuntimeError(f"the level count stopped unexpectedly (exit code {proc.exitcode})") from None
+        if status != "ok":
+            raise RuntimeError(f"the level count failed: {value}")
+        return value
+    finally:
+        if proc.is_alive():
+            proc.terminate()
+        proc.join(5.0)
+        out.close()
+
+
+class NumberChecks(QObject):
+    """Convergence studies and level-count certificates for one session."""
+
+    started = Signal(str)                 # kind
+    progressed = Signal(str, float)       # stage, fraction
+    estimated = Signal(str, object)       # kind, core.estimate.Estimate (before the study starts)
+    finished = Signal(str, object)        # kind, ConvergenceReport or CountCertificate
+    failed = Signal(str, str)             # kind, one readable line
+    changed = Signal()                    # what applies to the current project or result changed
+
+    def __init__(self, session, parent: Optional[QObject] = None):
+        super().__init__(parent if parent is not None else session)
+        self.session = session
+        #: automatic count after a (non-live) solve when the factorisation should take at most this
+        self.auto_count_seconds: float = 4.0
+        self.auto_count: bool = True
+        self._report = None
+        self._certificate = None          # (result, CountCertificate)
+        self._jobs: dict = {CONVERGENCE: None, COUNT: None}
+        self._pending_count = None        # (result, max_seconds) waiting for the running count
+        self._retired: list = []
+        self._shut_down = False
+        session.solved.connect(self._on_solved)
+        session.project_changed.connect(self._on_project_changed)
+
+    # ------------------------------------------------------------------ what applies now
+    def report_for(self, result=None):
+        """The latest convergence report if it was made for ``result``'s project (default: the session's)."""
+        result = result if result is not None else self.session.result
+        rep = self._report
+        if rep is None or result is None:
+            return None
+        return rep if rep.reference.project == result.project else None
+
+    def current_report(self):
+        """The latest convergence report if it was made for the project as it is now."""
+        rep = self._report
+        return rep if rep is not None and rep.reference.project == self.session.project else None
+
+    def certificate_for(self, result=None):
+        """The level-count certificate of ``result`` (default: the session's), or None."""
+        result = result if result is not None else self.session.result
+        if self._certificate is None or result is None:
+            return None
+        counted, cert = self._certificate
+        return cert if counted is result else None
+
+    def running(self, kind: Optional[str] = None) -> bool:
+        if kind is None:
+            return any(j is not None for j in self._jobs.values())
+        return self._jobs.get(kind) is not None
+
+    # ------------------------------------------------------------------ convergence
+    def check_convergence(self, *, factor: float = 1.5, grids: int = 3, refine: str = "coarser") -> bool:
+        """Start a convergence study of the project as it is now.  False if one is already running."""
+        if self._shut_down or self._jobs[CONVERGENCE] is not None:
+            return False
+        from core.convergence import convergence_study
+        from core.estimate import estimate_convergence
+        project = self.session.project
+
+        def work(progress, should_stop, note):
+            est = estimate_convergence(project, factor=factor, grids=grids, refine=refine)
+            note((CONVERGENCE, est))
+            est.check()
+            return convergence_study(project, factor=factor, grids=grids, refine=refine,
+                                     progress=progress, should_stop=should_stop)
+
+        self._start(CONVERGENCE, work, tag=project, notes=True)
+        return True
+
+    # ------------------------------------------------------------------ level counts
+    def verify_count(self, result=None, *, max_seconds: Optional[float] = None) -> bool:
+        """Count the levels below the top of ``result`` (default: the session's latest) independently.
+
+        ``max_seconds`` refuses (with a "not certified" certificate, no error) a factorisation
+        estimated to take longer.  Queued if a count is running.  False if there is nothing to count."""
+        result = result if result is not None else self.session.result
+        if self._shut_down or result is None:
+            return False
+        if self._jobs[COUNT] is not None:
+            self._pending_count = (result, max_seconds)
+            self._jobs[COUNT].cancel()
+            return True
+
+        def work(progress, should_stop):
+            from core.inertia import certify_count, estimate_factorisation
+            from core.study import project_hamiltonian
+            progress("building the matrix", 0.0)
+            h = project_hamiltonian(result.project, parameters=result.parameters, scheme=result.scheme,
+                                    potential=result.potential)[0]
+            if should_stop():
+                raise Cancelled("level count cancelled")
+            est = estimate_factorisation(h)
+            progress(f"factorising ({est.method})", 0.1)
+            if max_seconds is None and est.seconds > _IN_THREAD_SECONDS:
+                return _count_in_process(h, result.spectrum, max_seconds, should_stop)
+            return certify_count(h, result.spectrum, max_seconds=max_seconds)
+
+        # a sparse factorisation does not use the parallel kernels: it may run beside a solve
+        self._start(COUNT, work, tag=result, exclusive=False)
+        return True
+
+    def _on_solved(self, result) -> None:
+        if not self.auto_count or self._shut_down:
+            return
+        if getattr(self.session, "result_mode", None) == "live":
+            return                         # a slider drag: the settling solve gets counted
+        self.verify_count(result, max_seconds=self.auto_count_seconds)
+
+    def _on_project_changed(self) -> None:
+        self.changed.emit()
+
+    # ------------------------------------------------------------------ jobs
+    def _start(self, kind: str, work, *, tag, exclusive: bool = True, notes: bool = False) -> None:
+        job = Job(work, kind=kind, tag=tag, exclusive=exclusive, notes=notes)
+        job.progressed.connect(self.progressed)
+        job.noted.connect(self._on_noted)
+        job.solved.connect(self._on_done)
+        job.failed.connect(self._on_failed)
+        job.cancelled.connect(self._on_cancelled)
+        job.finished.connect(self._on_finished)
+        self._jobs[kind] = job
+        job.start()
+        self.started.emit(kind)
+
+    def _sender_job(self) -> Optional[Job]:
+        job = self.sender()
+        return job if isinstance(job, Job) else None
+
+    def _on_noted(self, payload) -> None:
+        kind, est = payload
+        self.estimated.emit(kind, est)
+
+    def _on_done(self, value) -> None:
+        job = self._sender_job()
+        if job is None or self._shut_down:
+            return
+        if job.kind == CONVERGENCE:
+            self._report = value
+            # the study's own solve on the project grid is as good as a manual solve of the same project
+        else:
+            if self._pending_count is not None:
+                return                     # superseded by a newer request
+            self._certificate = (job.tag, value)
+        self.finished.emit(job.kind, value)
+        self.changed.emit()
+
+    def _on_failed(self, message: str) -> None:
+        job = self._sender_job()
+        if job is not None and not self._shut_down:
+            if job.kind == COUNT and self._pending_count is not None:
+                return
+            self.failed.emit(job.kind, message)
+
+    def _on_cancelled(self) -> None:
+        job = self._sender_job()
+        if job is not None and not self._shut_down and not (job.kind == COUNT and self._pending_count is not None):
+            self.failed.emit(job.kind, f"{job.kind} check cancelled")
+
+    def _on_finished(self) -> None:
+        job = self._sender_job()
+        if job is None:
+            return
+        job.join()
+        self._retired = [j for j in self._retired[-3:] if j is not job] + [job]
+        if self._jobs.get(job.kind) is job:
+            self._jobs[job.kind] = None
+        if job.kind == COUNT and self._pending_count is not None and not self._shut_down:
+            result, max_seconds = self._pending_count
+            self._pending_count = None
+            if result is self.session.result:
+                self.verify_count(result, max_seconds=max_seconds)
+
+    def cancel(self, kind: Optional[str] = None) -> None:
+        """Stop the running check(s)."""
+        if kind in (None, COUNT):
+            self._pending_count = None
+        for k, job in self._jobs.items():
+            if job is not None and kind in (None, k):
+                job.cancel()
+
+    def shutdown(self) -> None:
+        """Cancel and join every check (a count in its own process is terminated)."""
+        self._shut_down = True
+        self.cancel()
+        for job in list(self._jobs.values()):
+            if job is not None:
+                job.join()
+        self._jobs = {CONVERGENCE: None, COUNT: None}
