@@ -97,10 +97,23 @@ class Spectrum:
         return replace(self, notes=self.notes + tuple(notes), **changes)
 
 
+#: bytes of the three-term buffers of one filter chunk (on small grids the chunk then stays in cache)
+_CHUNK_BYTES = 8 << 20
+#: bytes of the temporary of a column-chunked product (in-place rotations, Gram matrices)
+_COLUMN_BYTES = 8 << 20
+
+
+def _chunk_rows(n_points: int, itemsize: int) -> int:
+    """Rows filtered together: as many as fit ``_CHUNK_BYTES`` in three buffers, between 2 and 8."""
+    return int(min(8, max(2, _CHUNK_BYTES // max(3 * n_points * itemsize, 1))))
+
+
 def solver_memory_bytes(n_points: int, block: int, complex_: bool) -> int:
-    """Memory the Chebyshev solver allocates: four block buffers plus small matrices."""
+    """Memory the Chebyshev solver allocates: the block, H applied to it (Rayleigh-Ritz), two
+    filter-chunk buffers, column-chunk temporaries and small matrices."""
     item = 16 if complex_ else 8
-    return int(4 * n_points * block * item + 8 * block * block * item)
+    chunk = _chunk_rows(n_points, item)
+    return int((2 * block + 2 * chunk) * n_points * item + 2 * _COLUMN_BYTES + 8 * block * block * item)
 
 
 def weyl_level_estimate(h: Hamiltonian, count: float) -> float:
@@ -135,30 +148,46 @@ def weyl_level_estimate(h: Hamiltonian, count: float) -> float:
 
 # --- linear algebra on row blocks -----------------------------------------------------------
 
+def _column_chunk(rows: int, itemsize: int) -> int:
+    return max(1024, _COLUMN_BYTES // max(rows * itemsize, 1))
+
+
 def _dot(a, b):
-    """Gram-type product G_ij = <a_i, b_j> for row blocks (no copy for real blocks)."""
-    if np.iscomplexobj(a):
-        return np.conj(a) @ b.T
-    return a @ b.T
+    """Gram-type product G_ij = <a_i, b_j> for row blocks (conjugates in column chunks: no block copy)."""
+    if not np.iscomplexobj(a):
+        return a @ b.T
+    step = _column_chunk(len(a), a.itemsize)
+    g = np.zeros((len(a), len(b)), dtype=np.result_type(a, b))
+    for lo in range(0, a.shape[1], step):
+        g += np.conj(a[:, lo:lo + step]) @ b[:, lo:lo + step].T
+    return g
 
 
-def _project_out(y: np.ndarray, locked: np.ndarray, chunk: int = 1 << 16) -> None:
+def _rotate(y: np.ndarray, t: np.ndarray) -> None:
+    """y[:r] = t @ y in place for a small (r, len(y)) matrix t, r <= len(y), in column chunks."""
+    r = t.shape[0]
+    step = _column_chunk(len(y), y.itemsize)
+    t = np.asarray(t, dtype=np.result_type(t, y))
+    for lo in range(0, y.shape[1], step):
+        y[:r, lo:lo + step] = t @ y[:, lo:lo + step]
+
+
+def _project_out(y: np.ndarray, locked: np.ndarray) -> None:
     """y -= (projection of y on the rows of ``locked``), in place, twice, in column chunks (no big temporaries)."""
+    step = _column_chunk(max(len(y), len(locked)), y.itemsize)
     for _ in range(2):
-        c = y @ np.conj(locked).T                      # <locked_j, y_i>
-        for lo in range(0, y.shape[1], chunk):
-            y[:, lo:lo + chunk] -= c @ locked[:, lo:lo + chunk]
+        c = _dot(locked, y).T                          # c_ij = <locked_j, y_i>
+        for lo in range(0, y.shape[1], step):
+            y[:, lo:lo + step] -= c @ locked[:, lo:lo + step]
 
 
-def _orthonormalize(a: np.ndarray, b: np.ndarray, rng, locked: Optional[np.ndarray] = None) -> np.ndarray:
-    """Orthonormalise the rows of ``a`` against ``locked`` and each other (SVQB, repeated until clean).
+def _orthonormalize(y: np.ndarray, rng, locked: Optional[np.ndarray] = None) -> np.ndarray:
+    """Orthonormalise the rows of ``y`` in place against ``locked`` and each other (SVQB, repeated until clean).
 
-    ``a`` and ``b`` are equal-shaped work arrays; the result lands in one of them, which is
-    returned. Numerically dependent directions are replaced by fresh random vectors, so the
-    block keeps its number of rows.
+    Numerically dependent directions are replaced by fresh random vectors, so the block keeps
+    its number of rows.  Works in column chunks: no block-sized temporaries.
     """
-    want = len(a)
-    y, other = a, b
+    want = len(y)
     for _ in range(8):
         if locked is not None and len(locked):
             _project_out(y, locked)
@@ -173,10 +202,9 @@ def _orthonormalize(a: np.ndarray, b: np.ndarray, rng, locked: Optional[np.ndarr
         keep = w > 1e-13 * max(w.max(), 1e-300)
         r = int(keep.sum())
         m = scale[:, None] * u[:, keep] / np.sqrt(w[keep])[None, :]
-        np.matmul(m.T, y, out=other[:r])
-        if r < want:
-            other[r:] = _random_block(rng, want - r, y.shape[1], y.dtype)
-        y, other = other, y
+        _rotate(y, m.T)
+        for i in range(r, want):
+            y[i] = _random_block(rng, 1, y.shape[1], y.dtype)[0]
     raise NotConverged("could not orthonormalise the search block")
 
 
@@ -245,10 +273,14 @@ def _coarse_start(h: Hamiltonian, k: int, guard, tol, deg, should_stop, progress
     sub = None if progress is None else (lambda stage, f: progress("coarse grid", 0.3 * f))
     coarse = lowest_states(hc, k, tolerance=max(tol, 1e-5), guard=guard, should_stop=should_stop,
                            degeneracy_tolerance=deg, progress=sub, check_memory_first=False)
-    block = coarse.block()
-    for a in range(g.ndim):
-        block = _apply_axis(prolong[a], block, a + 1)
-    return block
+    return coarse.block(), prolong
+
+
+def _prolong(row: np.ndarray, prolong: list) -> np.ndarray:
+    """One coarse-grid vector interpolated to the fine grid (axis by axis)."""
+    for a, mat in enumerate(prolong):
+        row = _apply_axis(mat, row, a)
+    return row
 
 
 def _random_block(rng, m, n, dtype):
@@ -348,67 +380,91 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
 
     # --- starting block ------------------------------------------------------------------
     coarse_note = None
+    prolong = None
     if (start is None and coarse_start and n >= 30000
             and all(_coarse_points(nn, per) >= 16 for nn, per in zip(h.grid.shape, h.grid.periodic))):
-        start = _coarse_start(h, k, guard, tol, degeneracy_tolerance, should_stop, progress)
+        start, prolong = _coarse_start(h, k, guard, tol, degeneracy_tolerance, should_stop, progress)
         coarse_note = "started from a solve on a grid half as fine"
     blk = np.empty((m, n), dtype=dtype)
-    x0 = None
     if start is not None:
         st = np.asarray(start)
-        if st.shape[1:] != h.grid.shape and st.shape != h.grid.shape:
+        if prolong is None and st.shape[1:] != h.grid.shape and st.shape != h.grid.shape:
             raise InputError(f"start vectors have shape {st.shape}, expected (m, {h.grid.shape})")
-        st = st.reshape(-1, n)
+        if st.ndim == h.grid.ndim:
+            st = st[None]
         # fill the block row by row (no block-sized temporaries: peak memory matters on large grids)
-        rows = 0
+        rows, row = 0, None
         parts = (lambda r: (r.real, r.imag)) if (np.iscomplexobj(st) and dtype == np.float64) else (lambda r: (r,))
         for row in st:
-            for part in parts(row):
+            if prolong is not None:
+                row = _prolong(row, prolong)
+            for part in parts(row.reshape(-1)):
                 if rows < m and np.any(part):
                     blk[rows] = part
                     rows += 1
         for i in range(rows, m):
             blk[i] = _random_block(rng, 1, n, dtype)[0]
-        del st, start
-        x0 = True
+        del st, start, row
         warm = True
     else:
+        if np.iscomplexobj(blk):
+            for i in range(m):
+                blk[i] = _random_block(rng, 1, n, dtype)[0]
+        else:
+            rng.standard_normal(out=blk)
         warm = False
 
-    buf = [np.empty((m, n), dtype=dtype) for _ in range(3)]
+    # work arrays: H applied to the block (Rayleigh-Ritz) and two buffers of the chunked filter
+    chunk = _chunk_rows(n, blk.itemsize)
+    hq_buf = np.empty((m, n), dtype=dtype)
+    fbuf = [np.empty((chunk, n), dtype=dtype) for _ in range(2)]
 
-    def rayleigh_ritz(q, count_locked, hq_buf, tmp_buf):
-        """RR on orthonormal rows q; Ritz vectors go to blk[count_locked:]; returns theta, residual norms."""
+    def orthonormalize_and_rr(count_locked):
+        """Orthonormalise the active rows of blk (against the locked ones) in place, then Rayleigh-Ritz
+        on them; the Ritz vectors replace them. Returns Ritz values and residual norms."""
+        q = _orthonormalize(blk[count_locked:m], rng, locked=blk[:count_locked])
         p = len(q)
         hq = hq_buf[:p]
         op.apply(q, hq)
         s = _dot(q, hq)
         s = 0.5 * (s + np.conj(s.T))
         theta, w = np.linalg.eigh(s)
-        tmp = tmp_buf[:p]
-        np.matmul(w.T, q, out=tmp)
-        xs = blk[count_locked:count_locked + p]
-        xs[...] = tmp
-        np.matmul(w.T, hq, out=tmp)                  # H X
+        wt = np.ascontiguousarray(w.T)
+        _rotate(q, wt)                               # Ritz vectors
+        _rotate(hq, wt)                              # H applied to them
+        res = np.empty(p)
         for i in range(p):
-            tmp[i] -= theta[i] * xs[i]
-        res = np.linalg.norm(tmp, axis=1)
+            hq[i] -= theta[i] * q[i]
+            res[i] = np.linalg.norm(hq[i])
         return theta, res
 
-    def orthonormalize_and_rr(rows, count_locked):
-        """Orthonormalise rows of blk (against the locked ones), then Rayleigh-Ritz on them."""
-        p = len(rows)
-        q = _orthonormalize(rows, buf[0][:p], rng, locked=blk[:count_locked])
-        tmp = buf[1] if np.shares_memory(q, buf[0]) else buf[0]
-        return rayleigh_ritz(q, count_locked, buf[2], tmp)
+    def chebyshev_filter(rows: np.ndarray, degree: np.ndarray, a0: float, c: float, e: float) -> None:
+        """Filter each row of ``rows`` (in place) by its own degree, ``chunk`` rows at a time.
 
-    if x0 is None:
-        if np.iscomplexobj(blk):
-            for i in range(m):
-                blk[i] = _random_block(rng, 1, n, dtype)[0]
-        else:
-            rng.standard_normal(out=blk)
-    theta, res = orthonormalize_and_rr(blk[:m], 0)
+        Scaled three-term recurrence of Zhou et al. (2006), Algorithm 4.1; the row itself serves as
+        one of the three rotating buffers, so only two chunk-sized buffers exist.
+        """
+        for r0 in range(0, len(rows), chunk):
+            x = rows[r0:r0 + chunk]
+            deg = degree[r0:r0 + chunk]
+            q = len(x)
+            bufs = [x, fbuf[0][:q], fbuf[1][:q]]
+            sigma = e / (a0 - c)
+            tau = 2.0 / sigma
+            op.step(x, bufs[1], sigma / e, c, 0.0, x)
+            for step in range(2, int(deg[-1]) + 1):
+                s0 = int(np.searchsorted(deg, step))     # rows with degree >= step
+                sigma_new = 1.0 / (tau - sigma)
+                prev, cur, nxt_b = bufs[(step - 2) % 3], bufs[(step - 1) % 3], bufs[step % 3]
+                op.step(cur[s0:], nxt_b[s0:], 2.0 * sigma_new / e, c, -sigma * sigma_new, prev[s0:])
+                sigma = sigma_new
+                if should_stop is not None and step % 8 == 0 and should_stop():
+                    raise Cancelled("solve cancelled", partial=None)
+            for i, d in enumerate(deg):                   # row i finished at step d, in buffer d % 3
+                if d % 3:
+                    x[i] = bufs[d % 3][i]
+
+    theta, res = orthonormalize_and_rr(0)
     nlock = 0
     locked_theta = np.empty(0)
     locked_res = np.empty(0)
@@ -421,11 +477,13 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
     notes = [coarse_note] if coarse_note else []
 
     def partial(converged=False, cut_flag=False):
+        """The result from the current block (terminal: scales the block in place, no copy)."""
         all_theta = np.concatenate([locked_theta, theta])
         all_res = np.concatenate([locked_res, res])
         cnt = min(need, len(all_theta))
-        states = blk[:cnt].reshape((cnt,) + h.grid.shape) / math.sqrt(h.grid.volume_element)
-        guards = blk[cnt:m].reshape((m - cnt,) + h.grid.shape) / math.sqrt(h.grid.volume_element)
+        blk[:m] *= 1.0 / math.sqrt(h.grid.volume_element)
+        states = blk[:cnt].reshape((cnt,) + h.grid.shape)
+        guards = blk[cnt:m].reshape((m - cnt,) + h.grid.shape)
         return Spectrum(energies=all_theta[:cnt].copy(), states=states, residuals=all_res[:cnt].copy(),
                         grid=h.grid, iterations=iterations, applications=op.applications,
                         wall_time=time.perf_counter() - t0, converged=converged, requested=k,
@@ -447,23 +505,28 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
             res = np.concatenate([locked_res[j:], res])
             locked_theta, locked_res = locked_theta[:j], locked_res[:j]
             nlock = j
-        # lock leading converged active vectors
-        nconv_active = 0
-        while nconv_active < len(theta) - 1 and res[nconv_active] <= tol_abs and nlock + nconv_active < need:
-            nconv_active += 1
-        if nconv_active:
-            locked_theta = np.concatenate([locked_theta, theta[:nconv_active]])
-            locked_res = np.concatenate([locked_res, res[:nconv_active]])
-            theta, res = theta[nconv_active:], res[nconv_active:]
-            nlock += nconv_active
-        # extend the wanted set through a multiplet that reaches the k-th level
-        if nlock >= need:
-            nxt = theta[0]
-            if nxt - locked_theta[need - 1] <= deg_abs + res[0]:
-                if nxt - locked_theta[need - 1] <= deg_abs or res[0] > tol_abs:
-                    need += 1
+        extended = True
+        while extended:
+            extended = False
+            # lock leading converged active vectors
+            nconv_active = 0
+            while nconv_active < len(theta) - 1 and res[nconv_active] <= tol_abs and nlock + nconv_active < need:
+                nconv_active += 1
+            if nconv_active:
+                locked_theta = np.concatenate([locked_theta, theta[:nconv_active]])
+                locked_res = np.concatenate([locked_res, res[:nconv_active]])
+                theta, res = theta[nconv_active:], res[nconv_active:]
+                nlock += nconv_active
+            # extend the wanted set through a multiplet that reaches the k-th level (and lock its
+            # next member at once if it has converged already)
             if nlock >= need:
-                break
+                nxt = theta[0]
+                if nxt - locked_theta[need - 1] <= deg_abs + res[0]:
+                    if nxt - locked_theta[need - 1] <= deg_abs or res[0] > tol_abs:
+                        need += 1
+                        extended = True
+        if nlock >= need:
+            break
         # grow the block when the wanted set reaches its end, or when the filter's cut sits
         # inside the cluster of the hardest wanted level (a multiplet cut by the block)
         hard = need - 1 - nlock
@@ -479,11 +542,12 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
                     return partial(converged=nlock >= need, cut_flag=True)
             else:
                 m_new = m + grow
+                del hq_buf
                 blk = np.concatenate([blk[:m], _random_block(rng, grow, n, dtype)])
-                buf = [np.empty((m_new, n), dtype=dtype) for _ in range(3)]
+                hq_buf = np.empty((m_new, n), dtype=dtype)
                 m = m_new
                 notes.append(f"block enlarged to {m} vectors to complete a multiplet")
-                theta, res = orthonormalize_and_rr(blk[nlock:m], nlock)
+                theta, res = orthonormalize_and_rr(nlock)
                 continue
         if progress is not None:
             progress("solving", min(0.99, nlock / max(need, 1)))
@@ -521,39 +585,20 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         if _DEBUG:
             print(f"it {iterations}: nlock {nlock} need {need} p {p} cut {cut:.4g} upper {upper:.4g} "
                   f"res[:need] {np.array2string(res[:max(need - nlock, 1)], precision=1)} deg {degree.tolist()}")
-        y0, y1, y2 = buf[0][:p], buf[1][:p], buf[2][:p]
-        y0[...] = blk[nlock:m]
-        sigma = e / (a0 - c)
-        sigma1 = sigma
-        tau = 2.0 / sigma1
-        op.step(y0, y1, sigma1 / e, c, 0.0, y0)
-        bufs = [y0, y1, y2]
-        out = blk[nlock:m]
-        done_rows = degree <= 1
-        for r in np.nonzero(done_rows)[0]:
-            out[r] = y1[r]
-        for step in range(2, dmax + 1):
-            s0 = int(np.searchsorted(degree, step))     # rows with degree >= step
-            sigma_new = 1.0 / (tau - sigma)
-            prev, cur, nxt_b = bufs[(step - 2) % 3], bufs[(step - 1) % 3], bufs[step % 3]
-            op.step(cur[s0:], nxt_b[s0:], 2.0 * sigma_new / e, c, -sigma * sigma_new, prev[s0:])
-            sigma = sigma_new
-            fin = np.nonzero(degree == step)[0]
-            if len(fin):
-                out[fin] = nxt_b[fin]
-            if should_stop is not None and step % 8 == 0 and should_stop():
-                raise Cancelled("solve cancelled", partial=None)
-        theta, res = orthonormalize_and_rr(out, nlock)
+        chebyshev_filter(blk[nlock:m], degree, a0, c, e)
+        theta, res = orthonormalize_and_rr(nlock)
         cut = theta[-1]
+
+    del hq_buf, fbuf
 
     result = partial(converged=True)
     # normalise phases for readability: real states, largest component positive
     states = result.states
     if not np.iscomplexobj(states):
         flat = states.reshape(len(states), -1)
-        idx = np.argmax(np.abs(flat), axis=1)
-        signs = np.sign(flat[np.arange(len(flat)), idx])
-        states *= signs.reshape((-1,) + (1,) * h.grid.ndim)
+        for row in flat:                                 # row by row: no block-sized |psi| temporary
+            if row[np.argmax(np.abs(row))] < 0:
+                row *= -1.0
     order = np.argsort(result.energies, kind="stable")
     if np.any(order != np.arange(len(order))):
         result = replace(result, energies=result.energies[order], states=result.states[order],

@@ -49,20 +49,79 @@ def neighbour_table(n: int, radius: int, periodic: bool):
     return idx, sgn
 
 
+def fd_step_real(X, V, cx, cy, cz, ix, sx, iy, sy, iz, sz, alpha, shift, beta, Z, Y):
+    """Y = alpha * (H - shift) X + beta * Z for a real banded H (see the module docstring).
+
+    Nearest-neighbour stencils (second-order differences) take a single fused pass per grid line;
+    wider stencils add one pass per offset.
+    """
+    if cx.shape[0] <= 2 and cy.shape[0] <= 2 and cz.shape[0] <= 2:
+        _nearest_step_real(X, V, cx, cy, cz, ix, sx, iy, sy, iz, sz, alpha, shift, beta, Z, Y)
+    else:
+        _wide_step_real(X, V, cx, cy, cz, ix, sx, iy, sy, iz, sz, alpha, shift, beta, Z, Y)
+
+
 @njit(parallel=True, cache=True, nogil=True, fastmath=False, error_model="numpy")
-def fd_step_real(X, V, cx, cy, cz, ix, sx, iy, sy, iz, sz, alpha, shift, beta, Z, Y):  # pragma: no cover - compiled
+def _nearest_step_real(X, V, cx, cy, cz, ix, sx, iy, sy, iz, sz, alpha, shift, beta, Z, Y):  # pragma: no cover
+    m, n0, n1, n2 = X.shape
+    d0 = cx[0] + cy[0] + cz[0] - shift
+    c1x = cx[1] if cx.shape[0] > 1 else 0.0
+    c1y = cy[1] if cy.shape[0] > 1 else 0.0
+    c1z = cz[1] if cz.shape[0] > 1 else 0.0
+    rx = cx.shape[0] - 1
+    ry = cy.shape[0] - 1
+    rz = cz.shape[0] - 1
+    plane = n0 * n1
+    for t in prange(m * plane):         # one grid line per task
+        b = t // plane
+        r = t - b * plane
+        i = r // n1
+        j = r - i * n1
+        gxp = c1x * sx[2 * rx, i]       # with rx = 0 (a padded axis) these are 0 * the line itself
+        gxm = c1x * sx[0, i]
+        gyp = c1y * sy[2 * ry, j]
+        gym = c1y * sy[0, j]
+        xl = X[b, i, j]
+        xxp = X[b, ix[2 * rx, i], j]
+        xxm = X[b, ix[0, i], j]
+        xyp = X[b, i, iy[2 * ry, j]]
+        xym = X[b, i, iy[0, j]]
+        vl = V[i, j]
+        yl = Y[b, i, j]
+        zl = Z[b, i, j]
+        if beta == 0.0:                 # interior: one fused, contiguous pass
+            for k in range(1, n2 - 1):
+                yl[k] = alpha * ((vl[k] + d0) * xl[k] + gxp * xxp[k] + gxm * xxm[k] + gyp * xyp[k]
+                                 + gym * xym[k] + c1z * (xl[k + 1] + xl[k - 1]))
+        else:
+            for k in range(1, n2 - 1):
+                yl[k] = alpha * ((vl[k] + d0) * xl[k] + gxp * xxp[k] + gxm * xxm[k] + gyp * xyp[k]
+                                 + gym * xym[k] + c1z * (xl[k + 1] + xl[k - 1])) + beta * zl[k]
+        for e in range(2 if n2 > 1 else 1):     # the two ends of the line: boundary tables
+            k = e * (n2 - 1)
+            zs = 0.0
+            if rz > 0:
+                zs = c1z * (sz[2, k] * xl[iz[2, k]] + sz[0, k] * xl[iz[0, k]])
+            acc = (vl[k] + d0) * xl[k] + gxp * xxp[k] + gxm * xxm[k] + gyp * xyp[k] + gym * xym[k] + zs
+            yl[k] = alpha * acc if beta == 0.0 else alpha * acc + beta * zl[k]
+
+
+@njit(parallel=True, cache=True, nogil=True, fastmath=False, error_model="numpy")
+def _wide_step_real(X, V, cx, cy, cz, ix, sx, iy, sy, iz, sz, alpha, shift, beta, Z, Y):  # pragma: no cover
     m, n0, n1, n2 = X.shape
     rx = cx.shape[0] - 1
     ry = cy.shape[0] - 1
     rz = cz.shape[0] - 1
     d0 = cx[0] + cy[0] + cz[0] - shift
     scale_only = beta == 0.0
-    for t in prange(m * n0):
-        b = t // n0
-        i = t % n0
-        for j in range(n1):
-            _row_real(X, Y, Z, V[i, j], b, i, j, n2, d0, cx, cy, cz, ix, sx, iy, sy, iz, sz,
-                      rx, ry, rz, alpha, beta, scale_only)
+    plane = n0 * n1
+    for t in prange(m * plane):         # one grid line per task: a block of 2-4 vectors of a 2D grid
+        b = t // plane                  # (n0 = 1) still splits evenly over the threads
+        r = t - b * plane
+        i = r // n1
+        j = r - i * n1
+        _row_real(X, Y, Z, V[i, j], b, i, j, n2, d0, cx, cy, cz, ix, sx, iy, sy, iz, sz,
+                  rx, ry, rz, alpha, beta, scale_only)
 
 
 @njit(inline="always", error_model="numpy")
