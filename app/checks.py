@@ -82,6 +82,7 @@ class NumberChecks(QObject):
     finished = Signal(str, object)        # kind, ConvergenceReport or CountCertificate
     failed = Signal(str, str)             # kind, one readable line
     changed = Signal()                    # what applies to the current project or result changed
+    running_changed = Signal()            # a check started or its thread ended
 
     def __init__(self, session, parent: Optional[QObject] = None):
         super().__init__(parent if parent is not None else session)
@@ -106,6 +107,11 @@ class NumberChecks(QObject):
         if rep is None or result is None:
             return None
         return rep if rep.reference.project == result.project else None
+
+    @property
+    def latest_report(self):
+        """The latest convergence report, whatever project it was made for (None before any)."""
+        return self._report
 
     def current_report(self):
         """The latest convergence report if it was made for the project as it is now."""
@@ -198,6 +204,7 @@ class NumberChecks(QObject):
         self._jobs[kind] = job
         job.start()
         self.started.emit(kind)
+        self.running_changed.emit()
 
     def _sender_job(self) -> Optional[Job]:
         job = self.sender()
@@ -241,6 +248,7 @@ class NumberChecks(QObject):
         self._retired = [j for j in self._retired[-3:] if j is not job] + [job]
         if self._jobs.get(job.kind) is job:
             self._jobs[job.kind] = None
+            self.running_changed.emit()
         if job.kind == COUNT and self._pending_count is not None and not self._shut_down:
             result, max_seconds = self._pending_count
             self._pending_count = None

@@ -42,7 +42,13 @@ shows V along a line you can drag, with the computed levels drawn on it. It foll
 sliders as you move them.</p>
 <p><b>Levels</b> - one bar per level; degenerate levels (closer than the tolerance shown) are drawn
 side by side as one multiplet, with its multiplicity, energy and labels (mirror parity, &lt;L<sub>z</sub>&gt;,
-spin). Click a level to select its state; hover for the numbers.</p>
+spin). Click a level to select its state; hover for the numbers.
+<b>Check convergence</b> (F6) solves on two coarser grids, extrapolates each level and draws its
+estimated grid error as an error bar; every splitting is then marked ✓ resolved (larger than the
+combined error of its two levels) or ≈ not resolved (a grid artefact cannot be ruled out), and the
+degeneracy tolerance follows the errors. The level count (F7, and by itself after a solve when it is
+quick) counts the eigenvalues below the top level independently: ✔ count verified, ✘ count NOT
+verified (a level was missed), ○ count not checked.</p>
 <p><b>States</b> - every computed state as |&psi;|&sup2; or as a signed/phase-coloured &psi;, labelled with
 its energy, and a large view of the selected one. The probability inside a region you draw is
 sum |&psi;|&sup2; dV. In 3D: an isosurface of |&psi;|&sup2; you can rotate, plus slices.</p>
@@ -178,6 +184,9 @@ class MainWindow(QMainWindow):
         s.failed.connect(self._on_failed)
         s.cancelled.connect(self._on_cancelled)
         s.busy_changed.connect(self._on_busy_changed)
+        s.estimated.connect(self._on_estimated)
+        s.checks.finished.connect(self._on_check_finished)
+        s.checks.failed.connect(self._on_check_failed)
         s.dirty_changed.connect(self._update_title)
         s.path_changed.connect(self._update_title)
         s.project_changed.connect(self._update_title)
@@ -259,6 +268,15 @@ class MainWindow(QMainWindow):
         self.cancel_action.setEnabled(False)
         s.addAction(self.solve_action)
         s.addAction(self.cancel_action)
+        s.addSeparator()
+        self.converge_action = self._action(
+            "Check &convergence", self.check_convergence, "F6",
+            "Solve on coarser grids too, extrapolate, and mark each splitting as resolved or not")
+        self.count_action = self._action(
+            "&Verify level count", self.verify_count, "F7",
+            "Count the levels below the highest one independently: was any level missed?")
+        s.addAction(self.converge_action)
+        s.addAction(self.count_action)
 
         h = mb.addMenu("&Help")
         h.addAction(self._action("The &views explained", self.show_help, QKeySequence.StandardKey.HelpContents))
@@ -391,6 +409,38 @@ class MainWindow(QMainWindow):
             self.session.cancel()
         if self.session.sweeping:
             self.session.cancel_sweep()
+        self.session.checks.cancel()
+
+    def check_convergence(self) -> None:
+        self.tabs.setCurrentIndex(self._tab_index("Levels"))
+        if not self.session.checks.check_convergence():
+            self.strip.show_message("A convergence check is already running.", "warn")
+
+    def verify_count(self) -> None:
+        if self.session.result is None:
+            self.strip.show_message("Solve first: the level count checks a result.", "warn")
+            return
+        self.tabs.setCurrentIndex(self._tab_index("Levels"))
+        self.session.checks.verify_count()
+
+    def _tab_index(self, title: str) -> int:
+        for i in range(self.tabs.count()):
+            if self.tabs.tabText(i) == title:
+                return i
+        return self.tabs.currentIndex()
+
+    def _on_estimated(self, estimate) -> None:
+        self.strip.show_message(f"Solving: {estimate.describe()}")
+
+    def _on_check_finished(self, kind: str, value) -> None:
+        if kind == "convergence":
+            sps = value.splittings()
+            bad = sum(1 for sp in sps if not sp.resolved)
+            self.strip.show_message(f"Convergence checked in {value.wall_time:.1f} s: {len(sps) - bad} splittings "
+                                    f"resolved, {bad} not resolved by the grid (marked in the level diagram).", "ok")
+
+    def _on_check_failed(self, kind: str, message: str) -> None:
+        self.strip.show_message(f"The {kind} check stopped: {message}", "warn")
 
     def _on_solve_started(self) -> None:
         self.strip.progress.setValue(0)

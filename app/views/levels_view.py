@@ -1,8 +1,16 @@
 """The level diagram: one bar per level, degenerate multiplets side by side, with labels.
 
 Labels (multiplicity, energy, mirror parity, L_z eigenvalues, spin) come from ``core.analysis``;
-the grouping uses the session's degeneracy tolerance (adjustable here) or, when it is unset, the
-solver's own.  Clicking a bar selects that state; hovering shows its numbers.
+the grouping uses the session's degeneracy tolerance (adjustable here) or, when it is unset, one
+built from the error estimates of a convergence check, or else the solver's own.  Clicking a bar
+selects that state; hovering shows its numbers.
+
+Trust marks (``session.checks``): after a convergence check every splitting between adjacent levels
+carries a mark - ✓ "resolved" (larger than the combined error estimate of its two levels) or
+≈ "not resolved" (within it) - beside the bars (between levels) or between the side-by-side bars
+of a multiplet, each level gets an error bar (its estimated grid error), and the labels say in
+words where the grid cannot tell levels apart.  The level count's certificate is shown as
+✔ "count verified", ✘ "count NOT verified" or ○ "count not checked".
 """
 from __future__ import annotations
 
@@ -27,6 +35,13 @@ _BAR_PEN = pg.mkPen("#1d3557", width=3)
 _SEL_PEN = pg.mkPen(colormaps.ACCENT, width=6)
 _LEADER_PEN = pg.mkPen((120, 120, 120, 160), width=1)
 _INTEGER_TOL = 0.05      # L_z eigenvalues closer than this to integers are shown as quantum numbers
+_ERR_PEN = pg.mkPen("#6c757d", width=1.5)
+_BRACKET_PENS = {True: pg.mkPen("#1d3557", width=1.5),
+                 False: pg.mkPen("#8a5a00", width=1.5, style=QtCore.Qt.PenStyle.DashLine)}
+_MARK_COLORS = {True: "#1d3557", False: "#8a5a00"}
+#: level count certificate: symbol (the verdict never rests on colour alone) and colour
+_COUNT_MARKS = {"count verified": ("✔", "#1b6e3a"), "count NOT verified": ("✘", "#9b1c1c"),
+                "count not checked": ("○", "#555555")}
 
 
 class ToleranceBox(QtWidgets.QDoubleSpinBox):
@@ -127,8 +142,9 @@ class LevelsView(QtWidgets.QWidget):
         self.tolerance.setToolTip("Two consecutive levels closer than this count as degenerate and are "
                                   "drawn side by side")
         self.tolerance.valueChanged.connect(self._on_tolerance_edited)
-        self.solver_tolerance = QtWidgets.QPushButton("use the solver's")
-        self.solver_tolerance.setToolTip("Group with the tolerance the eigensolver used for its multiplets")
+        self.solver_tolerance = QtWidgets.QPushButton("default")
+        self.solver_tolerance.setToolTip("Group with the default tolerance: built from the error estimates of a "
+                                         "convergence check when there is one, else the eigensolver's own")
         self.solver_tolerance.clicked.connect(self._on_use_solver_tolerance)
         self.relative = QtWidgets.QCheckBox("measure from the ground level")
         self.relative.toggled.connect(self._on_relative_toggled)
@@ -139,6 +155,27 @@ class LevelsView(QtWidgets.QWidget):
         row.addStretch(1)
         row.addWidget(self.relative)
 
+        self.count_label = QtWidgets.QLabel("")
+        self.count_label.setWordWrap(True)
+        self.count_label.setTextInteractionFlags(QtCore.Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.verify_button = QtWidgets.QPushButton("Verify level count")
+        self.verify_button.setToolTip("Count the eigenvalues below the highest level independently (Sylvester's law "
+                                      "of inertia on a sparse LDL^T factorisation) to confirm that no level was missed")
+        self.verify_button.clicked.connect(self._on_verify_clicked)
+        self.converge_label = QtWidgets.QLabel("")
+        self.converge_label.setWordWrap(True)
+        self.converge_label.setTextInteractionFlags(QtCore.Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.converge_button = QtWidgets.QPushButton("Check convergence")
+        self.converge_button.setToolTip("Solve again on two coarser grids, extrapolate every level to zero spacing "
+                                        "and mark each splitting as resolved or not resolved by the grid")
+        self.converge_button.clicked.connect(self._on_converge_clicked)
+        checks_box = QtWidgets.QGridLayout()
+        checks_box.addWidget(self.count_label, 0, 0)
+        checks_box.addWidget(self.verify_button, 0, 1)
+        checks_box.addWidget(self.converge_label, 1, 0)
+        checks_box.addWidget(self.converge_button, 1, 1)
+        checks_box.setColumnStretch(0, 1)
+
         self.plot = make_plot()
         item = self.plot.getPlotItem()
         item.hideAxis("bottom")
@@ -146,7 +183,11 @@ class LevelsView(QtWidgets.QWidget):
         self.bar_item = pg.PlotDataItem(pen=_BAR_PEN, connect="pairs")
         self.sel_item = pg.PlotDataItem(pen=_SEL_PEN, connect="pairs")
         self.leader_item = pg.PlotDataItem(pen=_LEADER_PEN, connect="pairs")
-        for it in (self.leader_item, self.bar_item, self.sel_item):
+        self.error_item = pg.ErrorBarItem(x=np.zeros(0), y=np.zeros(0), height=np.zeros(0), beam=0.25, pen=_ERR_PEN)
+        self.bracket_items = {ok: pg.PlotDataItem(pen=_BRACKET_PENS[ok], connect="pairs") for ok in (True, False)}
+        self._mark_items: list = []
+        self.marks: list = []              # (lower level, upper level, resolved, x, y) of every splitting marked
+        for it in (self.leader_item, self.error_item, *self.bracket_items.values(), self.bar_item, self.sel_item):
             self.plot.addItem(it)
         self.plot.scene().sigMouseClicked.connect(self._on_scene_clicked)
         self.plot.scene().sigMouseMoved.connect(self._on_mouse_moved)
@@ -163,6 +204,7 @@ class LevelsView(QtWidgets.QWidget):
         il.setContentsMargins(0, 0, 0, 0)
         il.addWidget(self.header)
         il.addLayout(row)
+        il.addLayout(checks_box)
         il.addWidget(self.plot, 1)
         il.addWidget(self.info)
         self.stack = HintStack(inner, _HINT)
@@ -175,6 +217,18 @@ class LevelsView(QtWidgets.QWidget):
         session.project_changed.connect(self._on_project_changed)
         if hasattr(session, "degeneracy_changed"):
             session.degeneracy_changed.connect(self._on_degeneracy_changed)
+        self.checks = getattr(session, "checks", None)
+        if self.checks is not None:
+            self.checks.started.connect(self._on_check_started)
+            self.checks.progressed.connect(self._on_check_progressed)
+            self.checks.estimated.connect(self._on_check_estimated)
+            self.checks.failed.connect(self._on_check_failed)
+            self.checks.finished.connect(lambda *_: self._update_checks())
+            self.checks.changed.connect(self._on_checks_changed)
+            self.checks.running_changed.connect(self._update_checks)
+        else:
+            for w in (self.verify_button, self.converge_button):
+                w.setEnabled(False)
         if hasattr(session, "add_result_analysis"):
             # labels need <L_z> per multiplet: compute them in the solve's worker, not on the GUI thread
             session.add_result_analysis("level_labels", lambda r: level_labels(r, r.groups))
@@ -206,8 +260,14 @@ class LevelsView(QtWidgets.QWidget):
     def tolerance_in_use(self) -> float:
         tol = getattr(self.session, "degeneracy_tolerance", None)
         if tol is None and self.result is not None:
+            tol = self._error_based_tolerance()
+        if tol is None and self.result is not None:
             tol = float(self.result.spectrum.degeneracy_tolerance)
         return float(tol) if tol is not None else 0.0
+
+    def _error_based_tolerance(self) -> Optional[float]:
+        fn = getattr(self.session, "error_based_tolerance", None)
+        return fn() if fn is not None and self.result is self.session.result else None
 
     def _sync_tolerance_box(self) -> None:
         self.tolerance.blockSignals(True)
@@ -244,8 +304,10 @@ class LevelsView(QtWidgets.QWidget):
         from core.eigensolve import group_levels
         result = self.result
         tol = getattr(self.session, "degeneracy_tolerance", None)
+        if tol is None:
+            tol = self._error_based_tolerance()
         self.groups = result.groups if tol is None else group_levels(result.energies, float(tol))
-        ready = getattr(result, "extra", {}).get("level_labels") if tol is None else None
+        ready = getattr(result, "extra", {}).get("level_labels") if tuple(self.groups) == tuple(result.groups) else None
         self.labels = ready if ready is not None else level_labels(result, self.groups)
         self._draw()
 
@@ -263,7 +325,193 @@ class LevelsView(QtWidgets.QWidget):
             parts.append(lab["parity"])
         if lab["lz_text"]:
             parts.append(lab["lz_text"])
+        words = self._verdict_words(lab["members"])
+        if words:
+            parts.append(words)
         return "   ".join(parts)
+
+    # -- trust marks ----------------------------------------------------------------------------------
+    def report(self):
+        """The convergence report that applies to the shown result, or None."""
+        if self.checks is None or self.result is None:
+            return None
+        return self.checks.report_for(self.result)
+
+    def _matched_levels(self, report) -> int:
+        """How many of the shown levels the report describes (same numbering, energies agreeing)."""
+        e = np.asarray(self.result.energies, dtype=float)
+        pe = np.asarray(report.project_energies, dtype=float)
+        n = min(e.size, pe.size)
+        scale = max(float(np.max(np.abs(e))) if e.size else 1.0, 1e-300)
+        tol = max(10.0 * float(self.result.spectrum.degeneracy_tolerance), 1e-6 * scale)
+        for i in range(n):
+            if not (np.isfinite(pe[i]) and abs(pe[i] - e[i]) <= tol):
+                return i
+        return n
+
+    def level_errors(self) -> Optional[np.ndarray]:
+        """Estimated grid error of each shown level (nan where unknown), or None without a report."""
+        rep = self.report()
+        if rep is None:
+            return None
+        out = np.full(len(self.result.energies), np.nan)
+        n = self._matched_levels(rep)
+        out[:n] = np.asarray(rep.grid_errors, dtype=float)[:n]
+        return out
+
+    def splittings(self) -> list:
+        """The report's splittings between shown levels (both ends matched), or [] without a report."""
+        rep = self.report()
+        if rep is None:
+            return []
+        n = self._matched_levels(rep)
+        return [sp for sp in rep.splittings() if sp.lower < n and sp.upper < n]
+
+    def _verdict_words(self, members) -> str:
+        sps = self.splittings()
+        if not sps:
+            return ""
+        group = set(int(i) for i in members)
+        inside = [sp for sp in sps if sp.lower in group and sp.upper in group]
+        below = [sp for sp in sps if sp.upper in group and sp.lower not in group]
+        words = []
+        if inside:
+            if all(not sp.resolved for sp in inside):
+                words.append("≈ degenerate within the grid error")
+            else:
+                words.append("✓ a resolved splitting inside")
+        if any(not sp.resolved for sp in below):
+            words.append("≈ not resolved from the level below")
+        return " · ".join(words)
+
+    def _draw_trust(self, energies: np.ndarray) -> None:
+        for it in self._mark_items:
+            self.plot.removeItem(it)
+        self._mark_items = []
+        self.marks = []
+        errors = self.level_errors()
+        if errors is None:
+            self.error_item.setData(x=np.zeros(0), y=np.zeros(0), height=np.zeros(0))
+            for it in self.bracket_items.values():
+                it.setData([], [])
+            return
+        centre = {level: (0.5 * (x0 + x1), x0, x1, e) for level, x0, x1, e in self.bars}
+        ok = np.isfinite(errors)
+        lv = [i for i in range(len(errors)) if ok[i] and i in centre]
+        self.error_item.setData(x=np.array([centre[i][0] for i in lv]), y=np.array([centre[i][3] for i in lv]),
+                                height=2.0 * errors[lv])
+        group_of = {int(i): gi for gi, g in enumerate(self.groups) for i in g}
+        brackets = {True: ([], []), False: ([], [])}
+        x_col = -self._half - 0.2
+        for sp in self.splittings():
+            a, b = sp.lower, sp.upper
+            if a not in centre or b not in centre:
+                continue
+            ea, eb = centre[a][3], centre[b][3]
+            if group_of.get(a) == group_of.get(b):
+                left, right = sorted((centre[a], centre[b]), key=lambda c: c[1])
+                x = 0.5 * (left[2] + right[1]) if right[1] > left[2] else 0.5 * (left[0] + right[0])
+                y, anchor = max(ea, eb), (0.5, 1.0)
+            else:
+                lo, hi = min(ea, eb), max(ea, eb)
+                xs, ys = brackets[sp.resolved]
+                inset = 0.12 * (hi - lo)           # consecutive brackets stay apart
+                b0, b1 = lo + inset, hi - inset
+                xs += [x_col, x_col, x_col, x_col + 0.1, x_col, x_col + 0.1]
+                ys += [b0, b1, b0, b0, b1, b1]
+                x, y, anchor = x_col - 0.05, 0.5 * (lo + hi), (1.0, 0.5)
+            t = pg.TextItem(sp.mark, anchor=anchor, color=_MARK_COLORS[sp.resolved])
+            t.setPos(x, y)
+            self.plot.addItem(t)
+            self._mark_items.append(t)
+            self.marks.append((a, b, bool(sp.resolved), x, y))
+        for resolved, (xs, ys) in brackets.items():
+            self.bracket_items[resolved].setData(np.array(xs, dtype=float), np.array(ys, dtype=float))
+
+    # -- checks (count and convergence) --------------------------------------------------------------
+    def _on_verify_clicked(self) -> None:
+        if self.checks is not None and self.session.result is not None:
+            self.checks.verify_count(self.session.result)
+
+    def _on_converge_clicked(self) -> None:
+        if self.checks is None:
+            return
+        if self.checks.running("convergence"):
+            self.checks.cancel("convergence")
+        else:
+            self.checks.check_convergence()
+
+    def _on_check_started(self, kind: str) -> None:
+        if kind == "count":
+            self.count_label.setText("… counting the levels below the top one (independent check)")
+        else:
+            self.converge_label.setText("… checking convergence: solving on coarser grids")
+        self._update_buttons()
+
+    def _on_check_progressed(self, stage: str, fraction: float) -> None:
+        if self.checks is not None and self.checks.running("convergence") and not stage.startswith(("building", "factor")):
+            self.converge_label.setText(f"… checking convergence: {stage} {100 * fraction:.0f}%")
+
+    def _on_check_estimated(self, kind: str, estimate) -> None:
+        if kind == "convergence":
+            self.converge_label.setText(f"… checking convergence ({estimate.describe()})")
+
+    def _on_check_failed(self, kind: str, message: str) -> None:
+        target = self.count_label if kind == "count" else self.converge_label
+        target.setText(f"<span style='color:#9b1c1c'>{kind} check: {message}</span>")
+        self._update_buttons()
+
+    def _on_checks_changed(self) -> None:
+        self._update_checks()
+        if self.result is not None:
+            self._regroup()
+
+    def _update_buttons(self) -> None:
+        if self.checks is None:
+            return
+        has = self.session.result is not None
+        self.verify_button.setEnabled(has and not self.checks.running("count"))
+        self.converge_button.setText("Cancel check" if self.checks.running("convergence") else "Check convergence")
+        self.converge_button.setEnabled(True)
+
+    def _update_checks(self) -> None:
+        """Texts of the count certificate and the convergence check for the shown result."""
+        self._update_buttons()
+        if self.checks is None or self.result is None:
+            return
+        u = self.result.units
+        cert = self.checks.certificate_for(self.result)
+        if cert is not None:
+            sym, colour = _COUNT_MARKS.get(cert.label, ("○", "#555555"))
+            reason = cert.reason
+            if cert.shift is not None:          # the certificate speaks in bare numbers: add the unit
+                shown = f"{cert.shift:.6g}"
+                reason = reason.replace(shown, f"{shown} {pretty_unit(u.energy_unit)}")
+            self.count_label.setText(f"<span style='color:{colour}'><b>{sym} {cert.label}</b></span> — {reason}")
+        elif not self.checks.running("count"):
+            self.count_label.setText("○ count not checked — press “Verify level count” to confirm that no level "
+                                     "below the highest one was missed")
+        rep = self.report()
+        if rep is None and self.checks.running("convergence"):
+            return
+        if rep is None:
+            stale = self.checks.latest_report is not None
+            self.converge_label.setText(("○ convergence not checked for these parameters"
+                                         if stale else "○ convergence not checked")
+                                        + " — is a splitting physics or a grid artefact? “Check convergence” tells")
+            return
+        sps = self.splittings()
+        n_ok = sum(1 for sp in sps if sp.resolved)
+        n_no = len(sps) - n_ok
+        order = (f"observed order {rep.observed_order:.2g}" if np.isfinite(rep.observed_order)
+                 else "order not measured")
+        text = (f"<b>convergence checked</b> on {len(rep.grids)} grids ({order}, {rep.expected_order:g} expected) · "
+                f"<span style='color:{_MARK_COLORS[True]}'>✓ {n_ok} resolved</span>, "
+                f"<span style='color:{_MARK_COLORS[False]}'>≈ {n_no} not resolved</span> · "
+                f"error bars: estimated grid error of each level")
+        if rep.warnings:
+            text += "<br><span style='color:#9b1c1c'>" + "; ".join(str(w) for w in rep.warnings) + "</span>"
+        self.converge_label.setText(text)
 
     def _draw(self) -> None:
         result = self.result
@@ -299,9 +547,13 @@ class LevelsView(QtWidgets.QWidget):
         hi = self._shown(float(energies.max()))
         pad = 0.08 * (hi - lo) if hi > lo else max(abs(hi), 1.0) * 0.05
         vb = self.plot.getPlotItem().getViewBox()
-        vb.setXRange(-half - 0.4, self._label_x + 4.0 + half, padding=0)
+        left = -half - (0.9 if self.report() is not None else 0.4)
+        wordy = any(self._verdict_words(lab["members"]) for lab in self.labels)
+        vb.setXRange(left, self._label_x + (7.0 if wordy else 4.0) + half, padding=0)
         vb.setYRange(lo - pad, hi + pad, padding=0)
+        self._draw_trust(energies)
         self._update_header()
+        self._update_checks()
         self._draw_selection()
         self._layout_labels()
 
@@ -421,6 +673,17 @@ class LevelsView(QtWidgets.QWidget):
         if lab["lz"] is not None:
             parts.append("L_z eigenvalues " + ", ".join(f"{v:+.3f}" for v in lab["lz"]) + " ħ")
         parts.append(f"residual {result.spectrum.residuals[level]:.2g} {pretty_unit(u.energy_unit)}")
+        rep = self.report()
+        errors = self.level_errors()
+        if rep is not None and errors is not None and np.isfinite(errors[level]):
+            eu = u.energy_unit
+            parts.append(f"grid error ±{fmt_energy(errors[level], eu, 2)}; extrapolated "
+                         f"{fmt_energy(rep.extrapolated[level], eu, 7)} ± {fmt_energy(rep.errors[level], eu, 2)}")
+            for sp in self.splittings():
+                if level in (sp.lower, sp.upper):
+                    other = sp.upper if level == sp.lower else sp.lower
+                    parts.append(f"splitting to level {other}: {fmt_energy(sp.splitting, eu, 3)} ± "
+                                 f"{fmt_energy(sp.error, eu, 2)}, {sp.mark} {sp.verdict}")
         return " · ".join(parts)
 
     def _on_mouse_moved(self, scene_pos) -> None:

@@ -161,3 +161,40 @@ def test_shutdown_joins_a_running_check(session, qtbot, kind):
         session.checks.verify_count(result)
     session.shutdown()
     assert not session.checks.running()
+
+
+def test_level_diagram_marks_every_splitting_and_the_count(session, qtbot):
+    """The level diagram after a convergence check of the 2D oscillator on a second-order grid:
+    every splitting carries a mark, the shells' artefact splittings are "not resolved" (≈), the
+    gaps of hbar*omega between shells "resolved" (✓), and each level has an error bar."""
+    from app.views import LevelsView
+    view = LevelsView(session)
+    qtbot.addWidget(view)
+    view.resize(900, 640)
+    view.show()
+    p = small_dot(36, 6)
+    p = dataclasses.replace(p, solver=dataclasses.replace(p.solver, scheme="fd2"))
+    with qtbot.waitSignal(session.checks.finished, timeout=TIMEOUT_MS):
+        _solve(qtbot, session, p)
+    assert view.count_label.text().count("✔ count verified") == 1
+    assert "○ convergence not checked" in view.converge_label.text()
+    assert view.marks == []
+    with qtbot.waitSignal(session.checks.finished, timeout=TIMEOUT_MS):
+        view.converge_button.click()
+    qtbot.waitUntil(lambda: bool(view.marks), timeout=5000)
+    report = session.checks.report_for(session.result)
+    exact = oscillator_levels(session.project, report.levels)
+    marked = {(a, b): ok for a, b, ok, _x, _y in view.marks}
+    assert len(marked) == len(report.splittings()) == 5
+    for (a, b), ok in marked.items():
+        assert ok == (abs(exact[a] - exact[b]) > 1e-9 * exact[0])
+    assert [len(g) for g in view.groups] == [1, 2, 3]
+    texts = [t.toPlainText() for t in view._label_items]
+    assert "≈ degenerate within the grid error" in texts[1] and "≈ degenerate within the grid error" in texts[2]
+    assert "≈" not in texts[0]
+    assert "✓ 2 resolved" in view.converge_label.text() and "≈ 3 not resolved" in view.converge_label.text()
+    errs = view.level_errors()
+    assert errs.shape == (6,) and np.all(np.isfinite(errs)) and np.all(errs > 0)
+    hover = view.describe_level(2)
+    assert "not resolved" in hover and "grid error ±" in hover
+    qtbot.waitUntil(lambda: not session.checks.running() and not session.solving, timeout=TIMEOUT_MS)
