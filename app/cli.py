@@ -106,6 +106,13 @@ def cmd_solve(args) -> int:
     bar.done()
     spec = result.spectrum
     u = result.units
+    cert = None
+    if args.count:
+        from core.inertia import certify_count
+        from core.study import project_hamiltonian
+        h = project_hamiltonian(project, parameters=result.parameters, scheme=result.scheme,
+                                potential=result.potential)[0]
+        cert = certify_count(h, spec)
     if args.out:
         out = Path(args.out)
         out.mkdir(parents=True, exist_ok=True)
@@ -125,6 +132,10 @@ def cmd_solve(args) -> int:
                           "converged": spec.converged, "multiplet_cut": spec.multiplet_cut,
                           "method": spec.method, "notes": list(spec.notes)},
                "wellscape_version": __version__}
+        if cert is not None:
+            doc["count"] = {"label": cert.label, "certified": cert.certified, "count_below": cert.count_below,
+                            "expected": cert.expected, "shift": cert.shift, "reason": cert.reason,
+                            "method": cert.method}
         if project.spin:
             from core.study import spin_levels
             sl = spin_levels(result)
@@ -147,6 +158,9 @@ def cmd_solve(args) -> int:
         print(f"note: {note}")
     if spec.multiplet_cut:
         print("note: the highest multiplet may be cut; ask for more states to see all of it")
+    if cert is not None:
+        mark = {"count verified": "[ok]", "count NOT verified": "[!!]"}.get(cert.label, "[--]")
+        print(f"{mark} {cert.label}: {cert.describe(u.energy_unit)}")
     if args.out:
         print(f"\nwrote {Path(args.out) / 'levels.csv'} and {Path(args.out) / 'states.npz'}")
     return 0
@@ -233,6 +247,9 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("--set", action="append", metavar="NAME=VALUE", help="override a parameter (repeatable)")
     s.add_argument("--json", action="store_true", help="print machine-readable JSON")
     s.add_argument("--out", metavar="DIR", help="write levels.csv and states.npz into DIR")
+    s.add_argument("--count", action="store_true",
+                   help="count the eigenvalues below the highest level independently (Sylvester's law of "
+                        "inertia) to confirm that no level was missed")
     s.set_defaults(func=cmd_solve)
 
     s = sub.add_parser("potential", help="write the evaluated potential on the grid")

@@ -80,7 +80,8 @@ def format_report(report, *, marks=None, title: str = "", certificate=None) -> s
     lines.append("")
     lines.append(f"degeneracy tolerance from the errors: {default_degeneracy_tolerance(report):.3g} {eu}")
     if certificate is not None:
-        lines.append(f"level count on the project grid: {certificate.label} ({certificate.reason})")
+        lines.append(f"level count on the project grid: {certificate.label} "
+                     f"({certificate.describe(report.energy_unit)})")
     for wmsg in report.warnings:
         lines.append(f"warning: {wmsg}")
     lines.append(f"took {report.wall_time:.1f} s")

@@ -77,8 +77,10 @@ class ExportSheetDialog(QtWidgets.QDialog):
             self.message.setText("This layout shows a sweep fan: run a sweep first (Sweep tab).")
             return None
         try:
+            checks = getattr(self.session, "checks", None)
+            report = checks.report_for(result) if checks is not None and result is not None else None
             sheet = build_sheet(result, sweep=sweep if "fan" in layout else None, layout=layout,
-                                template=self.template_box.currentData())
+                                template=self.template_box.currentData(), convergence=report)
         except WellscapeError as exc:
             self.message.setText(f"Cannot compose this sheet: {exc}")
             return None

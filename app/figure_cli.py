@@ -10,6 +10,7 @@ User errors print one line on stderr and exit with status 2.
 from __future__ import annotations
 
 import argparse
+import math
 import sys
 from pathlib import Path
 from typing import Optional, Sequence
@@ -40,6 +41,11 @@ def add_figure_parser(sub) -> None:
     s.add_argument("--slice", action="store_true", help="3D: a slice through each state instead of the "
                                                          "density projected along z")
     s.add_argument("--set", action="append", metavar="NAME=VALUE", help="override a parameter (repeatable)")
+    s.add_argument("--converge", action="store_true",
+                   help="check convergence first (solves on coarser grids too) and mark every splitting of the "
+                        "level diagram as resolved or not resolved, with grid-error bars")
+    s.add_argument("--factor", type=float, default=1.5,
+                   help="with --converge: spacing ratio between the grids (default 1.5)")
     s.add_argument("--dpi", default="200", help="PNG resolution in dots per inch (default 200)")
     s.add_argument("--title", help="title over the sheet (default: the project's title on a slide, none in a journal)")
     s.add_argument("--no-data", action="store_true", help="do not write NAME.sheet.json")
@@ -141,6 +147,8 @@ def cmd_figure(args) -> int:
                                           ("--sweep-unit", args.sweep_unit)) if value]
         if args.slice:
             fixed.append("--slice")
+        if args.converge:
+            fixed.append("--converge")
         if fixed:
             _fail(f"{', '.join(fixed)} {'changes' if len(fixed) == 1 else 'change'} what is plotted; a sheet redrawn --from its data keeps its values "
                   f"(only --template, --columns, --dpi and --title apply)")
@@ -188,9 +196,24 @@ def cmd_figure(args) -> int:
         bar.done()
     elif args.set:
         _fail("--set changes the solved project, but this layout only draws the sweep")
+    report = None
+    if args.converge:
+        if result is None or (tokens is not None and not any(name == "levels" for name, _ in tokens)):
+            _fail("--converge marks the level diagram, but this layout has no levels panel")
+        if not (math.isfinite(args.factor) and args.factor > 1.0):
+            _fail(f"--factor must be a number above 1, got {args.factor}")
+        from core.convergence import convergence_study
+        from core.estimate import estimate_convergence
+        est = estimate_convergence(project, factor=args.factor, levels=project.solver.states,
+                                   parameters=_parse_sets(args.set)).check()
+        print(f"wellscape: {est.describe()}", file=sys.stderr)
+        bar = _Progress("converging")
+        report = convergence_study(project, factor=args.factor, levels=project.solver.states,
+                                   parameters=_parse_sets(args.set), progress=bar)
+        bar.done()
     sheet = build_sheet(result, sweep=sweep, layout=layout, template=args.template or "slide", states=states,
                         wavefunction=args.psi or "density", three_d="slice" if args.slice else "projection",
-                        columns=columns, parameter_unit=args.sweep_unit, title=args.title)
+                        columns=columns, parameter_unit=args.sweep_unit, title=args.title, convergence=report)
     fig_path, data_path = save_sheet(sheet, out, dpi=dpi, data=not args.no_data)
     _report(fig_path, data_path, dpi, sheet)
     return 0

@@ -48,12 +48,13 @@ from typing import Any, Optional, Sequence, Union
 import numpy as np
 
 from .atomic import atomic_write
+from .convergence import MARKS, NOT_RESOLVED, RESOLVED
 from .errors import InputError
 
 __all__ = ["Sheet", "Template", "TEMPLATES", "LAYOUTS", "DEFAULT_LAYOUT", "DEFAULT_SWEEP_LAYOUT",
            "SHEET_FORMAT", "parse_layout", "build_sheet", "sheet_figure", "render_sheet", "save_sheet",
            "load_sheet", "sheet_to_dict", "sheet_from_dict", "sheet_json_path", "project_hash",
-           "caption_lines", "FIGURE_FORMATS"]
+           "caption_lines", "FIGURE_FORMATS", "convergence_order_text"]
 
 SHEET_FORMAT = "wellscape-figure-sheet"
 SHEET_FORMAT_VERSION = 1
@@ -561,13 +562,52 @@ def _state_panels(result, levels: Sequence[int], mode: str, three_d: str, crop: 
     return panels
 
 
-def _levels_panel(result, highlight: Sequence[int]) -> dict:
+def _levels_panel(result, highlight: Sequence[int], convergence=None) -> dict:
+    """The level diagram's data.  With ``convergence`` (a :class:`core.convergence.ConvergenceReport`
+    of the same project), the levels are grouped with the tolerance built from its error estimates,
+    and every splitting between levels it describes carries its verdict (resolved or not) and each
+    level its estimated grid error."""
     u = result.units
     e = np.asarray(result.energies, dtype=float)
-    return {"kind": "levels", "title": "Levels", "energies": e, "groups": [list(g) for g in result.groups],
-            "highlight": [int(i) for i in highlight],
-            "decimals": _decimals(np.array([float(np.mean(e[list(g)])) for g in result.groups]), ignore_below=0.01),
-            "y_label": _label("E", u.energy_unit), "energy_unit": _pretty_unit(u.energy_unit)}
+    groups = [list(g) for g in result.groups]
+    panel = {"kind": "levels", "title": "Levels", "energies": e, "groups": groups,
+             "highlight": [int(i) for i in highlight],
+             "y_label": _label("E", u.energy_unit), "energy_unit": _pretty_unit(u.energy_unit)}
+    if convergence is not None:
+        from .convergence import default_degeneracy_tolerance
+        from .eigensolve import group_levels
+        if (convergence.reference.project != result.project
+                or dict(convergence.reference.parameters) != dict(result.parameters)):
+            raise InputError("the convergence check was made for another project (or other parameter values) "
+                             "than the solve: check convergence again")
+        pe = np.asarray(convergence.project_energies, dtype=float)
+        scale = max(float(np.max(np.abs(e))), 1e-300)
+        tol_match = max(10.0 * float(result.spectrum.degeneracy_tolerance), 1e-6 * scale)
+        n = 0
+        while n < min(e.size, pe.size) and np.isfinite(pe[n]) and abs(pe[n] - e[n]) <= tol_match:
+            n += 1
+        tol = float(default_degeneracy_tolerance(convergence))
+        if tol > 0:
+            groups = [list(g) for g in group_levels(e, tol)]
+            panel["groups"] = groups
+        errors = np.full(e.size, np.nan)
+        errors[:n] = np.asarray(convergence.grid_errors, dtype=float)[:n]
+        panel["errors"] = errors
+        panel["splittings"] = [{"lower": int(sp.lower), "upper": int(sp.upper), "resolved": bool(sp.resolved)}
+                               for sp in convergence.splittings() if sp.lower < n and sp.upper < n]
+        panel["check"] = (f"convergence checked on {len(convergence.grids)} grids: "
+                          f"{MARKS[RESOLVED]} resolved, {MARKS[NOT_RESOLVED]} not resolved by the grid")
+    panel["decimals"] = _decimals(np.array([float(np.mean(e[g])) for g in groups]), ignore_below=0.01)
+    return panel
+
+
+def convergence_order_text(report) -> str:
+    """How a convergence check extrapolated, in a few words (for captions and status lines)."""
+    if not np.isfinite(report.expected_order):
+        return "spectral scheme: the finest grid's energies, the change from the next grid as their error"
+    seen = (f"observed order {report.observed_order:.2g}" if np.isfinite(report.observed_order)
+            else "order not measured")
+    return f"Richardson extrapolation, {seen}, {report.expected_order:g} expected"
 
 
 def _fan_panel(sweep, parameter_unit: Optional[str]) -> dict:
@@ -621,7 +661,8 @@ def _interp(x: np.ndarray, y: np.ndarray, at: float) -> float:
 def build_sheet(result=None, *, sweep=None, layout: Optional[str] = None, template: str = "slide",
                 states: Optional[Sequence[int]] = None, wavefunction: str = "density",
                 three_d: str = "projection", columns: Optional[int] = None, crop: bool = True,
-                parameter_unit: Optional[str] = None, title: Optional[str] = None) -> Sheet:
+                parameter_unit: Optional[str] = None, title: Optional[str] = None,
+                convergence=None) -> Sheet:
     """Extract what a figure sheet plots from a solve (and a sweep) into a :class:`Sheet`.
 
     ``result`` is a :class:`core.study.StudyResult` (needed by every panel but ``fan``);
@@ -631,6 +672,8 @@ def build_sheet(result=None, *, sweep=None, layout: Optional[str] = None, templa
     ``wavefunction`` is ``"density"`` (|psi|^2) or ``"signed"`` (psi with its nodes);
     ``three_d`` is ``"projection"`` (density summed along z) or ``"slice"``.
     ``crop`` zooms every state panel to the same window that holds all shown states.
+    ``convergence`` (a :class:`core.convergence.ConvergenceReport` of the same project) marks every
+    splitting of the level diagram as resolved or not, with error bars and a caption line.
     """
     from . import __version__
     if wavefunction not in WAVEFUNCTION_MODES:
@@ -695,7 +738,7 @@ def build_sheet(result=None, *, sweep=None, layout: Optional[str] = None, templa
             panels.extend(_state_panels(result, levels, wavefunction, three_d, crop))
     for i, p in enumerate(panels):
         if p is None:
-            panels[i] = _levels_panel(result, shown)
+            panels[i] = _levels_panel(result, shown, convergence)
     if len(panels) > MAX_PANELS:
         raise InputError(f"layout {layout!r} makes {len(panels)} panels; a sheet holds at most {MAX_PANELS}")
     if result is not None:
@@ -706,6 +749,11 @@ def build_sheet(result=None, *, sweep=None, layout: Optional[str] = None, templa
     maps = _map_file_hashes(project)
     h = project_hash(doc, {"map_files": maps} if maps else None)
     caption = caption_lines(project, parameters=params, result=result, sweep=sweep, hash_text=h)
+    if convergence is not None and any(p["kind"] == "levels" for p in panels):
+        caption.append(f"Levels checked on {len(convergence.grids)} grids ({convergence_order_text(convergence)}): "
+                       f"{MARKS[RESOLVED]} splitting larger than the combined "
+                       f"error estimate of its two levels, {MARKS[NOT_RESOLVED]} within it; error bars: estimated grid "
+                       f"error of each level.")
     from .units import get_units
     u = get_units(project.units)
     if title is None:
@@ -982,7 +1030,12 @@ def _draw_levels_frame(fig, ax, p: dict, t: Template) -> None:
     for side in ("top", "right", "bottom"):
         ax.spines[side].set_visible(False)
     ax.set_ylabel(p["y_label"])
-    ax.set_xlabel(f"levels: energy [{p['energy_unit']}]", fontsize=t.font_pt * 0.75, color="0.35")
+    xlabel = f"levels: energy [{p['energy_unit']}]"
+    if p.get("splittings") is not None:
+        xlabel += f"\n{MARKS[RESOLVED]} resolved · {MARKS[NOT_RESOLVED]} not resolved"
+        if p.get("errors") is not None:
+            xlabel += "\nbars: grid error"
+    ax.set_xlabel(xlabel, fontsize=t.font_pt * 0.75, color="0.35")
 
 
 def _draw_levels(fig, ax, p: dict, t: Template) -> None:
@@ -1007,7 +1060,7 @@ def _draw_levels(fig, ax, p: dict, t: Template) -> None:
             clusters[-1]["top"] = en
         else:
             clusters.append({"groups": [g], "top": en})
-    bar_x0 = 0.3 * t.font_pt / width_pt
+    bar_x0 = (0.3 + (1.6 if p.get("splittings") is not None else 0.0)) * t.font_pt / width_pt
     bar_x1 = min(0.45, bar_x0 + _LEVEL_BARS * t.font_pt / width_pt)
     label_pt = 0.75 * t.font_pt
     pos, heights, texts = [], [], []
@@ -1031,6 +1084,8 @@ def _draw_levels(fig, ax, p: dict, t: Template) -> None:
         pos.append(centre)
         heights.append(1.2 * label_pt * lines * per_pt)
         texts.append(txt)
+    if p.get("splittings") is not None:
+        _draw_verdicts(ax, p, t, clusters, (bar_x0, bar_x1), width_pt, per_pt, texts)
     for yt, yb, txt in zip(_spread(pos, heights), pos, texts):
         a = ax.annotate(txt, xy=(bar_x1 + 0.1 * t.font_pt / width_pt, yb),
                         xytext=(bar_x1 + 0.8 * t.font_pt / width_pt, yt), va="center", ha="left",
@@ -1038,6 +1093,56 @@ def _draw_levels(fig, ax, p: dict, t: Template) -> None:
                         arrowprops={"arrowstyle": "-", "color": "0.6", "linewidth": 0.5, "shrinkA": 0,
                                     "shrinkB": 0})
         a.set_in_layout(False)
+
+
+def _draw_verdicts(ax, p: dict, t: Template, clusters: list, bars: tuple, width_pt: float, per_pt: float,
+                   texts: list) -> None:
+    """Marks of a convergence check on the level diagram (never by colour alone).
+
+    * each level: an error bar of its estimated grid error at the middle of its bar;
+    * a splitting between drawn clusters: a bracket left of the bars with ✓ (resolved) or ≈ (not
+      resolved) beside it;
+    * splittings inside a cluster (levels drawn side by side): the cluster's label ends with the
+      marks, e.g. "≈" when the grid cannot tell its levels apart."""
+    e = p["energies"]
+    errors = p.get("errors")
+    bar_x0, bar_x1 = bars
+    member_x = {}
+    for c in clusters:
+        members = [i for g in c["groups"] for i in g]
+        w = (bar_x1 - bar_x0) / len(members)
+        for k, i in enumerate(members):
+            member_x[i] = bar_x0 + (k + 0.5) * w
+    if errors is not None:
+        ok = [i for i in member_x if np.isfinite(errors[i]) and errors[i] > 0]
+        if ok:
+            ax.errorbar([member_x[i] for i in ok], [e[i] for i in ok], yerr=[errors[i] for i in ok], fmt="none",
+                        ecolor="0.35", elinewidth=0.6 * t.line_width, capsize=0.25 * t.font_pt)
+    cluster_of = {i: ci for ci, c in enumerate(clusters) for g in c["groups"] for i in g}
+    x_col = bar_x0 - 0.35 * t.font_pt / width_pt
+    tick = 0.2 * t.font_pt / width_pt
+    inside: dict = {}
+    for sp in p["splittings"]:
+        a, b = int(sp["lower"]), int(sp["upper"])
+        if a not in cluster_of or b not in cluster_of:
+            continue
+        mark = MARKS[RESOLVED if sp["resolved"] else NOT_RESOLVED]
+        if cluster_of[a] == cluster_of[b]:
+            inside.setdefault(cluster_of[a], []).append(mark)
+            continue
+        lo, hi = sorted((float(e[a]), float(e[b])))
+        inset = min(0.12 * (hi - lo), 1.5 * per_pt)
+        ax.plot([x_col + tick, x_col, x_col, x_col + tick], [lo + inset, lo + inset, hi - inset, hi - inset],
+                color="black", linewidth=0.6 * t.line_width,
+                linestyle="-" if sp["resolved"] else (0, (2.0, 1.5)), solid_capstyle="butt")
+        txt = ax.text(x_col - 0.15 * t.font_pt / width_pt, 0.5 * (lo + hi), mark, ha="right", va="center",
+                      fontsize=0.75 * t.font_pt, clip_on=False)
+        txt.set_in_layout(False)
+    for ci, marks in inside.items():
+        if ci < len(texts):
+            lines = texts[ci].split("\n")
+            lines[0] += "  " + "".join(sorted(set(marks), key=marks.index))
+            texts[ci] = "\n".join(lines)
 
 
 def _draw_fan(fig, ax, p: dict, t: Template) -> None:
@@ -1089,13 +1194,16 @@ def _level_label_chars(p: dict) -> int:
     for g in p["groups"]:
         text = f"{_span_text(g)}: {float(np.mean(e[g])):.{dec}f}" + (f" (×{len(g)})" if len(g) > 1 else "")
         longest = max(longest, len(text))
+    if p.get("splittings") is not None:
+        longest += 4          # the marks of splittings inside a cluster ("  ≈✓")
     return max(longest, 12)
 
 
 def _flex_width(p: dict) -> float:
     """Smallest width of the axes of a panel without a map, in font sizes."""
     if p["kind"] == "levels":
-        return _LEVEL_BARS + 1.0 + 0.75 * 0.6 * _level_label_chars(p)
+        marks = 1.6 if p.get("splittings") is not None else 0.0     # the bracket column left of the bars
+        return _LEVEL_BARS + 1.0 + marks + 0.75 * 0.6 * _level_label_chars(p)
     return _FLEX[p["kind"]][0]
 
 
@@ -1595,7 +1703,8 @@ _PANEL_KEYS = {
     "cut": {"kind", "title", "s", "values", "energies", "groups", "ylim", "x_label", "y_label"},
     "state": {"kind", "title", "level", "energy", "mode", "value_label", "x_label", "y_label", "x", "y", "s",
               "values"},
-    "levels": {"kind", "title", "energies", "groups", "highlight", "decimals", "y_label", "energy_unit"},
+    "levels": {"kind", "title", "energies", "groups", "highlight", "decimals", "y_label", "energy_unit",
+               "errors", "splittings", "check"},
     "fan": {"kind", "title", "values", "tracks", "anticrossings", "x_label", "y_label", "energy_unit", "parameter"},
 }
 
@@ -1679,6 +1788,27 @@ def _read_panel(r: _Reader, raw, path: str) -> dict:
         out.update({"energies": e, "groups": r.groups(need("groups"), f"{path}.groups", e.size),
                     "highlight": [r.integer(k, f"{path}.highlight[{i}]", 0, e.size - 1) for i, k in enumerate(hl)],
                     "decimals": r.integer(need("decimals"), f"{path}.decimals", 0, 12)})
+        if "errors" in d:
+            err = r.array(d["errors"], f"{path}.errors", 1, allow_nan=True)
+            if err.size != e.size:
+                r.fail(f"{path}.errors", f"{err.size} errors for {e.size} levels")
+            out["errors"] = err
+        if "splittings" in d:
+            sps = d["splittings"]
+            if not isinstance(sps, list):
+                r.fail(f"{path}.splittings", "expected a list")
+            out["splittings"] = []
+            for j, sp in enumerate(sps):
+                sp_path = f"{path}.splittings[{j}]"
+                sp = r.obj(sp, sp_path)
+                resolved = sp.get("resolved")
+                if not isinstance(resolved, bool):
+                    r.fail(f"{sp_path}.resolved", "expected true or false")
+                out["splittings"].append({"lower": r.integer(sp.get("lower"), f"{sp_path}.lower", 0, e.size - 1),
+                                          "upper": r.integer(sp.get("upper"), f"{sp_path}.upper", 0, e.size - 1),
+                                          "resolved": resolved})
+        if "check" in d:
+            out["check"] = r.text(d["check"], f"{path}.check", limit=300)
     elif kind == "fan":
         x = r.array(need("values"), f"{path}.values", 1, min_size=2)
         tr = r.array(need("tracks"), f"{path}.tracks", 2, allow_nan=True)

@@ -125,6 +125,13 @@ class CountCertificate:
         """Levels below the shift that the solve did not return (negative: returned levels not found)."""
         return None if self.count_below is None else self.count_below - self.expected
 
+    def describe(self, energy_unit: str = "") -> str:
+        """The reason, with the energy unit after the shift (the reason itself gives bare numbers)."""
+        if self.shift is None or not energy_unit:
+            return self.reason
+        shown = f"{self.shift:.6g}"
+        return self.reason.replace(shown, f"{shown} {energy_unit}")
+
     @property
     def label(self) -> str:
         """Short mark for a level table: 'count verified', 'count NOT verified' or 'count not checked'."""

@@ -483,10 +483,7 @@ class LevelsView(QtWidgets.QWidget):
         cert = self.checks.certificate_for(self.result)
         if cert is not None:
             sym, colour = _COUNT_MARKS.get(cert.label, ("○", "#555555"))
-            reason = cert.reason
-            if cert.shift is not None:          # the certificate speaks in bare numbers: add the unit
-                shown = f"{cert.shift:.6g}"
-                reason = reason.replace(shown, f"{shown} {pretty_unit(u.energy_unit)}")
+            reason = cert.describe(pretty_unit(u.energy_unit))
             self.count_label.setText(f"<span style='color:{colour}'><b>{sym} {cert.label}</b></span> — {reason}")
         elif not self.checks.running("count"):
             self.count_label.setText("○ count not checked — press “Verify level count” to confirm that no level "
@@ -503,9 +500,12 @@ class LevelsView(QtWidgets.QWidget):
         sps = self.splittings()
         n_ok = sum(1 for sp in sps if sp.resolved)
         n_no = len(sps) - n_ok
-        order = (f"observed order {rep.observed_order:.2g}" if np.isfinite(rep.observed_order)
-                 else "order not measured")
-        text = (f"<b>convergence checked</b> on {len(rep.grids)} grids ({order}, {rep.expected_order:g} expected) · "
+        if np.isfinite(rep.expected_order):
+            order = (f"observed order {rep.observed_order:.2g}, {rep.expected_order:g} expected"
+                     if np.isfinite(rep.observed_order) else f"order not measured, {rep.expected_order:g} expected")
+        else:
+            order = "spectral scheme"
+        text = (f"<b>convergence checked</b> on {len(rep.grids)} grids ({order}) · "
                 f"<span style='color:{_MARK_COLORS[True]}'>✓ {n_ok} resolved</span>, "
                 f"<span style='color:{_MARK_COLORS[False]}'>≈ {n_no} not resolved</span> · "
                 f"error bars: estimated grid error of each level")

@@ -105,3 +105,21 @@ def test_sweep_command_json_and_table(capsys, tmp_path):
     code, out, err = run(capsys, "sweep", str(double), "--vary", "tilt", "--from", "0", "--to", "1",
                          "--steps", "0")
     assert code == 2 and "steps" in err
+
+
+def test_solve_count_verifies_against_the_analytic_elliptical_oscillator(capsys):
+    """``--count``: the eigenvalues below the shift, counted by Sylvester's law of inertia
+    (J. J. Sylvester, Phil. Mag. 4, 138 (1852)), equal the number of levels of the anisotropic
+    oscillator E = hw sqrt(1 - ell) (nx + 1/2) + hw sqrt(1 + ell) (ny + 1/2) below it (textbook
+    separable oscillator; the sample writes omega_x = omega sqrt(1 - ell), omega_y = omega sqrt(1 + ell))."""
+    code, out, err = run(capsys, "solve", str(SAMPLE), "--states", "6", "--count", "--json")
+    assert code == 0
+    doc = json.loads(out)
+    count = doc["count"]
+    params = doc["project"]["parameters"]
+    wx, wy = params["hw"] * np.sqrt(1 - params["ell"]), params["hw"] * np.sqrt(1 + params["ell"])
+    exact = np.array([wx * (i + 0.5) + wy * (j + 0.5) for i in range(20) for j in range(20)])
+    assert count["certified"] and count["label"] == "count verified"
+    assert count["count_below"] == int(np.sum(exact < count["shift"])) == len(doc["energies"])
+    code, out, err = run(capsys, "solve", str(SAMPLE), "--states", "6", "--count")
+    assert code == 0 and "[ok] count verified" in out and "meV, as many as the solve returned" in out

@@ -132,3 +132,22 @@ def test_registered_in_the_wellscape_command():
     args = parser.parse_args(["figure", "p.json", "-o", "x.pdf"])
     from app.figure_cli import cmd_figure
     assert args.func is cmd_figure
+
+
+def test_figure_converge_marks_the_level_diagram(small_project, tmp_path):
+    """``--converge``: the sheet's level panel carries a verdict for every splitting of the levels it
+    shows and an error bar per level; the caption says how the levels were checked."""
+    code = main(["figure", str(small_project), "--layout", "levels", "--converge", "-o", str(tmp_path / "l.png")])
+    assert code == 0
+    doc = json.loads((tmp_path / "l.sheet.json").read_text())
+    panel = doc["panels"][0]
+    n = len(panel["energies"])
+    assert len(panel["splittings"]) >= min(n, 4) - 1 and len(panel["errors"]) == n
+    assert all(isinstance(sp["resolved"], bool) for sp in panel["splittings"])
+    assert any("Levels checked on 3 grids" in line for line in doc["caption"])
+
+
+def test_figure_converge_needs_a_levels_panel(small_project, tmp_path, capsys):
+    code = main(["figure", str(small_project), "--layout", "potential", "--converge", "-o", str(tmp_path / "p.png")])
+    assert code == 2
+    assert "no levels panel" in capsys.readouterr().err

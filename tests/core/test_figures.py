@@ -446,3 +446,69 @@ def test_fan_keeps_missing_points_as_gaps(osc, tmp_path):
     assert Image.open(tmp_path / "fan.png").size[0] == 533           # 40/3 in at 40 dpi
     back = load_sheet(data).panels[0]["tracks"]
     assert np.isnan(back[2, 5]) and np.array_equal(np.isnan(back), np.isnan(s.panels[0]["tracks"]))
+
+
+# --- a convergence check on the level diagram ----------------------------------------------------
+# Richardson extrapolation (L. F. Richardson, Phil. Trans. R. Soc. A 210, 307 (1911)); the 2D
+# oscillator's shells (N + 1 equal levels at (N + 1) hbar*omega, see the module docstring) are split
+# on a second-order grid only by the grid, so their internal splittings must be "not resolved" and
+# the hbar*omega gaps between shells "resolved".
+
+@pytest.fixture(scope="module")
+def fd2_checked():
+    from core.convergence import convergence_study
+    p = oscillator_project(points=36, states=6)
+    p = replace(p, solver=replace(p.solver, scheme="fd2"))
+    return solve_project(p), convergence_study(p, factor=1.5, grids=3)
+
+
+def _exact_levels(n):
+    return np.array([HW * (N + 1) for N in range(6) for _ in range(N + 1)])[:n]
+
+
+def test_levels_panel_marks_every_splitting_with_the_analytic_verdict(fd2_checked, tmp_path):
+    result, report = fd2_checked
+    sheet = build_sheet(result, layout="levels", convergence=report)
+    panel = sheet.panels[0]
+    exact = _exact_levels(6)
+    assert panel["groups"] == [[0], [1, 2], [3, 4, 5]]        # grouped with the error-based tolerance
+    assert len(panel["splittings"]) == 5
+    for sp in panel["splittings"]:
+        same_shell = exact[sp["lower"]] == exact[sp["upper"]]
+        assert sp["resolved"] == (not same_shell), sp
+    # each error bar covers the project grid's distance to the exact level within a factor of 3
+    # (the estimate is the distance to the Richardson value, itself O(h^4)-close to the exact one)
+    err = panel["errors"]
+    true = np.abs(result.energies[:6] - exact)
+    assert np.all(err > true / 3) and np.all(err < 3 * true)
+    assert any("Levels checked on 3 grids" in line for line in sheet.caption)
+    # drawn with the marks, and redrawn identically from the sheet's data file
+    fig_path, data_path = save_sheet(sheet, tmp_path / "levels.png")
+    again = load_sheet(data_path)
+    assert again.panels[0]["splittings"] == panel["splittings"]
+    np.testing.assert_array_equal(again.panels[0]["errors"], err)
+    texts = [t.get_text() for t in sheet_figure(sheet).axes[0].texts]
+    assert texts.count("✓") == 2                     # the two gaps between shells, left of the bars
+    assert any(t.endswith("≈") for t in "\n".join(texts).split("\n"))   # inside the shells' labels
+
+
+def test_a_convergence_check_of_another_project_is_refused(fd2_checked, osc):
+    _result, report = fd2_checked
+    with pytest.raises(InputError, match="another project"):
+        build_sheet(osc, layout="levels", convergence=report)
+
+
+@pytest.mark.parametrize("mutate, message", [
+    (lambda p: p.update(splittings="all fine"), r"splittings"),
+    (lambda p: p.update(splittings=[{"lower": 0, "upper": 99, "resolved": True}]), r"splittings\[0\]\.upper"),
+    (lambda p: p.update(splittings=[{"lower": 0, "upper": 1, "resolved": "yes"}]), r"resolved"),
+    (lambda p: p.update(errors=[0.1]), r"errors"),
+])
+def test_bad_verdicts_in_a_sheet_file_get_a_clear_error(fd2_checked, tmp_path, mutate, message):
+    result, report = fd2_checked
+    doc = json.loads(json.dumps(sheet_to_dict(build_sheet(result, layout="levels", convergence=report))))
+    mutate(doc["panels"][0])
+    path = tmp_path / "bad.sheet.json"
+    path.write_text(json.dumps(doc))
+    with pytest.raises(InputError, match=message):
+        load_sheet(path)

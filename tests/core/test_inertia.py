@@ -56,9 +56,25 @@ def test_count_matches_box_with_accidental_degeneracies(limit, dense_limit, monk
     25 = 9 + 16 (and 25 + 0 is not allowed) and 50 = 1 + 49 = 25 + 25, by both factorisations."""
     import core.inertia as inertia
     monkeypatch.setattr(inertia, "DENSE_LIMIT", dense_limit)
+    monkeypatch.setattr(inertia, "DENSE_SPECTRAL_LIMIT", dense_limit)
     h = box_hamiltonian(30)
     got = count_below(h, limit)
     assert got.count == box_count(limit)
+    assert got.method.startswith("dense" if dense_limit else "sparse")
+
+
+def test_spectral_scheme_counts_densely_up_to_the_spectral_limit():
+    """The spectral scheme couples whole lines, so its factor is dense: 40^2 = 1600 unknowns are
+    factorised by LAPACK's Bunch-Kaufman LDL^T (well above DENSE_LIMIT), and the count still equals
+    the closed-form box count, on both sides of the accidental degeneracy 50 = 1 + 49 = 25 + 25."""
+    import core.inertia as inertia
+    h = box_hamiltonian(40)
+    assert h.size > inertia.DENSE_LIMIT
+    est = estimate_factorisation(h)
+    assert est.method.startswith("dense") and est.unknowns == 1600
+    for limit in (0.5 * 49.9, 0.5 * 50.5):
+        got = count_below(h, limit)
+        assert got.method.startswith("dense") and got.count == box_count(limit)
 
 
 @pytest.fixture(scope="module")
@@ -136,12 +152,12 @@ def test_count_matches_dense_eigvalsh_random_potential(ndim, scheme, field):
     for k in (3, 25, len(w) // 3):   # small dense references keep LAPACK quick
         shift = 0.5 * (w[k - 1] + w[k])
         for limit in (10**6, 0):
-            old = inertia.DENSE_LIMIT
-            inertia.DENSE_LIMIT = limit
+            old = inertia.DENSE_LIMIT, inertia.DENSE_SPECTRAL_LIMIT
+            inertia.DENSE_LIMIT = inertia.DENSE_SPECTRAL_LIMIT = limit
             try:
                 assert count_below(h, shift).count == k
             finally:
-                inertia.DENSE_LIMIT = old
+                inertia.DENSE_LIMIT, inertia.DENSE_SPECTRAL_LIMIT = old
 
 
 def test_count_on_plain_matrices():
