@@ -176,6 +176,7 @@ class Session(QObject):
     sweep_progressed = Signal(float)
     sweep_finished = Signal(object)
     sweep_failed = Signal(str)
+    sweep_estimated = Signal(object)  # core.estimate.Estimate of a sweep that is about to run
     # beyond the contract: small conveniences for the window
     degeneracy_changed = Signal()
     notice = Signal(str)              # a one-line message for the status strip (warnings, autosave trouble)
@@ -771,11 +772,16 @@ class Session(QObject):
             item = 16 if any(v != 0 for v in project.magnetic_field) else 8
             keep_states = vals.size * (k + 4) * project.grid.size * item < 512 * 2**20
 
-        def work(progress, should_stop):
+        def work(progress, should_stop, note):
+            from core.estimate import estimate_sweep
+            est = estimate_sweep(project, vals.size, states=states)
+            note(est)
+            est.check()        # refused before any large allocation, with a suggestion
             return core_sweep.run_sweep(project, parameter, vals, states=states, keep_states=keep_states,
                                         progress=progress, should_stop=should_stop)
 
-        job = Job(work, kind="sweep", tag=(self._generation, project))
+        job = Job(work, kind="sweep", tag=(self._generation, project), notes=True)
+        job.noted.connect(self.sweep_estimated)
         job.progressed.connect(lambda _stage, f: self.sweep_progressed.emit(f))
         job.solved.connect(self._on_sweep_done)
         job.failed.connect(self._on_sweep_failed)

@@ -32,6 +32,10 @@ def cmd_sweep(args) -> int:
         raise _UsageError(f"--steps must be at least 1, got {args.steps}")
     project = _load(args.project)
     values = np.linspace(args.start, args.stop, args.steps)
+    from core.estimate import estimate_sweep
+    est = estimate_sweep(project, values.size, states=args.states).check()   # refused with a suggestion
+    if not args.json:
+        print(f"wellscape: {est.describe()}", file=sys.stderr)
     bar = _Progress("sweep", enabled=None if not args.json else False)
     result = run_sweep(project, args.vary, values, states=args.states, workers=args.workers,
                        cluster=args.cluster, progress=bar)

@@ -108,6 +108,9 @@ class SweepView(QtWidgets.QWidget):
             # sweep-specific signals: a solve's progress or failure never touches the sweep form
             session.sweep_progressed.connect(lambda f: self._on_progressed("sweep", f))
             session.sweep_failed.connect(self._on_sweep_failed)
+        if hasattr(session, "sweep_estimated"):
+            session.sweep_estimated.connect(
+                lambda est: show_message(self.status, f"Sweeping: {est.describe()}"))
         else:
             session.progressed.connect(self._on_progressed)
             session.failed.connect(self._on_failed)

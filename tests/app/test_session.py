@@ -265,9 +265,12 @@ def test_sweep_refuses_unknown_parameter(session, qtbot):
 def test_sweep_runs_in_worker(session, qtbot):
     pytest.importorskip("core.sweep")
     session.set_project(small_dot(), "small grid")
+    estimates = []
+    session.sweep_estimated.connect(estimates.append)
     with qtbot.waitSignal(session.sweep_finished, timeout=SOLVE_TIMEOUT_MS) as blocker:
         assert session.run_sweep("hw", [2.0, 3.0, 4.0], states=3)
     wait_idle(qtbot, session)
+    assert len(estimates) == 1 and estimates[0].states == 3 and "a sweep of 3 solves" in estimates[0].what
     sweep = blocker.args[0]
     assert session.sweep_result is sweep
     # ground level = hbar*omega (Fock-Darwin at B = 0, see oscillator_levels) at each hw
