@@ -138,16 +138,23 @@ class PotentialView(QtWidgets.QWidget):
                            ("degeneracy_changed", self._update_levels)):
             if hasattr(session, name):
                 getattr(session, name).connect(slot)
-        self._on_project_changed()
+        self._on_project_changed(initial=True)
 
     # -- session signals ------------------------------------------------------------------------
-    def _on_project_changed(self) -> None:
+    def _on_project_changed(self, initial: bool = False) -> None:
         project = getattr(self.session, "project", None)
         if project is None:
             self.stack.show_hint(_HINT)
             return
-        self._grid = None                  # force a full rebuild for the (maybe new) grid
-        self._gate_signature = []
+        if self._grid is None or self._grid != project.grid:
+            self._grid = None              # force a full rebuild for the new grid
+            self._gate_signature = []
+        if not initial and hasattr(self.session, "potential_changed"):
+            # the session follows with potential_changed whenever V (or the grid) changed: drawing
+            # here too would paint every edit twice; only what depends on the project alone is set
+            if self._potential is not None:
+                self.title.setText(f"Potential V  ·  {project.title}")
+            return
         self._on_potential_changed()
 
     def _on_potential_changed(self) -> None:

@@ -270,3 +270,25 @@ def test_valid_polygon_is_returned_as_array():
     v = validate_polygon(TRIANGLE, label="t")
     assert v.shape == (3, 2) and v.dtype == float
     np.testing.assert_array_equal(v, np.array(TRIANGLE))
+
+
+def test_cached_unit_potentials_follow_voltage_outline_and_depth():
+    """Moving a voltage reuses the cached unit potentials; the sum still matches dblquad (same
+    reference and tolerance as above).  A moved outline or another depth is computed afresh."""
+    from core.gates import cached_unit_potential, clear_unit_cache
+    clear_unit_cache()
+    gx, gy = np.meshgrid(np.linspace(0, 200, 21), np.linspace(-50, 150, 11), indexing="ij", sparse=True)
+    x, y = float(gx[7, 0]), float(gy[0, 6])                       # (70, 70)
+    for volts in (-0.35, -0.2, 0.1):
+        plunger = Gate.from_rectangle("plunger", volts, (150.0, -40.0, 30.0, 60.0))
+        field = gates_potential([plunger], gx, gy, depth=DEPTH)
+        rp, err = _quad_rectangle(x, y, 30.0, 150.0, -40.0, 60.0)
+        assert err < 1e-10 and abs(field[7, 6] - volts * rp) < TOL_QUAD
+    unit = cached_unit_potential(plunger, gx, gy, DEPTH)
+    assert not unit.flags.writeable and unit is cached_unit_potential(plunger, gx, gy, DEPTH)
+    moved = Gate.from_rectangle("plunger", 0.1, (150.0, -40.0, 40.0, 60.0))
+    rm, _ = _quad_rectangle(x, y, 40.0, 150.0, -40.0, 60.0)
+    assert abs(gates_potential([moved], gx, gy, depth=DEPTH)[7, 6] - 0.1 * rm) < TOL_QUAD
+    deeper = gates_potential([plunger], gx, gy, depth=2 * DEPTH)[7, 6]
+    rd, _ = _quad_rectangle(x, y, 30.0, 150.0, -40.0, 60.0, d=2 * DEPTH)
+    assert abs(deeper - 0.1 * rd) < TOL_QUAD
