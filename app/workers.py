@@ -119,7 +119,19 @@ class _NullLock:
 
 #: Held around every job when numba's parallel kernels cannot run from two threads at once
 #: (then a sweep and a solve take turns instead of running side by side).
-compute_lock = _NullLock() if _parallel_kernels_are_thread_safe() else threading.Lock()
+_compute_lock = None
+_compute_lock_guard = threading.Lock()
+
+
+def compute_lock():
+    """The lock held around every job when numba's parallel kernels cannot run from two threads at
+    once (a no-op lock otherwise).  Decided on first use: finding out imports numba, which the
+    window need not load before its first solve."""
+    global _compute_lock
+    with _compute_lock_guard:
+        if _compute_lock is None:
+            _compute_lock = _NullLock() if _parallel_kernels_are_thread_safe() else threading.Lock()
+        return _compute_lock
 
 
 def describe_error(exc: BaseException) -> str:
@@ -207,7 +219,7 @@ class Job(QThread):
         if self._notes:
             kwargs["note"] = self.noted.emit
         try:
-            with (compute_lock if self._exclusive else _NullLock()):
+            with (compute_lock() if self._exclusive else _NullLock()):
                 if self._stop.is_set():
                     raise Cancelled("cancelled before it started")
                 result = self._work(**kwargs)

@@ -22,11 +22,27 @@ from .errors import (Cancelled, FormulaError, InputError, MemoryLimitError, NotC
                      ProjectError, WellscapeError)
 from .grid import Grid  # noqa: E402
 from .units import UNIT_SYSTEMS, UnitSystem, get_units  # noqa: E402
-from .hamiltonian import Hamiltonian, build_hamiltonian  # noqa: E402
-from .eigensolve import Spectrum, lowest_states  # noqa: E402
-from .solve import choose_scheme, solve_states  # noqa: E402
 
 __version__ = "0.1.0"
+
+#: names served on first use (PEP 562), so that ``import core`` does not load the solver's
+#: compiled kernels until a Hamiltonian is applied (the window opens faster)
+_LAZY = {"Hamiltonian": "hamiltonian", "build_hamiltonian": "hamiltonian", "Spectrum": "eigensolve",
+         "lowest_states": "eigensolve", "solve_states": "solve", "choose_scheme": "solve"}
+
+
+def __getattr__(name: str):
+    module = _LAZY.get(name)
+    if module is None:
+        raise AttributeError(f"module 'core' has no attribute {name!r}")
+    from importlib import import_module
+    value = getattr(import_module(f".{module}", __name__), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_LAZY))
 
 __all__ = ["Grid", "UnitSystem", "UNIT_SYSTEMS", "get_units", "Hamiltonian", "build_hamiltonian",
            "Spectrum", "lowest_states", "solve_states", "choose_scheme", "WellscapeError", "InputError",

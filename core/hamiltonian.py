@@ -26,7 +26,13 @@ from .errors import InputError
 from .grid import Grid
 from .kinetic import check_scheme, kinetic_matrix_1d, stencil
 from .units import get_units
-from . import kernels
+
+
+def _kernels():
+    """The compiled kernels (numba), imported on first use: building a Hamiltonian for a matrix or
+    opening a project in the window does not pay for loading numba."""
+    from . import kernels
+    return kernels
 
 __all__ = ["Hamiltonian", "build_hamiltonian", "build", "rebuild_on_grid", "as_masses", "vector_potential", "GAUGES"]
 
@@ -118,10 +124,10 @@ class Hamiltonian:
                 a = a3 - pad
                 if a >= 0:
                     cs = stencil(self.scheme, g.spacing[a]) * self.prefactors[a]
-                    idx, sgn = kernels.neighbour_table(g.shape[a], len(cs) - 1, g.periodic[a])
+                    idx, sgn = _kernels().neighbour_table(g.shape[a], len(cs) - 1, g.periodic[a])
                 else:
                     cs = np.zeros(1)
-                    idx, sgn = kernels.neighbour_table(1, 0, False)
+                    idx, sgn = _kernels().neighbour_table(1, 0, False)
                 coeffs.append(np.ascontiguousarray(cs))
                 tables += [idx, sgn]
             self._coeffs = coeffs
@@ -207,11 +213,11 @@ class Hamiltonian:
             cx, cy, cz = self._coeffs
             ix, sx, iy, sy, iz, sz = self._tables
             if self.phases is None:
-                kernels.fd_step_real(xx, self._v3, cx, cy, cz, ix, sx, iy, sy, iz, sz,
+                _kernels().fd_step_real(xx, self._v3, cx, cy, cz, ix, sx, iy, sy, iz, sz,
                                      float(alpha), float(shift), float(beta), zz, yy)
             else:
                 px, py, pz = self._phases3
-                kernels.fd_step_phased(xx, self._v3, cx, cy, cz, ix, sx, iy, sy, iz, sz,
+                _kernels().fd_step_phased(xx, self._v3, cx, cy, cz, ix, sx, iy, sy, iz, sz,
                                        px, py, pz, float(alpha), float(shift), float(beta), zz, yy)
             return
         # dense (spectral) path: tensor contractions along each axis (BLAS-3)

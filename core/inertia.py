@@ -53,8 +53,8 @@ __all__ = ["CountCertificate", "FactorEstimate", "InertiaCount", "CountUnavailab
 DENSE_LIMIT = 300
 #: With the spectral scheme (whole lines coupled, so the sparse factor is dense anyway), problems up
 #: to this many real unknowns are factorised densely too: LAPACK's blocked LDL^T is then far faster
-#: than SuperLU on a dense pattern (2D 40^2: 0.1 s against an estimated 4 s).
-DENSE_SPECTRAL_LIMIT = 4000
+#: than SuperLU on a dense pattern (2D 40^2: 0.4 s on one thread against an estimated 4 s).
+DENSE_SPECTRAL_LIMIT = 2500
 
 # Fill of SuperLU's L+U (MMD on A+A^T, symmetric mode) per row, measured on this kind of machine
 # for second-order differences (stencil half-width 1) and fitted as c * (N / 4096)**e:
