@@ -170,21 +170,27 @@ def _suggestion(grid: Grid, states: int, complex_: bool, scheme: str, budget: fl
     """Concrete ways to fit in ``budget`` bytes: coarser grid, spectral scheme, fewer states."""
     parts = []
     n = grid.size
-    per_point = _memory(1 << 20, states, complex_) / float(1 << 20)
-    n_fit = budget / per_point / max(largest_factor, 1e-300)
-    if n_fit >= 8 ** grid.ndim:
-        shrink = (n_fit / n) ** (1.0 / grid.ndim)
-        pts = [max(8, int(p * shrink)) for p in grid.points]
-        parts.append("a coarser grid (about " + " x ".join(str(p) for p in pts) + " points fits)")
+    scale = max(largest_factor, 1e-300)
+
+    def fits(points, k) -> bool:
+        return _memory(int(np.prod(points)), k, complex_) * scale <= budget
+
+    def shrunk(f):
+        return [max(8, int(p * f)) for p in grid.points]
+
+    if fits(shrunk(0.0), states):
+        lo, hi = 0.0, 1.0                         # bisect for the finest uniformly coarsened grid that fits
+        for _ in range(40):
+            mid = 0.5 * (lo + hi)
+            lo, hi = (mid, hi) if fits(shrunk(mid), states) else (lo, mid)
+        parts.append("a coarser grid (about " + " x ".join(str(p) for p in shrunk(lo)) + " points fits)")
     else:
         parts.append("a much coarser grid")
     if scheme != "spectral":
         parts.append("the spectral scheme (for a smooth potential it is accurate on far fewer points)")
-    item = _state_bytes(complex_)
-    rows = (budget / max(largest_factor, 1e-300) - 6 * 8 * n) / (4.0 * n * item) - _EXTRA_ROWS
     k_fit = 0
-    for k in range(int(states) - 1, 0, -1):      # the largest k whose block fits
-        if block_size(k) <= rows:
+    for k in range(int(states) - 1, 0, -1):      # the largest k whose solve fits
+        if fits(grid.points, k):
             k_fit = k
             break
     if 1 <= k_fit < states:

@@ -46,7 +46,12 @@ def test_complex_hamiltonian_doubles_the_block_memory():
     real = estimate_solve(project(), measure=True)
     cplx = estimate_solve(project(field=(0.0, 0.0, 0.5)), measure=True)
     assert cplx.extra["complex"] and not real.extra["complex"]
-    assert cplx.memory_bytes > 1.9 * solver_memory_bytes(48 * 48, block_size(6) + 8, False)
+    m = block_size(6) + 8
+    # complex vectors take twice the bytes: the complex estimate covers the solver's complex allocation,
+    # which exceeds the real one by the block-sized arrays once more
+    assert cplx.memory_bytes >= solver_memory_bytes(48 * 48, m, True)
+    assert solver_memory_bytes(48 * 48, m, True) - solver_memory_bytes(48 * 48, m, False) >= 2 * m * 48 * 48 * 8
+    assert cplx.memory_bytes > real.memory_bytes
 
 
 def test_apply_rate_is_measured_once_and_cached():
@@ -71,9 +76,9 @@ def test_time_model_counts_applications_within_a_factor_of_four():
 
 def test_refusal_names_what_would_fit(monkeypatch):
     import core.estimate as est_mod
-    p = project(points=(30, 30, 30), states=20)
+    p = project(points=(64, 64, 64), states=20)      # large enough that the blocks, not fixed buffers, dominate
     need = estimate_solve(p, measure=False).memory_bytes
-    monkeypatch.setattr(est_mod, "available_memory_bytes", lambda: int(need / 2))
+    monkeypatch.setattr(est_mod, "available_memory_bytes", lambda: int(0.7 * need))   # budget 56% of need
     est = estimate_solve(p)
     assert not est.fits
     assert "coarser grid" in est.suggestion and "spectral scheme" in est.suggestion
