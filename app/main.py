@@ -430,7 +430,8 @@ class MainWindow(QMainWindow):
         return self.tabs.currentIndex()
 
     def _on_estimated(self, estimate) -> None:
-        self.strip.show_message(f"Solving: {estimate.describe()}")
+        self.strip.show_message(f"Solving {estimate.states} states on {estimate.unknowns:,} grid points "
+                                f"({estimate.brief()})...")
 
     def _on_check_finished(self, kind: str, value) -> None:
         if kind == "convergence":

@@ -81,6 +81,11 @@ class Estimate:
         return (f"{self.what}: {self.unknowns:,} unknowns, {self.states} states, about "
                 f"{format_bytes(self.memory_bytes)} of {format_bytes(self.available_bytes)} available, {t}")
 
+    def brief(self) -> str:
+        """Memory and time in a few words (for a status line), e.g. "about 5.8 MiB, roughly 2 s"."""
+        t = "" if self.seconds is None else f", roughly {_format_seconds(self.seconds)}"
+        return f"about {format_bytes(self.memory_bytes)}{t}"
+
     def check(self) -> "Estimate":
         """Raise :class:`MemoryLimitError` with the suggestion when the request will not fit; else return self."""
         if not self.fits:

@@ -454,7 +454,8 @@ class LevelsView(QtWidgets.QWidget):
 
     def _on_check_estimated(self, kind: str, estimate) -> None:
         if kind == "convergence":
-            self.converge_label.setText(f"… checking convergence ({estimate.describe()})")
+            grids = len(estimate.extra.get("grids", ())) or "several"
+            self.converge_label.setText(f"… checking convergence: solving on {grids} grids ({estimate.brief()})")
 
     def _on_check_failed(self, kind: str, message: str) -> None:
         target = self.count_label if kind == "count" else self.converge_label

@@ -110,7 +110,8 @@ class SweepView(QtWidgets.QWidget):
             session.sweep_failed.connect(self._on_sweep_failed)
         if hasattr(session, "sweep_estimated"):
             session.sweep_estimated.connect(
-                lambda est: show_message(self.status, f"Sweeping: {est.describe()}"))
+                lambda est: show_message(self.status, f"Sweeping: {est.unknowns:,} grid points, "
+                                                      f"{est.states} states per point ({est.brief()})…"))
         else:
             session.progressed.connect(self._on_progressed)
             session.failed.connect(self._on_failed)
