@@ -100,7 +100,7 @@ class NumberChecks(QObject):
         self.auto_count_seconds: float = 4.0
         self.auto_count: bool = True
         self._report = None
-        self._certificate = None          # (result, CountCertificate)
+        self._certificate = None          # (result, CountCertificate, time limit or None)
         self._jobs: dict = {CONVERGENCE: None, COUNT: None}
         self._pending_count = None        # (result, max_seconds) waiting for the running count
         self._retired: list = []
@@ -132,8 +132,17 @@ class NumberChecks(QObject):
         result = result if result is not None else self.session.result
         if self._certificate is None or result is None:
             return None
-        counted, cert = self._certificate
+        counted, cert, _limit = self._certificate
         return cert if counted is result else None
+
+    def skipped_as_too_long(self, result=None) -> Optional[float]:
+        """The estimated seconds of a count that the automatic check after a solve skipped because it
+        would take longer than :attr:`auto_count_seconds` (None if it was not skipped for that)."""
+        cert = self.certificate_for(result)
+        if cert is None or cert.count_below is not None or cert.estimate is None:
+            return None
+        limit = self._certificate[2]
+        return float(cert.estimate.seconds) if limit is not None and cert.estimate.seconds > limit else None
 
     def running(self, kind: Optional[str] = None) -> bool:
         if kind is None:
@@ -190,7 +199,7 @@ class NumberChecks(QObject):
             return certify_count(h, result.spectrum, max_seconds=max_seconds)
 
         # a sparse factorisation does not use the parallel kernels: it may run beside a solve
-        self._start(COUNT, work, tag=result, exclusive=False)
+        self._start(COUNT, work, tag=(result, max_seconds), exclusive=False)
         return True
 
     def _on_solved(self, result) -> None:
@@ -235,7 +244,7 @@ class NumberChecks(QObject):
         else:
             if self._pending_count is not None:
                 return                     # superseded by a newer request
-            self._certificate = (job.tag, value)
+            self._certificate = (job.tag[0], value, job.tag[1])
         self.finished.emit(job.kind, value)
         self.changed.emit()
 

@@ -482,7 +482,11 @@ class LevelsView(QtWidgets.QWidget):
             return
         u = self.result.units
         cert = self.checks.certificate_for(self.result)
-        if cert is not None:
+        skipped = self.checks.skipped_as_too_long(self.result) if cert is not None else None
+        if skipped is not None:
+            self.count_label.setText(f"○ count not checked — the factorisation would take about {skipped:.0f} s, "
+                                     f"too long to run after every solve; press “Verify level count” to run it")
+        elif cert is not None:
             sym, colour = _COUNT_MARKS.get(cert.label, ("○", "#555555"))
             reason = cert.describe(pretty_unit(u.energy_unit))
             self.count_label.setText(f"<span style='color:{colour}'><b>{sym} {cert.label}</b></span> — {reason}")

@@ -198,3 +198,23 @@ def test_level_diagram_marks_every_splitting_and_the_count(session, qtbot):
     hover = view.describe_level(2)
     assert "not resolved" in hover and "grid error ±" in hover
     qtbot.waitUntil(lambda: not session.checks.running() and not session.solving, timeout=TIMEOUT_MS)
+
+
+def test_a_count_too_long_for_every_solve_is_offered_not_run(session, qtbot):
+    """With a time limit below the estimate, the automatic count is skipped and says so; the
+    button then runs it, and it agrees with the analytic oscillator count (as above)."""
+    from app.views import LevelsView
+    view = LevelsView(session)
+    qtbot.addWidget(view)
+    session.checks.auto_count_seconds = 1e-9
+    with qtbot.waitSignal(session.checks.finished, timeout=TIMEOUT_MS):
+        result = _solve(qtbot, session, small_dot(32, 6))
+    assert session.checks.skipped_as_too_long(result) > 1e-9
+    assert "too long to run after every solve" in view.count_label.text()
+    with qtbot.waitSignal(session.checks.finished, timeout=TIMEOUT_MS) as blocker:
+        view.verify_button.click()
+    cert = blocker.args[1]
+    assert cert.certified and session.checks.skipped_as_too_long(result) is None
+    assert cert.count_below == int(np.sum(oscillator_levels(session.project, 15) < cert.shift))
+    qtbot.waitUntil(lambda: "✔ count verified" in view.count_label.text(), timeout=5000)
+    qtbot.waitUntil(lambda: not session.checks.running(), timeout=TIMEOUT_MS)
