@@ -6,6 +6,7 @@ problem; the script prints times, the ratio, and whether every multiplet is comp
 
     .venv/bin/python tests/benchmarks/bench_eigensolver.py            # all cases
     .venv/bin/python tests/benchmarks/bench_eigensolver.py 2d memory  # some cases
+    .venv/bin/python tests/benchmarks/bench_eigensolver.py --help     # list the cases
 
 Cases: ``3d`` (96^3, 20 states, FD2), ``accuracy`` (35 levels to 1e-6 with the
 spectral scheme), ``2d`` (256^2, 20 states, cold and warm), ``memory`` (128^3,
@@ -130,14 +131,19 @@ def case_memory():
         print(out.stderr)
         return
     t, n, peak = out.stdout.split()
+    block = 30 * 128**3 * 8 / 2**30                     # one numpy array of the 20 + 10 block vectors
     print(f"[memory] 128^3 FD2 oscillator, 20 states: peak resident memory {float(peak):.2f} GiB "
-          f"(target < 3 GB), {float(t):.1f} s, {n} states")
+          f"= {float(peak) / block:.2f} x one block array ({block:.2f} GiB) (target < 3 GB = 2.79 GiB), "
+          f"{float(t):.1f} s, {n} states")
 
 
 CASES = {"3d": case_3d, "accuracy": case_accuracy, "2d": case_2d, "memory": case_memory}
 
 if __name__ == "__main__":
     chosen = sys.argv[1:] or list(CASES)
+    if any(c not in CASES for c in chosen):
+        print(__doc__)
+        sys.exit(0 if chosen in (["--help"], ["-h"]) else 2)
     for name in chosen:
         CASES[name]()
         sys.stdout.flush()
