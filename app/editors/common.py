@@ -27,6 +27,51 @@ def fmt(value, digits: int = 6) -> str:
     return f"{v:.{digits}g}"
 
 
+class ProjectPanel(QWidget):
+    """A set-up page that shows part of the session's project.
+
+    Subclasses give :meth:`shown_key` (what of the project the page shows) and
+    :meth:`show_project` (fill the widgets); :meth:`refresh` repaints only when the key changed,
+    with ``_loading`` set so that the widgets' own signals do not write back to the project.
+    """
+
+    session = None
+    _loading = False
+    _shown = None
+
+    def follow_session(self) -> None:
+        """Repaint on every project change, and now."""
+        self.session.project_changed.connect(self.refresh)
+        self.redraw()
+
+    def shown_key(self, project) -> tuple:      # pragma: no cover - every page overrides it
+        raise NotImplementedError
+
+    def show_project(self, project) -> None:    # pragma: no cover - every page overrides it
+        raise NotImplementedError
+
+    def refresh(self) -> None:
+        project = self.session.project
+        key = self.shown_key(project)
+        if key == self._shown:
+            return
+        self._shown = key
+        self._loading = True
+        try:
+            self.show_project(project)
+        finally:
+            self._loading = False
+        self.after_refresh()
+
+    def after_refresh(self) -> None:
+        """Hook run after the widgets were filled (outside ``_loading``)."""
+
+    def redraw(self) -> None:
+        """Repaint even if the project did not change (e.g. to undo a refused edit in the widgets)."""
+        self._shown = None
+        self.refresh()
+
+
 class MessageLabel(QLabel):
     """A one-line, word-wrapped message under an editor: an error (red) or a hint (grey)."""
 

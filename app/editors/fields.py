@@ -9,14 +9,14 @@ from PySide6.QtWidgets import QCheckBox, QFormLayout, QHBoxLayout, QLabel, QPush
 from core.project import FieldTerm
 
 from . import edits
-from .common import MessageLabel, ValueField, apply_edit
+from .common import MessageLabel, ProjectPanel, ValueField, apply_edit
 
 __all__ = ["FieldsPanel"]
 
 AXES = ("x", "y", "z")
 
 
-class FieldsPanel(QWidget):
+class FieldsPanel(ProjectPanel):
     def __init__(self, session, parent: Optional[QWidget] = None):
         super().__init__(parent)
         self.session = session
@@ -63,43 +63,35 @@ class FieldsPanel(QWidget):
         lay.addWidget(note)
         lay.addWidget(self.message)
         lay.addStretch(1)
-        session.project_changed.connect(self.refresh)
-        self._shown = None
-        self.refresh()
+        self.follow_session()
 
-    def refresh(self) -> None:
-        p = self.session.project
-        key = (p.electric_field, p.magnetic_field, p.spin, p.units, tuple(p.parameters),
-               tuple((t.kind, t.enabled) for t in p.potential))
-        if key == self._shown:
-            return
-        self._shown = key
+    def shown_key(self, p) -> tuple:
+        return (p.electric_field, p.magnetic_field, p.spin, p.units, tuple(p.parameters),
+                tuple((t.kind, t.enabled) for t in p.potential))
+
+    def show_project(self, p) -> None:
         u = self.session.units
-        self._loading = True
-        try:
-            what = "Electric field" if u.charged else "Uniform force (e.g. gravity)"
-            self.electric_title.setText(f"<b>{what}</b> [{u.field_unit}]")
-            self.magnetic_title.setText(f"<b>Magnetic field</b> [{u.magnetic_unit}] (orbital effect through "
-                                        f"Peierls phases; B along z acts in the xy plane)")
-            ef = tuple(p.electric_field) + (0.0,) * (3 - len(p.electric_field))
-            for a in range(3):
-                on = a < max(len(p.electric_field), p.grid.ndim)
-                self.electric[a].setVisible(on)
-                self.electric_labels[a].setVisible(on)
-                self.electric[a].set_parameters(p.parameters)
-                self.electric[a].set_value(ef[a])
-                self.magnetic[a].set_parameters(p.parameters)
-                self.magnetic[a].set_value(p.magnetic_field[a])
-            has_term = any(isinstance(t, FieldTerm) and t.enabled for t in p.potential)
-            nonzero = any(isinstance(v, str) or float(v) != 0.0 for v in p.electric_field)
-            self.term_hint.setText("" if has_term or not nonzero else
-                                   "This field acts only through a uniform-field term in the potential, "
-                                   "and there is none enabled.")
-            self.term_hint.setStyleSheet("color: #9a5b00;")
-            self.add_term_button.setVisible(not has_term)
-            self.spin.setChecked(p.spin)
-        finally:
-            self._loading = False
+        what = "Electric field" if u.charged else "Uniform force (e.g. gravity)"
+        self.electric_title.setText(f"<b>{what}</b> [{u.field_unit}]")
+        self.magnetic_title.setText(f"<b>Magnetic field</b> [{u.magnetic_unit}] (orbital effect through "
+                                    f"Peierls phases; B along z acts in the xy plane)")
+        ef = tuple(p.electric_field) + (0.0,) * (3 - len(p.electric_field))
+        for a in range(3):
+            on = a < max(len(p.electric_field), p.grid.ndim)
+            self.electric[a].setVisible(on)
+            self.electric_labels[a].setVisible(on)
+            self.electric[a].set_parameters(p.parameters)
+            self.electric[a].set_value(ef[a])
+            self.magnetic[a].set_parameters(p.parameters)
+            self.magnetic[a].set_value(p.magnetic_field[a])
+        has_term = any(isinstance(t, FieldTerm) and t.enabled for t in p.potential)
+        nonzero = any(isinstance(v, str) or float(v) != 0.0 for v in p.electric_field)
+        self.term_hint.setText("" if has_term or not nonzero else
+                               "This field acts only through a uniform-field term in the potential, "
+                               "and there is none enabled.")
+        self.term_hint.setStyleSheet("color: #9a5b00;")
+        self.add_term_button.setVisible(not has_term)
+        self.spin.setChecked(p.spin)
 
     def _set_component(self, which: str, axis: int, value) -> None:
         if self._loading:
@@ -113,8 +105,7 @@ class FieldsPanel(QWidget):
             return dataclasses.replace(p, **{which: tuple(values)})
         label = "electric field" if which == "electric_field" else "magnetic field"
         if not apply_edit(self.session, make, f"{label} {AXES[axis]}", self.message):
-            self._shown = None
-            self.refresh()
+            self.redraw()
 
     def add_field_term(self) -> bool:
         return apply_edit(self.session, lambda p: edits.add_term(p, edits.new_term(p, "uniform_field")),

@@ -12,7 +12,7 @@ from core.errors import InputError, WellscapeError
 from core.grid import HARD_WALL, PERIODIC, Grid
 from core.resources import available_memory_bytes, format_bytes
 
-from .common import MessageLabel, apply_edit, compact, fmt
+from .common import MessageLabel, ProjectPanel, apply_edit, compact, fmt
 
 __all__ = ["GridPanel", "memory_estimate"]
 
@@ -33,7 +33,7 @@ def _has_field(values) -> bool:
     return any(isinstance(v, str) or float(v) != 0.0 for v in values)
 
 
-class GridPanel(QWidget):
+class GridPanel(ProjectPanel):
     def __init__(self, session, parent: Optional[QWidget] = None):
         super().__init__(parent)
         self.session = session
@@ -93,34 +93,28 @@ class GridPanel(QWidget):
         lay.addWidget(self.estimate)
         lay.addWidget(self.message)
         lay.addStretch(1)
-        session.project_changed.connect(self.refresh)
-        self._shown = None
-        self.refresh()
+        self.follow_session()
 
     # -- session -> widgets ----------------------------------------------------------------------
-    def refresh(self) -> None:
-        p = self.session.project
-        key = (p.grid, p.solver.states, tuple(p.magnetic_field), p.units)
-        if key == self._shown:
-            return
-        self._shown = key
+    def shown_key(self, p) -> tuple:
+        return (p.grid, p.solver.states, tuple(p.magnetic_field), p.units)
+
+    def show_project(self, p) -> None:
         g = p.grid
-        self._loading = True
-        try:
-            self.dims.setCurrentIndex(g.ndim - 1)
-            self.unit_label.setText(f"Box corners in {self.session.units.length_unit}. A hard-wall axis holds "
-                                    f"interior points only: the wavefunction vanishes at its ends.")
-            for a, (label, lo, hi, pts, bnd) in enumerate(self.rows):
-                on = a < g.ndim
-                for w in (label, lo, hi, pts, bnd):
-                    w.setVisible(on)
-                if on:
-                    lo.setText(fmt(g.lower[a]))
-                    hi.setText(fmt(g.upper[a]))
-                    pts.setValue(g.points[a])
-                    bnd.setCurrentText(BOUNDARY_NAMES[g.boundary[a]])
-        finally:
-            self._loading = False
+        self.dims.setCurrentIndex(g.ndim - 1)
+        self.unit_label.setText(f"Box corners in {self.session.units.length_unit}. A hard-wall axis holds "
+                                f"interior points only: the wavefunction vanishes at its ends.")
+        for a, (label, lo, hi, pts, bnd) in enumerate(self.rows):
+            on = a < g.ndim
+            for w in (label, lo, hi, pts, bnd):
+                w.setVisible(on)
+            if on:
+                lo.setText(fmt(g.lower[a]))
+                hi.setText(fmt(g.upper[a]))
+                pts.setValue(g.points[a])
+                bnd.setCurrentText(BOUNDARY_NAMES[g.boundary[a]])
+
+    def after_refresh(self) -> None:
         self.update_estimate()
 
     def grid_from_fields(self, ndim: Optional[int] = None) -> Grid:
@@ -178,8 +172,7 @@ class GridPanel(QWidget):
             return dataclasses.replace(p, grid=grid, electric_field=ef)
         ok = apply_edit(self.session, make, "change grid", self.message)
         if not ok:
-            self._shown = None
-            self.refresh()
+            self.redraw()
         return ok
 
     def _on_dims(self, index: int) -> None:

@@ -14,7 +14,7 @@ from core.materials import ALGAAS_X_MAX, get_material, material_names
 from core.project import MaterialSpec
 from core.units import UNIT_SYSTEMS
 
-from .common import MessageLabel, ValueField, apply_edit, compact, fmt, parse_value
+from .common import MessageLabel, ProjectPanel, ValueField, apply_edit, compact, fmt, parse_value
 
 __all__ = ["MaterialPanel"]
 
@@ -27,7 +27,7 @@ def _units_text(u) -> str:
     return f"{u.name} ({u.length_unit}, {u.energy_unit}, {u.mass_unit})"
 
 
-class MaterialPanel(QWidget):
+class MaterialPanel(ProjectPanel):
     def __init__(self, session, parent: Optional[QWidget] = None):
         super().__init__(parent)
         self.session = session
@@ -96,75 +96,67 @@ class MaterialPanel(QWidget):
         lay.addWidget(self.hint)
         lay.addWidget(self.message)
         lay.addStretch(1)
-        session.project_changed.connect(self.refresh)
-        self._shown = None
-        self.refresh()
+        self.follow_session()
 
     # -- session -> widgets ----------------------------------------------------------------------
-    def refresh(self) -> None:
-        p = self.session.project
-        key = (p.units, p.material, tuple(p.parameters))
-        if key == self._shown:
-            return
-        self._shown = key
+    def shown_key(self, p) -> tuple:
+        return (p.units, p.material, tuple(p.parameters))
+
+    def show_project(self, p) -> None:
         m = p.material
         u = self.session.units
-        self._loading = True
-        try:
-            self.units.setCurrentIndex(max(0, self.units.findData(p.units)))
-            self.mass_unit.setText(u.mass_unit)
-            name = m.name
-            if name is None:
-                self.material.setCurrentText(CUSTOM)
-            elif _ALLOY_RE.match(name.replace(" ", "")):
-                self.material.setCurrentText(ALLOY)
-                self.fraction.setValue(get_material(name).alloy_fraction or 0.0)
-            else:
-                try:
-                    self.material.setCurrentText(get_material(name).name)
-                except WellscapeError:
-                    self.material.setCurrentText(name)
-            alloy = self.material.currentText() == ALLOY
-            self.fraction.setVisible(alloy)
-            self.fraction_label.setVisible(alloy)
-            table = None
-            if name is not None:
-                try:
-                    table = get_material(name)
-                except WellscapeError:
-                    table = None
-            if table is not None:
-                masses = table.masses
-                mass_text = fmt(masses[0], 4) if len(set(masses)) == 1 else ", ".join(fmt(v, 4) for v in masses)
-                src = table.sources
-                self.table_values.setText(
-                    f"Table: mass {mass_text} m0 (x, y, z), g-factor {fmt(table.g_factor, 3) if table.g_factor is not None else 'not tabulated'}, "
-                    f"permittivity {fmt(table.permittivity, 3) if table.permittivity is not None else '-'}. "
-                    f"{table.description}")
-                self.table_values.setToolTip("\n".join(f"{k}: {v}" for k, v in src.items()))
-            else:
-                self.table_values.setText("No table values: give the mass (and g-factor if spin matters).")
-                self.table_values.setToolTip("")
-            self.override_mass.setChecked(m.mass is not None or name is None)
-            self.override_mass.setEnabled(name is not None)
-            if m.mass is not None:
-                self.mass.setText(", ".join(fmt(v) for v in m.mass) if isinstance(m.mass, tuple) else fmt(m.mass))
-            elif table is not None:
-                self.mass.setText(", ".join(fmt(v, 4) for v in table.masses) if len(set(table.masses)) > 1
-                                  else fmt(table.masses[0], 4))
-            self.mass.setReadOnly(not self.override_mass.isChecked())
-            self.override_g.setChecked(m.g_factor is not None)
-            self.g_factor.set_parameters(p.parameters)
-            if m.g_factor is not None:
-                self.g_factor.set_value(m.g_factor)
-            else:
-                self.g_factor.set_value(table.g_factor if table is not None and table.g_factor is not None else "")
-            self.g_factor.setReadOnly(not self.override_g.isChecked())
-            self.hint.setText("The material table gives electron masses in m0; with the atoms unit system "
-                              "choose 'custom' and give the atom's mass in u." if p.units == "atoms"
-                              and name is not None else "")
-        finally:
-            self._loading = False
+        self.units.setCurrentIndex(max(0, self.units.findData(p.units)))
+        self.mass_unit.setText(u.mass_unit)
+        name = m.name
+        if name is None:
+            self.material.setCurrentText(CUSTOM)
+        elif _ALLOY_RE.match(name.replace(" ", "")):
+            self.material.setCurrentText(ALLOY)
+            self.fraction.setValue(get_material(name).alloy_fraction or 0.0)
+        else:
+            try:
+                self.material.setCurrentText(get_material(name).name)
+            except WellscapeError:
+                self.material.setCurrentText(name)
+        alloy = self.material.currentText() == ALLOY
+        self.fraction.setVisible(alloy)
+        self.fraction_label.setVisible(alloy)
+        table = None
+        if name is not None:
+            try:
+                table = get_material(name)
+            except WellscapeError:
+                table = None
+        if table is not None:
+            masses = table.masses
+            mass_text = fmt(masses[0], 4) if len(set(masses)) == 1 else ", ".join(fmt(v, 4) for v in masses)
+            src = table.sources
+            self.table_values.setText(
+                f"Table: mass {mass_text} m0 (x, y, z), g-factor {fmt(table.g_factor, 3) if table.g_factor is not None else 'not tabulated'}, "
+                f"permittivity {fmt(table.permittivity, 3) if table.permittivity is not None else '-'}. "
+                f"{table.description}")
+            self.table_values.setToolTip("\n".join(f"{k}: {v}" for k, v in src.items()))
+        else:
+            self.table_values.setText("No table values: give the mass (and g-factor if spin matters).")
+            self.table_values.setToolTip("")
+        self.override_mass.setChecked(m.mass is not None or name is None)
+        self.override_mass.setEnabled(name is not None)
+        if m.mass is not None:
+            self.mass.setText(", ".join(fmt(v) for v in m.mass) if isinstance(m.mass, tuple) else fmt(m.mass))
+        elif table is not None:
+            self.mass.setText(", ".join(fmt(v, 4) for v in table.masses) if len(set(table.masses)) > 1
+                              else fmt(table.masses[0], 4))
+        self.mass.setReadOnly(not self.override_mass.isChecked())
+        self.override_g.setChecked(m.g_factor is not None)
+        self.g_factor.set_parameters(p.parameters)
+        if m.g_factor is not None:
+            self.g_factor.set_value(m.g_factor)
+        else:
+            self.g_factor.set_value(table.g_factor if table is not None and table.g_factor is not None else "")
+        self.g_factor.setReadOnly(not self.override_g.isChecked())
+        self.hint.setText("The material table gives electron masses in m0; with the atoms unit system "
+                          "choose 'custom' and give the atom's mass in u." if p.units == "atoms"
+                          and name is not None else "")
 
     # -- widgets -> session ----------------------------------------------------------------------
     def _on_units(self, _index: int) -> None:
@@ -173,8 +165,7 @@ class MaterialPanel(QWidget):
         units = self.units.currentData()
         if apply_edit(self.session, lambda p: dataclasses.replace(p, units=units), f"units: {units}", self.message):
             return
-        self._shown = None
-        self.refresh()
+        self.redraw()
 
     def _material_name(self) -> Optional[str]:
         text = self.material.currentText()
@@ -210,8 +201,7 @@ class MaterialPanel(QWidget):
             return
         if not apply_edit(self.session, lambda p: dataclasses.replace(p, material=spec),
                           f"material: {name or 'custom'}", self.message):
-            self._shown = None
-            self.refresh()
+            self.redraw()
 
     def _on_material(self, _text: str) -> None:
         if self._loading:
