@@ -20,7 +20,7 @@ from PySide6.QtWidgets import (QApplication, QDialog, QFileDialog, QFrame, QHBox
 from core.errors import WellscapeError
 
 from .session import SAMPLES_DIR, Session, sample_projects
-from .style import CAUTION, ERROR_COLOR, OK_COLOR, WARN_COLOR, configure_pyqtgraph
+from .style import CAUTION, ERROR_COLOR, OK_COLOR, WARN_COLOR, configure_pyqtgraph, share_gl_contexts
 
 __all__ = ["MainWindow", "run_gui", "VIEW_SPECS", "HELP_TEXT"]
 
@@ -557,6 +557,7 @@ def run_gui(args) -> int:
     project = getattr(args, "project", None)
     do_solve = bool(getattr(args, "solve", False))
     shot = getattr(args, "screenshot", None)
+    share_gl_contexts()
     app = QApplication.instance() or QApplication(sys.argv[:1])
     app.setApplicationName("Wellscape")
     app.setOrganizationName("Wellscape")

@@ -1,7 +1,7 @@
 """Look and start-up configuration shared by the window and its views."""
 from __future__ import annotations
 
-__all__ = ["configure_pyqtgraph", "CAUTION", "ERROR_COLOR", "OK_COLOR", "WARN_COLOR", "IMAGE_AXIS_ORDER"]
+__all__ = ["configure_pyqtgraph", "share_gl_contexts", "CAUTION", "ERROR_COLOR", "OK_COLOR", "WARN_COLOR", "IMAGE_AXIS_ORDER"]
 
 #: pyqtgraph image axis order used everywhere.  Wellscape arrays are indexed [x, y]
 #: (``indexing="ij"``); with "col-major" pyqtgraph reads ``image[i, j]`` as column i (x) and
@@ -27,3 +27,13 @@ def configure_pyqtgraph() -> None:
     import pyqtgraph as pg
     pg.setConfigOptions(imageAxisOrder=IMAGE_AXIS_ORDER, antialias=True, background="w", foreground="k")
     _configured = True
+
+
+def share_gl_contexts() -> None:
+    """Let every OpenGL view share one context, so that pyqtgraph's shader programs, compiled once,
+    are valid in each of them (without it a second 3D view fails with "glUseProgram: invalid
+    value"; pyqtgraph issues #1822, #2618 and #3455).  Must run before the QApplication exists;
+    harmless afterwards (then it does nothing)."""
+    from PySide6.QtCore import QCoreApplication, Qt
+    if QCoreApplication.instance() is None:
+        QCoreApplication.setAttribute(Qt.ApplicationAttribute.AA_ShareOpenGLContexts, True)

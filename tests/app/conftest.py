@@ -26,6 +26,10 @@ for _var, _sub in (("XDG_CONFIG_HOME", "config"), ("XDG_DATA_HOME", "data"), ("X
     os.environ[_var] = str(_HOME / _sub)
 
 ROOT = Path(__file__).resolve().parents[2]
+
+from app.style import share_gl_contexts  # noqa: E402 - before pytest-qt makes the QApplication
+
+share_gl_contexts()
 SAMPLES = ROOT / "sample_projects"
 
 

@@ -281,6 +281,8 @@ def main() -> None:
     bench_open(repeat)
 
     from PySide6.QtWidgets import QApplication
+    from app.style import share_gl_contexts
+    share_gl_contexts()
     app = QApplication.instance() or QApplication([])
     from app.main import MainWindow
     import importlib
