@@ -23,6 +23,7 @@ grid, normalised so that ``sum |psi|^2 dV = 1``.
 """
 from __future__ import annotations
 
+import functools
 import math
 import time
 from dataclasses import dataclass, field, replace
@@ -325,6 +326,26 @@ def _dense_solve(h: Hamiltonian, k: int, t0: float, tol: float, deg_rel: float, 
                     method="dense", notes=("small problem: solved densely (numpy.linalg.eigh)",))
 
 
+#: BLAS threads during a solve.  The block products here are tall and skinny (memory-bound), so a
+#: second BLAS thread gains little; but BLAS worker threads that spin after a call compete with the
+#: compiled kernel's threads, and on a busy 2-core machine a product whose thread was descheduled
+#: was measured 10-100x slower.  One thread avoids both.  None leaves BLAS as configured.
+_BLAS_THREADS: Optional[int] = 1
+
+
+def _blas_threads_limited(solve):
+    """Run ``solve`` with ``_BLAS_THREADS`` BLAS threads (threadpoolctl), keeping its signature."""
+    @functools.wraps(solve)
+    def limited(*args, **kwargs):
+        if _BLAS_THREADS is None:
+            return solve(*args, **kwargs)
+        from threadpoolctl import threadpool_limits
+        with threadpool_limits(_BLAS_THREADS, user_api="blas"):
+            return solve(*args, **kwargs)
+    return limited
+
+
+@_blas_threads_limited
 def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Optional[int] = None,
                   start: Optional[np.ndarray] = None, progress: ProgressFn = None,
                   should_stop: StopFn = None, degeneracy_tolerance: float = 1e-6,
