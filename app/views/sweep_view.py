@@ -253,7 +253,31 @@ class SweepView(QtWidgets.QWidget):
         self.sweep = sweep
         self.stack.show_content()
         show_message(self.status, "")
+        self._show_request(sweep)
         self._draw_fan()
+
+    def _show_request(self, sweep) -> None:
+        """Set the form to the sweep on show (it may have been started elsewhere, e.g. from a script)."""
+        try:
+            values = np.asarray(sweep.values, dtype=float).ravel()
+        except (TypeError, ValueError, AttributeError):
+            return
+        index = self.parameter.findText(str(getattr(sweep, "parameter", "")))
+        if index < 0 or values.size < 2:
+            return
+        for w in (self.parameter, self.start, self.stop, self.steps):
+            w.blockSignals(True)
+        try:
+            self.parameter.setCurrentIndex(index)
+            self.start.setValue(float(values[0]))
+            self.stop.setValue(float(values[-1]))
+            self.steps.setValue(int(min(max(values.size, self.steps.minimum()), self.steps.maximum())))
+            energies = getattr(sweep, "energies", None)
+            if energies is not None and np.ndim(energies) == 2:
+                self.states.setValue(int(np.shape(energies)[1]))
+        finally:
+            for w in (self.parameter, self.start, self.stop, self.steps):
+                w.blockSignals(False)
 
     def _units(self):
         units = getattr(self.sweep, "units", None)

@@ -582,6 +582,12 @@ def test_views_follow_a_real_session_through_solve_and_sweep(qtbot, session):
     for t, curve in enumerate(swe.curves):
         np.testing.assert_array_equal(curve.getData()[1], session.sweep_result.track_energies()[t])
     qtbot.waitUntil(lambda: not getattr(session, "sweeping", False), timeout=10000)
+    # a sweep started elsewhere (a script, the session directly): the form shows what was swept
+    with qtbot.waitSignal(session.sweep_finished, timeout=120000):
+        assert session.run_sweep("ell", [0.0, 0.02, 0.04], states=2)
+    assert (swe.parameter.currentText(), swe.start.value(), swe.stop.value(), swe.steps.value()) == \
+        ("ell", 0.0, 0.04, 3)
+    qtbot.waitUntil(lambda: not getattr(session, "sweeping", False), timeout=10000)
 
 
 @pytest.fixture(scope="module")
