@@ -105,6 +105,7 @@ class NumberChecks(QObject):
         self._pending_count = None        # (result, max_seconds) waiting for the running count
         self._retired: list = []
         self._shut_down = False
+        self._report_was_current = False
         session.solved.connect(self._on_solved)
         session.project_changed.connect(self._on_project_changed)
 
@@ -210,7 +211,12 @@ class NumberChecks(QObject):
         self.verify_count(result, max_seconds=self.auto_count_seconds)
 
     def _on_project_changed(self) -> None:
-        self.changed.emit()
+        # what the views show depends on the result, not on the project being edited; only say so
+        # when the latest report stops (or starts) being the one for the project as it is now
+        current = self.current_report() is not None
+        if current != self._report_was_current:
+            self._report_was_current = current
+            self.changed.emit()
 
     # ------------------------------------------------------------------ jobs
     def _start(self, kind: str, work, *, tag, exclusive: bool = True, notes: bool = False) -> None:
@@ -240,6 +246,7 @@ class NumberChecks(QObject):
             return
         if job.kind == CONVERGENCE:
             self._report = value
+            self._report_was_current = self.current_report() is not None
             # the study's own solve on the project grid is as good as a manual solve of the same project
         else:
             if self._pending_count is not None:

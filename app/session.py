@@ -217,6 +217,8 @@ class Session(QObject):
         #: 1e-5 halves their cost against 1e-7 and still gives energies to ~1e-9 of the energy scale
         #: (measured on the elliptical sample at 128^2); the confirming solve uses the project's own
         self.live_tolerance: Optional[float] = 1e-5
+        #: True while a parameter slider is being dragged (views may then repaint less often)
+        self.live_dragging = False
 
         self._settings = settings if settings is not None else QSettings(ORGANIZATION, APPLICATION)
         if recovery_dir is None:
@@ -379,6 +381,7 @@ class Session(QObject):
         if not math.isfinite(v):
             raise InputError(f"{name}: expected a finite number, got {value!r}")
         new = self._project.with_parameters(**{name: v})
+        self.live_dragging = bool(live)
         if new.parameters != self._project.parameters:
             self.undo_stack.push(_ProjectCommand(self, self._project, new, f"set {name} = {v:.6g}",
                                                  merge_key=("parameter", name), open_chain=live))

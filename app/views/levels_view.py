@@ -133,6 +133,7 @@ class LevelsView(QtWidgets.QWidget):
         self.labels: list = []
         self.bars: list = []               # (level index, x0, x1, energy shown)
         self._label_items: list = []
+        self._label_pool: list = []        # every label TextItem made so far (hidden when not needed)
         self._relative = False
 
         self.header = QtWidgets.QLabel("")
@@ -541,13 +542,16 @@ class LevelsView(QtWidgets.QWidget):
         self._label_x = half + 0.6
         ylabel = axis_title("E − E₀" if self._relative else "E", u.energy_unit)
         set_titles(self.plot, None, ylabel)
-        for it in self._label_items:
-            self.plot.removeItem(it)
-        self._label_items = []
-        for lab in self.labels:
-            t = pg.TextItem(self._label_text(lab), anchor=(0, 0.5), color="#1b1b1b")
+        # label items are made once and reused: a live drag redraws the diagram several times a second
+        while len(self._label_pool) < len(self.labels):
+            t = pg.TextItem("", anchor=(0, 0.5), color="#1b1b1b")
             self.plot.addItem(t)
-            self._label_items.append(t)
+            self._label_pool.append(t)
+        for k, t in enumerate(self._label_pool):
+            if k < len(self.labels):
+                t.setText(self._label_text(self.labels[k]))
+            t.setVisible(k < len(self.labels))
+        self._label_items = self._label_pool[:len(self.labels)]
         lo = self._shown(float(energies.min()))
         hi = self._shown(float(energies.max()))
         pad = 0.08 * (hi - lo) if hi > lo else max(abs(hi), 1.0) * 0.05

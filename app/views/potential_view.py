@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import time
 from typing import Optional
 
 import numpy as np
@@ -49,7 +50,12 @@ class PotentialView(QtWidgets.QWidget):
         self.gate_rois: list = []          # (roi, term index, gate index)
         self.gate_labels: list = []
         self._gate_signature: list = []
-        self.level_lines: list = []
+        self.level_lines: list = []       # (line, plot) of the levels drawn now
+        self._level_pool: dict = {}        # id(plot) -> (plot, [InfiniteLine]) made so far
+        self._last_paint = 0.0
+        self._repaint_timer = QtCore.QTimer(self)
+        self._repaint_timer.setSingleShot(True)
+        self._repaint_timer.timeout.connect(self._on_repaint_timer)
         self.cut_roi = None
         self._cut_host = None
         self._dragging = False
@@ -157,7 +163,22 @@ class PotentialView(QtWidgets.QWidget):
             return
         self._on_potential_changed()
 
+    #: during a slider drag the map is repainted at most this often (a 256^2 repaint takes ~40 ms;
+    #: mouse moves arrive every ~16 ms and would otherwise leave no time for the solved results)
+    DRAG_REPAINT_S = 0.1
+
     def _on_potential_changed(self) -> None:
+        if getattr(self.session, "live_dragging", False):
+            wait = self.DRAG_REPAINT_S - (time.perf_counter() - self._last_paint)
+            if wait > 0:
+                if not self._repaint_timer.isActive():
+                    self._repaint_timer.start(max(1, int(1000 * wait)))
+                return
+        self._repaint_timer.stop()
+        self._last_paint = time.perf_counter()
+        self._paint_potential()
+
+    def _paint_potential(self) -> None:
         project = self.session.project
         v = getattr(self.session, "potential", None)
         error = getattr(self.session, "potential_error", None)
@@ -205,6 +226,10 @@ class PotentialView(QtWidgets.QWidget):
             self._place_cut(grid)
         self._update_cut()
         self._update_levels()
+
+    def _on_repaint_timer(self) -> None:
+        self._last_paint = time.perf_counter()
+        self._paint_potential()
 
     def _ground_density(self, grid) -> Optional[np.ndarray]:
         """|psi_0|^2 of the last result on this grid (slices then pass through the particle), else None."""
@@ -495,26 +520,40 @@ class PotentialView(QtWidgets.QWidget):
         e = np.asarray(result.energies)
         return [(float(e[list(g)].mean()), g[0], len(g)) for g in groups]
 
+    def _level_line(self, plot, k: int):
+        """The k-th level line of ``plot``, made once and reused (a live drag repaints the levels many
+        times a second; making pyqtgraph items each time cost ~50 ms)."""
+        pool = self._level_pool.setdefault(id(plot), (plot, []))[1]
+        while len(pool) <= k:
+            line = pg.InfiniteLine(pos=0.0, angle=0, movable=False, pen=_LEVEL_PEN, label="",
+                                   labelOpts={"position": 0.97, "color": "#0b3c5d", "anchors": [(1, 1), (1, 1)]})
+            plot.addItem(line)
+            pool.append(line)
+        return pool[k]
+
     def _update_levels(self, *_args) -> None:
         plot = self.plot1d if self.ndim == 1 else self.cut_plot
-        for line, host in self.level_lines:
-            host.removeItem(line)
         self.level_lines = []
-        if not self.levels_on_cut.isChecked() or self._potential is None:
-            return
-        groups = self.level_groups()
-        span = self._frame_levels(plot, groups)
-        slot, previous = 0, None
-        for energy, first, mult in groups:
-            # close levels get their labels staggered along the line, so that they never overlap
-            slot = slot + 1 if previous is not None and energy - previous < 0.04 * span else 0
-            previous = energy
-            name = f"E{first}" if mult == 1 else f"E{first}–{first + mult - 1} (×{mult})"
-            line = pg.InfiniteLine(pos=energy, angle=0, movable=False, pen=_LEVEL_PEN, label=name,
-                                   labelOpts={"position": 0.97 - 0.16 * (slot % 5), "color": "#0b3c5d",
-                                              "anchors": [(1, 1), (1, 1)]})
-            plot.addItem(line)
-            self.level_lines.append((line, plot))
+        groups = []
+        if self.levels_on_cut.isChecked() and self._potential is not None:
+            groups = self.level_groups()
+            span = self._frame_levels(plot, groups)
+            slot, previous = 0, None
+            for k, (energy, first, mult) in enumerate(groups):
+                # close levels get their labels staggered along the line, so that they never overlap
+                slot = slot + 1 if previous is not None and energy - previous < 0.04 * span else 0
+                previous = energy
+                name = f"E{first}" if mult == 1 else f"E{first}–{first + mult - 1} (×{mult})"
+                line = self._level_line(plot, k)
+                line.setPos(energy)
+                line.label.setFormat(name)
+                line.label.setPosition(0.97 - 0.16 * (slot % 5))
+                line.setVisible(True)
+                self.level_lines.append((line, plot))
+        for host, pool in self._level_pool.values():
+            for k, line in enumerate(pool):
+                if host is not plot or k >= len(groups):
+                    line.setVisible(False)
 
     def _frame_levels(self, plot, groups) -> float:
         """Show the bottom of the well and the levels: V up to twice the highest level's height above

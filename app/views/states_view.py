@@ -64,6 +64,12 @@ class StateTile(QtWidgets.QFrame):
         self._base = caption
         self.set_selected(False)
 
+    def update_content(self, pixmap: QtGui.QPixmap, caption: str) -> None:
+        """New picture and caption for the same state number (a re-solve reuses the tile)."""
+        self.picture.setPixmap(pixmap)
+        self._base = caption
+        self.caption.setText(f"▶ {caption}" if self.selected else caption)
+
     def set_selected(self, on: bool) -> None:
         """Selected tiles get a thick frame and a marker in the caption (not colour alone)."""
         self.selected = bool(on)
@@ -323,24 +329,31 @@ class StatesView(QtWidgets.QWidget):
         return pix
 
     def _build_gallery(self) -> None:
-        for t in self.tiles:
-            self.gallery_grid.removeWidget(t)
-            t.deleteLater()
-        self.tiles = []
         result = self.result
         u = result.units
         k = len(result.energies)
         count = min(k, _MAX_TILES)
         cols = 2
+        reuse = len(self.tiles) == count         # a re-solve (e.g. a slider drag): same tiles, new pictures
+        if not reuse:
+            for t in self.tiles:
+                self.gallery_grid.removeWidget(t)
+                t.deleteLater()
+            self.tiles = []
         for i in range(count):
             caption = f"{i} · {fmt_energy(result.energies[i], u.energy_unit, 6)}"
-            tile = StateTile(i, self._tile_pixmap(i), caption)
+            if reuse:
+                tile = self.tiles[i]
+                tile.update_content(self._tile_pixmap(i), caption)
+            else:
+                tile = StateTile(i, self._tile_pixmap(i), caption)
+                tile.clicked.connect(self._on_tile_clicked)
+                self.gallery_grid.addWidget(tile, i // cols, i % cols)
+                self.tiles.append(tile)
             tile.setToolTip(f"state {i}, E = {fmt_energy(result.energies[i], u.energy_unit, 8)}; "
                             "click to show it large")
-            tile.clicked.connect(self._on_tile_clicked)
-            tile.set_selected(i == self.selected)
-            self.gallery_grid.addWidget(tile, i // cols, i % cols)
-            self.tiles.append(tile)
+            if tile.selected != (i == self.selected):
+                tile.set_selected(i == self.selected)
         what = {"density": "|ψ|²", "wavefunction": "ψ"}[self.display_mode]
         note = f"{k} states, lowest first, showing {what}"
         if result.grid.ndim == 3:
