@@ -28,6 +28,7 @@ from core.project import FormulaTerm, GatesTerm, load_project, new_project
 from core.study import solve_project
 
 from app.views import LevelsView, PotentialView, StatesView, SweepView
+from app.views.common import fmt_energy
 from app.views.isosurface import gl_available
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -208,6 +209,25 @@ def test_potential_view_2d_map_contours_and_live_update(qtbot, r2):
     np.testing.assert_array_equal(view.image.image, evaluate_potential(changed))
 
 
+def test_potential_map_repaints_at_most_every_tenth_of_a_second_during_a_drag(qtbot, r2):
+    """While a slider is dragged, changes closer together than DRAG_REPAINT_S are painted once,
+    and the last one is always painted (nothing stale stays on screen)."""
+    s = _session(r2)
+    view = _view(qtbot, PotentialView, s)
+    s.live_dragging = True
+    values = []
+    for hw in (3.1, 3.2, 3.3):
+        p = r2.project.with_parameters(hw=hw)
+        s.project, s.potential = p, evaluate_potential(p)
+        values.append(s.potential)
+        s.potential_changed.emit()
+    # the first change after a quiet spell is painted at once, the next two wait for the timer
+    assert view._repaint_timer.isActive()
+    qtbot.waitUntil(lambda: not view._repaint_timer.isActive(), timeout=2000)
+    np.testing.assert_array_equal(view.image.image, values[-1])
+    s.live_dragging = False
+
+
 def test_line_cut_matches_scipy_interpolation(qtbot, r2e):
     """The cut (along x through the ground state's centre) equals scipy's bilinear interpolation of V.
 
@@ -362,6 +382,12 @@ def test_states_view_gallery_and_selection(qtbot, r2):
     view.mode.setCurrentIndex(1)                          # signed psi for real states, with nodal lines
     np.testing.assert_allclose(view.image.image, r2.states[3])
     assert view.nodal.isVisible() and "nodal" in view.legend.text()
+    # a re-solve with as many states reuses the tiles: new captions, selection kept
+    tiles = list(view.tiles)
+    shifted = dataclasses.replace(r2, spectrum=dataclasses.replace(r2.spectrum, energies=r2.spectrum.energies + 1.0))
+    s.finish_solve(shifted)
+    assert view.tiles == tiles and view.tiles[3].selected and view.tiles[3].caption.text().startswith("▶ 3")
+    assert fmt_energy(shifted.energies[0], "meV", 6) in view.tiles[0].caption.text()
 
 
 def test_nodal_lines_of_an_x_like_state_lie_on_x_equals_0(r2e):
