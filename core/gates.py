@@ -155,6 +155,10 @@ def validate_polygon(vertices, *, label: str = "") -> np.ndarray:
         v = np.array(vertices, dtype=float)
     except (TypeError, ValueError):
         raise InputError(f"{where}: vertices must be a list of (x, y) number pairs") from None
+    key = (v.shape, v.tobytes())
+    known = _valid_outlines.get(key)
+    if known is not None:              # checked before (a voltage slider rebuilds the same gates)
+        return known
     if v.ndim != 2 or v.shape[1] != 2:
         raise InputError(f"{where}: vertices must have shape (n, 2), got {v.shape}")
     n = v.shape[0]
@@ -175,7 +179,14 @@ def validate_polygon(vertices, *, label: str = "") -> np.ndarray:
     if extent == 0.0 or abs(area) <= 1e-12 * extent * extent:
         raise InputError(f"{where}: polygon has zero area (all vertices on one line or point)")
     v.setflags(write=False)
+    if len(_valid_outlines) >= 4096:
+        _valid_outlines.clear()
+    _valid_outlines[key] = v
     return v
+
+
+#: outlines that passed validate_polygon, by their exact coordinates (read-only arrays)
+_valid_outlines: dict = {}
 
 
 def polygon_potential(x, y, vertices, *, depth: float) -> np.ndarray:

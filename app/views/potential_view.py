@@ -314,9 +314,9 @@ class PotentialView(QtWidgets.QWidget):
         if self.ndim != 2 or self._potential is None:
             return
         values = self.contour_values()
-        # contours are a guide for the eye: on fine grids trace them on every k-th point (<= 160 per
+        # contours are a guide for the eye: on fine grids trace them on every k-th point (<= 100 per
         # axis), which keeps live updates fast; the map itself is always shown at full resolution
-        k = max(1, int(np.ceil(max(self._potential.shape) / 160)))
+        k = max(1, int(np.ceil(max(self._potential.shape) / 100)))
         axes = tuple(a[::k] for a in self._grid.axes[:2])
         x, y = contour_lines(self._potential[::k, ::k], values, axes)
         self.contours.setData(x, y, connect="finite")
