@@ -717,13 +717,19 @@ class Session(QObject):
     def warm_up(self) -> None:
         """Load the solver's compiled kernels and lazy imports in the background, once.
 
-        The first solve of a process spends about a second loading numba's cached kernels, with
-        the interpreter lock held, which would freeze the window in the middle of the user's
-        first solve.  Doing it on a tiny problem right after the window opens moves that pause to
-        a moment when nothing is waiting."""
+        The first solve of a process loads numba and its cached kernels.  Importing numba from a
+        worker thread holds the interpreter lock in long pieces (a 128^2 first solve stalled the
+        window for 145-219 ms; with numba imported beforehand, 17 ms), so numba is imported here,
+        on the GUI thread, once, right after the window opened (about 0.35 s before anything is
+        asked of it); the kernels are then loaded by a tiny solve in the background."""
         if self._shut_down or self._aux_jobs:
             return
         import dataclasses as dc
+        import importlib
+
+        from .workers import compute_lock
+        compute_lock()                             # imports numba and picks its threading layer
+        importlib.import_module("core.kernels")
 
         from core.grid import Grid
 
