@@ -22,7 +22,7 @@ Views ask :meth:`report_for` / :meth:`certificate_for` and repaint on :attr:`cha
 from __future__ import annotations
 
 import multiprocessing as mp
-import queue
+import threading
 from typing import Optional
 
 from PySide6.QtCore import QObject, Signal
@@ -35,51 +35,88 @@ __all__ = ["NumberChecks", "CONVERGENCE", "COUNT"]
 
 CONVERGENCE = "convergence"
 COUNT = "count"
-#: Only a sparse count estimated to take at most this long runs in a thread; every other count runs
-#: in its own process: cancellable at once, and the window keeps its interpreter lock.  Measured in a
-#: thread against a 5 ms heartbeat: SuperLU 2D 256^2 second order 0.47 s with 36 ms stalls, fourth
-#: order 1.4 s with 224 ms stalls; LAPACK's dense LDL^T (spectral 40^2) held the lock for 1.8 s.
-_IN_THREAD_SECONDS = 0.2
+#: Only a count estimated to take at most this long runs in a thread; every other count runs in its
+#: own process: cancellable at once, and the window keeps its interpreter lock.  Measured in a thread
+#: against a 5 ms heartbeat: SuperLU 2D 256^2 fourth order stalled it for 224 ms, LAPACK's dense
+#: LDL^T (spectral 40^2) for 1.8 s, and even a 128^2 second-order count (0.1 s) for 130-230 ms while
+#: the window was drawing the solve's result (found by sampling the threads' stacks).
+_IN_THREAD_SECONDS = 0.02
 
 
-def _count_in_child(out, hamiltonian, spectrum, max_seconds) -> None:    # pragma: no cover - child process
+def _count_server(conn) -> None:    # pragma: no cover - runs in the child process
+    """Child process: certify counts sent over ``conn`` until it is closed (or the process killed)."""
     from threadpoolctl import threadpool_limits
 
     from core.inertia import certify_count
-    try:
-        # one BLAS thread: a background check must not fight the window's solves for the cores
-        # (a dense LDL^T of 3600 unknowns took 0.8 s on one thread, 21 s with two oversubscribed)
-        with threadpool_limits(limits=1, user_api="blas"):
-            out.put(("ok", certify_count(hamiltonian, spectrum, max_seconds=max_seconds)))
-    except BaseException as exc:          # noqa: BLE001 - reported to the parent as a message
-        out.put(("error", f"{type(exc).__name__}: {exc}"))
+    while True:
+        try:
+            hamiltonian, spectrum, max_seconds = conn.recv()
+        except (EOFError, OSError):
+            return
+        try:
+            # one BLAS thread: a background check must not fight the window's solves for the cores
+            # (a dense LDL^T of 3600 unknowns took 0.8 s on one thread, 21 s with two oversubscribed)
+            with threadpool_limits(limits=1, user_api="blas"):
+                reply = ("ok", certify_count(hamiltonian, spectrum, max_seconds=max_seconds))
+        except BaseException as exc:          # noqa: BLE001 - reported to the parent as a message
+            reply = ("error", f"{type(exc).__name__}: {exc}")
+        conn.send(reply)
 
 
-def _count_in_process(hamiltonian, spectrum, max_seconds, should_stop, poll_s: float = 0.1):
-    """certify_count in a spawned process; terminated at once when ``should_stop()`` turns True."""
-    ctx = mp.get_context("spawn")
-    out = ctx.Queue()
-    proc = ctx.Process(target=_count_in_child, args=(out, hamiltonian, spectrum, max_seconds),
-                       name="wellscape-count", daemon=True)
-    proc.start()
-    try:
+class CountProcess:
+    """One long-lived child process that certifies level counts, started once (at the window's
+    warm-up) and reused: starting a process forks the window's large address space while holding
+    the interpreter lock (130-230 ms stalls when done for every count).  Cancelling kills the child;
+    the next count starts a new one."""
+
+    def __init__(self):
+        self._proc = None
+        self._conn = None
+        self._lock = threading.Lock()
+
+    def start(self) -> None:
+        with self._lock:
+            if self._proc is not None and self._proc.is_alive():
+                return
+            ctx = mp.get_context("spawn")
+            parent, child = ctx.Pipe()
+            proc = ctx.Process(target=_count_server, args=(child,), name="wellscape-count", daemon=True)
+            proc.start()
+            child.close()
+            self._proc, self._conn = proc, parent
+
+    def count(self, hamiltonian, spectrum, max_seconds, should_stop, poll_s: float = 0.05):
+        """certify_count in the child; the child is killed at once when ``should_stop()`` turns True."""
+        self.start()
+        conn, proc = self._conn, self._proc
+        conn.send((hamiltonian, spectrum, max_seconds))
         while True:
             if should_stop():
+                self.stop()
                 raise Cancelled("level count cancelled")
-            try:
-                status, value = out.get(timeout=poll_s)
+            if conn.poll(poll_s):
+                try:
+                    status, value = conn.recv()
+                except (EOFError, OSError):
+                    status, value = "error", "the connection to the count process broke"
                 break
-            except queue.Empty:
-                if not proc.is_alive():
-                    raise RuntimeError(f"the level count stopped unexpectedly (exit code {proc.exitcode})") from None
+            if not proc.is_alive():
+                self.stop()
+                raise RuntimeError(f"the level count stopped unexpectedly (exit code {proc.exitcode})")
         if status != "ok":
             raise RuntimeError(f"the level count failed: {value}")
         return value
-    finally:
-        if proc.is_alive():
-            proc.terminate()
-        proc.join(5.0)
-        out.close()
+
+    def stop(self) -> None:
+        with self._lock:
+            proc, conn = self._proc, self._conn
+            self._proc = self._conn = None
+        if conn is not None:
+            conn.close()
+        if proc is not None:
+            if proc.is_alive():
+                proc.terminate()
+            proc.join(5.0)
 
 
 class NumberChecks(QObject):
@@ -106,6 +143,8 @@ class NumberChecks(QObject):
         self._retired: list = []
         self._shut_down = False
         self._report_was_current = False
+        #: the child process that runs level counts off the window's interpreter lock
+        self.count_process = CountProcess()
         session.solved.connect(self._on_solved)
         session.project_changed.connect(self._on_project_changed)
 
@@ -195,8 +234,8 @@ class NumberChecks(QObject):
             progress(f"factorising ({est.method})", 0.1)
             if max_seconds is not None and est.seconds > max_seconds:
                 return certify_count(h, result.spectrum, max_seconds=max_seconds)   # "not checked", at once
-            if est.seconds > _IN_THREAD_SECONDS or not est.method.startswith("sparse"):
-                return _count_in_process(h, result.spectrum, max_seconds, should_stop)
+            if est.seconds > _IN_THREAD_SECONDS:
+                return self.count_process.count(h, result.spectrum, max_seconds, should_stop)
             return certify_count(h, result.spectrum, max_seconds=max_seconds)
 
         # a sparse factorisation does not use the parallel kernels: it may run beside a solve
@@ -298,3 +337,4 @@ class NumberChecks(QObject):
             if job is not None:
                 job.join()
         self._jobs = {CONVERGENCE: None, COUNT: None}
+        self.count_process.stop()

@@ -719,9 +719,11 @@ class Session(QObject):
 
         The first solve of a process loads numba and its cached kernels.  Importing numba from a
         worker thread holds the interpreter lock in long pieces (a 128^2 first solve stalled the
-        window for 145-219 ms; with numba imported beforehand, 17 ms), so numba is imported here,
-        on the GUI thread, once, right after the window opened (about 0.35 s before anything is
-        asked of it); the kernels are then loaded by a tiny solve in the background."""
+        window for 145-219 ms; with numba imported beforehand, 17 ms), and so does importing scipy's
+        sparse solvers for the level count that follows the first solve (a further 320-400 ms,
+        found by sampling the threads' stacks).  Both are imported here, on the GUI thread, once,
+        right after the window opened (about 0.4 s before anything is asked of it); the kernels
+        are then loaded by a tiny solve in the background."""
         if self._shut_down or self._aux_jobs:
             return
         import dataclasses as dc
@@ -729,7 +731,9 @@ class Session(QObject):
 
         from .workers import compute_lock
         compute_lock()                             # imports numba and picks its threading layer
-        importlib.import_module("core.kernels")
+        # the level count that follows each solve imports scipy's sparse solvers: likewise here, once
+        for name in ("core.kernels", "core.inertia", "core.estimate", "core.analysis"):
+            importlib.import_module(name)
 
         from core.grid import Grid
 
@@ -737,8 +741,11 @@ class Session(QObject):
         tiny = dc.replace(base, grid=Grid([-120.0, -120.0], [120.0, 120.0], [40, 40]),
                           solver=dc.replace(base.solver, states=2, scheme="fd2", tolerance=1e-4))
 
+        count_process = self.checks.count_process
+
         def work(progress, should_stop):
             from core.study import solve_project
+            count_process.start()              # the level counts' child process, started while idle
             return solve_project(tiny, should_stop=should_stop)
 
         job = Job(work, kind="warm-up")
