@@ -21,8 +21,12 @@ Views ask :meth:`report_for` / :meth:`certificate_for` and repaint on :attr:`cha
 """
 from __future__ import annotations
 
-import multiprocessing as mp
+import os
+import select
+import subprocess
+import sys
 import threading
+from pathlib import Path
 from typing import Optional
 
 from PySide6.QtCore import QObject, Signal
@@ -43,80 +47,70 @@ COUNT = "count"
 _IN_THREAD_SECONDS = 0.02
 
 
-def _count_server(conn) -> None:    # pragma: no cover - runs in the child process
-    """Child process: certify counts sent over ``conn`` until it is closed (or the process killed)."""
-    from threadpoolctl import threadpool_limits
-
-    from core.inertia import certify_count
-    while True:
-        try:
-            hamiltonian, spectrum, max_seconds = conn.recv()
-        except (EOFError, OSError):
-            return
-        try:
-            # one BLAS thread: a background check must not fight the window's solves for the cores
-            # (a dense LDL^T of 3600 unknowns took 0.8 s on one thread, 21 s with two oversubscribed)
-            with threadpool_limits(limits=1, user_api="blas"):
-                reply = ("ok", certify_count(hamiltonian, spectrum, max_seconds=max_seconds))
-        except BaseException as exc:          # noqa: BLE001 - reported to the parent as a message
-            reply = ("error", f"{type(exc).__name__}: {exc}")
-        conn.send(reply)
-
-
 class CountProcess:
-    """One long-lived child process that certifies level counts, started once (at the window's
-    warm-up) and reused: starting a process forks the window's large address space while holding
-    the interpreter lock (130-230 ms stalls when done for every count).  Cancelling kills the child;
-    the next count starts a new one."""
+    """One long-lived child process (``python -m app.count_server``) that certifies level counts,
+    started once (at the window's warm-up) and reused: starting a process forks the window's large
+    address space while holding the interpreter lock (130-230 ms stalls when done for every count).
+    Cancelling kills the child; the next count starts a new one."""
 
     def __init__(self):
         self._proc = None
-        self._conn = None
         self._lock = threading.Lock()
 
     def start(self) -> None:
         with self._lock:
-            if self._proc is not None and self._proc.is_alive():
+            if self._proc is not None and self._proc.poll() is None:
                 return
-            ctx = mp.get_context("spawn")
-            parent, child = ctx.Pipe()
-            proc = ctx.Process(target=_count_server, args=(child,), name="wellscape-count", daemon=True)
-            proc.start()
-            child.close()
-            self._proc, self._conn = proc, parent
+            root = str(Path(__file__).resolve().parents[1])        # the folder holding app/ and core/
+            env = dict(os.environ)
+            env["PYTHONPATH"] = root + (os.pathsep + env["PYTHONPATH"] if env.get("PYTHONPATH") else "")
+            self._proc = subprocess.Popen([sys.executable, "-m", "app.count_server"], stdin=subprocess.PIPE,
+                                          stdout=subprocess.PIPE, env=env, cwd=root)
 
     def count(self, hamiltonian, spectrum, max_seconds, should_stop, poll_s: float = 0.05):
         """certify_count in the child; the child is killed at once when ``should_stop()`` turns True."""
+        from .count_server import read_message, write_message
         self.start()
-        conn, proc = self._conn, self._proc
-        conn.send((hamiltonian, spectrum, max_seconds))
+        proc = self._proc
+        try:
+            write_message(proc.stdin, (hamiltonian, spectrum, max_seconds))
+        except (BrokenPipeError, OSError):
+            self.stop()
+            raise RuntimeError("the level count process is not running") from None
         while True:
             if should_stop():
                 self.stop()
                 raise Cancelled("level count cancelled")
-            if conn.poll(poll_s):
-                try:
-                    status, value = conn.recv()
-                except (EOFError, OSError):
-                    status, value = "error", "the connection to the count process broke"
+            ready, _, _ = select.select([proc.stdout], [], [], poll_s)
+            if ready:
+                reply = read_message(proc.stdout)
+                if reply is None:
+                    code = proc.poll()
+                    self.stop()
+                    raise RuntimeError(f"the level count stopped unexpectedly (exit code {code})")
+                status, value = reply
                 break
-            if not proc.is_alive():
-                self.stop()
-                raise RuntimeError(f"the level count stopped unexpectedly (exit code {proc.exitcode})")
         if status != "ok":
             raise RuntimeError(f"the level count failed: {value}")
         return value
 
     def stop(self) -> None:
         with self._lock:
-            proc, conn = self._proc, self._conn
-            self._proc = self._conn = None
-        if conn is not None:
-            conn.close()
-        if proc is not None:
-            if proc.is_alive():
-                proc.terminate()
-            proc.join(5.0)
+            proc, self._proc = self._proc, None
+        if proc is None:
+            return
+        for stream in (proc.stdin, proc.stdout):
+            try:
+                stream.close()
+            except OSError:
+                pass
+        if proc.poll() is None:
+            proc.terminate()
+        try:
+            proc.wait(5.0)
+        except subprocess.TimeoutExpired:
+            proc.kill()
+            proc.wait(5.0)
 
 
 class NumberChecks(QObject):
