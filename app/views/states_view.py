@@ -92,6 +92,7 @@ class StatesView(QtWidgets.QWidget):
         super().__init__(parent)
         self.session = session
         self.result = None
+        self._pending_result = None        # a result that arrived while the view was hidden
         self.tiles: list = []
         self.region_roi = None
         self._region_host = None
@@ -226,6 +227,7 @@ class StatesView(QtWidgets.QWidget):
     def _on_project_changed(self) -> None:
         if getattr(self.session, "result", None) is None:
             self.result = None
+            self._pending_result = None
             self.stack.show_hint(_HINT)
 
     def _on_solved(self, result=None) -> None:
@@ -233,6 +235,21 @@ class StatesView(QtWidgets.QWidget):
         if result is None:
             self.stack.show_hint(_HINT)
             return
+        if not self.isVisible():
+            # a hidden tab draws nothing until it is shown: the gallery of a first result costs the
+            # window 100-150 ms, which would otherwise fall right after every solve
+            self._pending_result = result
+            return
+        self._pending_result = None
+        self._show_result(result)
+
+    def showEvent(self, event) -> None:  # noqa: N802 - Qt override
+        super().showEvent(event)
+        pending, self._pending_result = self._pending_result, None
+        if pending is not None:
+            self._show_result(pending)
+
+    def _show_result(self, result) -> None:
         new_grid = self.result is None or self.result.grid != result.grid
         self.result = result
         self.ndim = result.grid.ndim
@@ -254,8 +271,8 @@ class StatesView(QtWidgets.QWidget):
         self._show_large()
 
     def _on_selection_changed(self, _index: int = 0) -> None:
-        if self.result is None:
-            return
+        if self.result is None or self._pending_result is not None:
+            return                         # (a pending result is drawn with the selection when shown)
         for t in self.tiles:
             t.set_selected(t.index == self.selected)
         self._show_large()

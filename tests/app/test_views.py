@@ -593,7 +593,11 @@ def test_views_follow_a_real_session_through_solve_and_sweep(qtbot, session):
     np.testing.assert_array_equal(pot.image.image, session.potential)
     with qtbot.waitSignal(session.solved, timeout=60000):
         session.solve()
-    assert not lev.stack.showing_hint and len(sta.tiles) == len(session.result.energies)
+    assert not lev.stack.showing_hint
+    assert sta.tiles == [] and sta._pending_result is session.result     # hidden: drawn when shown
+    sta.show()
+    qtbot.waitExposed(sta)
+    assert len(sta.tiles) == len(session.result.energies) and sta._pending_result is None
     lev._on_level_clicked(2)
     assert session.selected_state == 2 and sta.tiles[2].selected
     lev.set_tolerance(1.0)                                  # 1 meV merges the split second shell
