@@ -303,6 +303,24 @@ class ConvergenceReport:
             out.append(Splitting(int(a), int(b), s, comb, ok, float(proj[b] - proj[a])))
         return tuple(out)
 
+    def on_levels(self, energies, degeneracy_tolerance: float = 0.0) -> tuple:
+        """This report applied to a solve of the same project: ``(grid_errors, splittings)``.
+
+        The solve's levels are matched to the report's project-grid levels by number while their
+        energies agree (within ten times ``degeneracy_tolerance`` or 1e-6 of the energy scale);
+        ``grid_errors`` has one entry per solved level (nan beyond the matched ones) and
+        ``splittings`` keeps those between matched levels."""
+        e = np.asarray(energies, dtype=float)
+        pe = np.asarray(self.project_energies, dtype=float)
+        scale = max(float(np.max(np.abs(e))) if e.size else 1.0, 1e-300)
+        tol = max(10.0 * float(degeneracy_tolerance), 1e-6 * scale)
+        n = 0
+        while n < min(e.size, pe.size) and np.isfinite(pe[n]) and abs(pe[n] - e[n]) <= tol:
+            n += 1
+        errors = np.full(e.size, np.nan)
+        errors[:n] = np.asarray(self.grid_errors, dtype=float)[:n]
+        return errors, tuple(sp for sp in self.splittings() if sp.lower < n and sp.upper < n)
+
     def rows(self) -> list:
         """One dict per level (project-grid numbering) for tables and JSON."""
         out = []

@@ -580,21 +580,14 @@ def _levels_panel(result, highlight: Sequence[int], convergence=None) -> dict:
                 or dict(convergence.reference.parameters) != dict(result.parameters)):
             raise InputError("the convergence check was made for another project (or other parameter values) "
                              "than the solve: check convergence again")
-        pe = np.asarray(convergence.project_energies, dtype=float)
-        scale = max(float(np.max(np.abs(e))), 1e-300)
-        tol_match = max(10.0 * float(result.spectrum.degeneracy_tolerance), 1e-6 * scale)
-        n = 0
-        while n < min(e.size, pe.size) and np.isfinite(pe[n]) and abs(pe[n] - e[n]) <= tol_match:
-            n += 1
+        errors, splittings = convergence.on_levels(e, result.spectrum.degeneracy_tolerance)
         tol = float(default_degeneracy_tolerance(convergence))
         if tol > 0:
             groups = [list(g) for g in group_levels(e, tol)]
             panel["groups"] = groups
-        errors = np.full(e.size, np.nan)
-        errors[:n] = np.asarray(convergence.grid_errors, dtype=float)[:n]
         panel["errors"] = errors
         panel["splittings"] = [{"lower": int(sp.lower), "upper": int(sp.upper), "resolved": bool(sp.resolved)}
-                               for sp in convergence.splittings() if sp.lower < n and sp.upper < n]
+                               for sp in splittings]
         panel["check"] = (f"convergence checked on {len(convergence.grids)} grids: "
                           f"{MARKS[RESOLVED]} resolved, {MARKS[NOT_RESOLVED]} not resolved by the grid")
     panel["decimals"] = _decimals(np.array([float(np.mean(e[g])) for g in groups]), ignore_below=0.01)

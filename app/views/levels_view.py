@@ -338,35 +338,22 @@ class LevelsView(QtWidgets.QWidget):
             return None
         return self.checks.report_for(self.result)
 
-    def _matched_levels(self, report) -> int:
-        """How many of the shown levels the report describes (same numbering, energies agreeing)."""
-        e = np.asarray(self.result.energies, dtype=float)
-        pe = np.asarray(report.project_energies, dtype=float)
-        n = min(e.size, pe.size)
-        scale = max(float(np.max(np.abs(e))) if e.size else 1.0, 1e-300)
-        tol = max(10.0 * float(self.result.spectrum.degeneracy_tolerance), 1e-6 * scale)
-        for i in range(n):
-            if not (np.isfinite(pe[i]) and abs(pe[i] - e[i]) <= tol):
-                return i
-        return n
-
-    def level_errors(self) -> Optional[np.ndarray]:
-        """Estimated grid error of each shown level (nan where unknown), or None without a report."""
+    def _applied_report(self) -> Optional[tuple]:
+        """``(grid_errors, splittings)`` of the report on the shown levels, or None without one."""
         rep = self.report()
         if rep is None:
             return None
-        out = np.full(len(self.result.energies), np.nan)
-        n = self._matched_levels(rep)
-        out[:n] = np.asarray(rep.grid_errors, dtype=float)[:n]
-        return out
+        return rep.on_levels(self.result.energies, self.result.spectrum.degeneracy_tolerance)
+
+    def level_errors(self) -> Optional[np.ndarray]:
+        """Estimated grid error of each shown level (nan where unknown), or None without a report."""
+        applied = self._applied_report()
+        return None if applied is None else applied[0]
 
     def splittings(self) -> list:
         """The report's splittings between shown levels (both ends matched), or [] without a report."""
-        rep = self.report()
-        if rep is None:
-            return []
-        n = self._matched_levels(rep)
-        return [sp for sp in rep.splittings() if sp.lower < n and sp.upper < n]
+        applied = self._applied_report()
+        return [] if applied is None else list(applied[1])
 
     def _verdict_words(self, members) -> str:
         sps = self.splittings()

@@ -249,3 +249,17 @@ def test_finer_direction_keeps_the_project_grid_as_reference():
     assert r.reference_index == 0 and r.grids[0] == oscillator_project(points=16, ndim=2).grid
     assert r.grids[1].points[0] > 16
     assert any("not the finest" in w for w in r.warnings)
+
+
+def test_report_applied_to_a_solve_matches_levels_by_energy(oscillator_report):
+    """on_levels: the project grid's own energies match every reported level; a solve whose fourth
+    level differs (another project) matches only the three below it, and splittings keep to those."""
+    r = oscillator_report
+    e = r.project_energies.copy()
+    errors, sps = r.on_levels(e)
+    np.testing.assert_array_equal(errors, r.grid_errors)
+    assert len(sps) == len(r.splittings())
+    e[3] += 0.1
+    errors, sps = r.on_levels(e)
+    assert np.all(np.isfinite(errors[:3])) and np.all(np.isnan(errors[3:]))
+    assert all(s.lower < 3 and s.upper < 3 for s in sps) and len(sps) == 2
