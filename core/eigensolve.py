@@ -453,7 +453,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         theta, w = np.linalg.eigh(s)
         wt = np.ascontiguousarray(w.T)
         _rotate(q, wt)                               # Ritz vectors
-        _rotate(hq, wt)                              # H applied to them
+        op.apply(q, hq)                              # H applied to them: cheaper than a second rotation
         res = np.empty(p)
         for i in range(p):
             hq[i] -= theta[i] * q[i]

@@ -55,7 +55,11 @@ def fd_step_real(X, V, cx, cy, cz, ix, sx, iy, sy, iz, sz, alpha, shift, beta, Z
     Nearest-neighbour stencils (second-order differences) take a single fused pass per grid line;
     wider stencils add one pass per offset.
     """
-    if cx.shape[0] <= 2 and cy.shape[0] <= 2 and cz.shape[0] <= 2:
+    if cx.shape[0] == 1 and cy.shape[0] <= 2 and cz.shape[0] <= 2 and X.shape[1] == 1:
+        m, _, n1, n2 = X.shape            # a 1D or 2D grid: no loads for the padded axis
+        _nearest_step_real_2d(X.reshape(m, n1, n2), V.reshape(n1, n2), cx[0] + cy[0] + cz[0] - shift,
+                              cy, cz, iy, sy, iz, sz, alpha, beta, Z.reshape(m, n1, n2), Y.reshape(m, n1, n2))
+    elif cx.shape[0] <= 2 and cy.shape[0] <= 2 and cz.shape[0] <= 2:
         _nearest_step_real(X, V, cx, cy, cz, ix, sx, iy, sy, iz, sz, alpha, shift, beta, Z, Y)
     else:
         _wide_step_real(X, V, cx, cy, cz, ix, sx, iy, sy, iz, sz, alpha, shift, beta, Z, Y)
@@ -104,6 +108,49 @@ def _nearest_step_real(X, V, cx, cy, cz, ix, sx, iy, sy, iz, sz, alpha, shift, b
                 zs = c1z * (sz[2, k] * xl[iz[2, k]] + sz[0, k] * xl[iz[0, k]])
             acc = (vl[k] + d0) * xl[k] + gxp * xxp[k] + gxm * xxm[k] + gyp * xyp[k] + gym * xym[k] + zs
             yl[k] = alpha * acc if beta == 0.0 else alpha * acc + beta * zl[k]
+
+
+#: grid lines per parallel task of the 2D kernel (fewer, longer tasks: measured 20-30 % faster
+#: than one line per task at 256^2 on 2 cores)
+_LINES_PER_TASK = 4
+
+
+@njit(parallel=True, cache=True, nogil=True, fastmath=False, error_model="numpy")
+def _nearest_step_real_2d(X, V, d0, cy, cz, iy, sy, iz, sz, alpha, beta, Z, Y):  # pragma: no cover
+    """The nearest-neighbour step on ``(m, n1, n2)`` blocks (a 2D grid, or a 1D one with n1 = 1)."""
+    m, n1, n2 = X.shape
+    c1y = cy[1] if cy.shape[0] > 1 else 0.0
+    c1z = cz[1] if cz.shape[0] > 1 else 0.0
+    ry = cy.shape[0] - 1
+    rz = cz.shape[0] - 1
+    per = (n1 + _LINES_PER_TASK - 1) // _LINES_PER_TASK
+    for t in prange(m * per):
+        b = t // per
+        j0 = (t - b * per) * _LINES_PER_TASK
+        for j in range(j0, min(j0 + _LINES_PER_TASK, n1)):
+            gyp = c1y * sy[2 * ry, j]           # with ry = 0 (a 1D grid) these are 0 * the line itself
+            gym = c1y * sy[0, j]
+            xl = X[b, j]
+            xyp = X[b, iy[2 * ry, j]]
+            xym = X[b, iy[0, j]]
+            vl = V[j]
+            yl = Y[b, j]
+            zl = Z[b, j]
+            if beta == 0.0:
+                for k in range(1, n2 - 1):
+                    yl[k] = alpha * ((vl[k] + d0) * xl[k] + gyp * xyp[k] + gym * xym[k]
+                                     + c1z * (xl[k + 1] + xl[k - 1]))
+            else:
+                for k in range(1, n2 - 1):
+                    yl[k] = alpha * ((vl[k] + d0) * xl[k] + gyp * xyp[k] + gym * xym[k]
+                                     + c1z * (xl[k + 1] + xl[k - 1])) + beta * zl[k]
+            for e in range(2 if n2 > 1 else 1):     # the two ends of the line: boundary tables
+                k = e * (n2 - 1)
+                zs = 0.0
+                if rz > 0:
+                    zs = c1z * (sz[2, k] * xl[iz[2, k]] + sz[0, k] * xl[iz[0, k]])
+                acc = (vl[k] + d0) * xl[k] + gyp * xyp[k] + gym * xym[k] + zs
+                yl[k] = alpha * acc if beta == 0.0 else alpha * acc + beta * zl[k]
 
 
 @njit(parallel=True, cache=True, nogil=True, fastmath=False, error_model="numpy")

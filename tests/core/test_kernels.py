@@ -36,6 +36,8 @@ CASES = [
     ((10,), "periodic"),
     ((12, 7), "hard-wall"),
     ((8, 9), "periodic"),
+    ((13, 6), ["hard-wall", "periodic"]),     # a line count that is not a multiple of the lines per task
+    ((7, 10), ["periodic", "hard-wall"]),
     ((6, 5, 7), "hard-wall"),
     ((6, 5, 6), ["periodic", "hard-wall", "periodic"]),
     ((3, 3, 3), "hard-wall"),
