@@ -40,6 +40,11 @@ from .resources import check_memory
 __all__ = ["Spectrum", "lowest_states", "group_levels", "weyl_level_estimate", "solver_memory_bytes"]
 
 _DEBUG = False
+#: highest filter degree of one pass
+_MAX_DEGREE = 120
+#: a started solve widens its first Rayleigh-Ritz with the residuals of the wanted vectors whose
+#: residual exceeds this many tolerances
+_WIDEN_FACTOR = 100.0
 ProgressFn = Optional[Callable[[str, float], None]]
 StopFn = Optional[Callable[[], bool]]
 
@@ -174,26 +179,50 @@ def _rotate(y: np.ndarray, t: np.ndarray) -> None:
         y[:r, lo:lo + step] = t @ y[:, lo:lo + step]
 
 
-def _project_out(y: np.ndarray, locked: np.ndarray) -> None:
-    """y -= (projection of y on the rows of ``locked``), in place, twice, in column chunks (no big temporaries)."""
+def _subtract_projection(y: np.ndarray, c: np.ndarray, locked: np.ndarray) -> None:
+    """y_j -= sum_k c_kj locked_k in place (c_kj = <locked_k, y_j>), in column chunks (no big temporaries)."""
     step = _column_chunk(max(len(y), len(locked)), y.itemsize)
+    ct = np.ascontiguousarray(c.T)
+    for lo in range(0, y.shape[1], step):
+        y[:, lo:lo + step] -= ct @ locked[:, lo:lo + step]
+
+
+def _project_out(y: np.ndarray, locked: np.ndarray) -> None:
+    """y -= (projection of y on the rows of ``locked``), in place, twice (classical Gram-Schmidt twice)."""
     for _ in range(2):
-        c = _dot(locked, y).T                          # c_ij = <locked_j, y_i>
-        for lo in range(0, y.shape[1], step):
-            y[:, lo:lo + step] -= c @ locked[:, lo:lo + step]
+        _subtract_projection(y, _dot(locked, y), locked)
 
 
-def _orthonormalize(y: np.ndarray, rng, locked: Optional[np.ndarray] = None) -> np.ndarray:
+def _orthonormalize(y: np.ndarray, rng, locked: Optional[np.ndarray] = None,
+                    joined: Optional[np.ndarray] = None) -> np.ndarray:
     """Orthonormalise the rows of ``y`` in place against ``locked`` and each other (SVQB, repeated until clean).
 
+    Against ``locked`` this is classical Gram-Schmidt twice: a first pass removes the large
+    components a filter leaves along the locked rows, and the second is fused with the Gram
+    matrix of ``y`` when ``joined`` (the rows of ``locked`` followed by those of ``y``, one
+    contiguous view) is given: one product ``joined @ y^H`` gives both, and the Gram matrix of
+    the projected rows is ``G - C^H C`` (the locked rows are orthonormal; C is at rounding level
+    by then, so nothing cancels).  After an SVQB rotation one projection pass suffices.
     Numerically dependent directions are replaced by fresh random vectors, so the block keeps
     its number of rows.  Works in column chunks: no block-sized temporaries.
     """
     want = len(y)
+    nl = 0 if locked is None else len(locked)
+    first = True
     for _ in range(8):
-        if locked is not None and len(locked):
-            _project_out(y, locked)
-        g = _dot(y, y)
+        if nl:
+            if first:
+                _subtract_projection(y, _dot(locked, y), locked)
+            if joined is not None:
+                both = _dot(joined, y)
+                c, g = both[:nl], both[nl:]
+            else:
+                c, g = _dot(locked, y), _dot(y, y)
+            _subtract_projection(y, c, locked)
+            g = g - np.conj(c.T) @ c
+        else:
+            g = _dot(y, y)
+        first = False
         dg = np.real(np.diag(g)).copy()
         scale = 1.0 / np.sqrt(np.maximum(dg, 1e-300))
         gs = scale[:, None] * g * scale[None, :]
@@ -207,6 +236,7 @@ def _orthonormalize(y: np.ndarray, rng, locked: Optional[np.ndarray] = None) -> 
         _rotate(y, m.T)
         for i in range(r, want):
             y[i] = _random_block(rng, 1, y.shape[1], y.dtype)[0]
+            first = True                                 # a fresh random row has large locked components
     raise NotConverged("could not orthonormalise the search block")
 
 
@@ -351,7 +381,8 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
                   start: Optional[np.ndarray] = None, progress: ProgressFn = None,
                   should_stop: StopFn = None, degeneracy_tolerance: float = 1e-6,
                   max_iterations: int = 300, dense_limit: int = 1200, seed: int = 12345,
-                  check_memory_first: bool = True, coarse_start: bool = True) -> Spectrum:
+                  check_memory_first: bool = True, coarse_start: bool = True,
+                  widen: bool = True) -> Spectrum:
     """The ``k`` lowest eigenpairs of ``h`` (more if the k-th level's multiplet continues).
 
     Parameters
@@ -373,6 +404,8 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
     dense_limit : problems with at most this many unknowns are solved densely.
     coarse_start : without ``start``, large problems first solve on a grid half as fine and
         interpolate (sine modes for hard walls), which cuts the work of a cold solve.
+    widen : a started solve (``start``, or the coarse-grid start) first widens its Rayleigh-Ritz
+        with the residuals of its poorly converged wanted vectors (one Davidson step).
     """
     t0 = time.perf_counter()
     n = h.size
@@ -444,7 +477,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
     def orthonormalize_and_rr(count_locked):
         """Orthonormalise the active rows of blk (against the locked ones) in place, then Rayleigh-Ritz
         on them; the Ritz vectors replace them. Returns Ritz values and residual norms."""
-        q = _orthonormalize(blk[count_locked:m], rng, locked=blk[:count_locked])
+        q = _orthonormalize(blk[count_locked:m], rng, locked=blk[:count_locked], joined=blk[:m])
         p = len(q)
         hq = hq_buf[:p]
         op.apply(q, hq)
@@ -459,6 +492,79 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
             hq[i] -= theta[i] * q[i]
             res[i] = np.linalg.norm(hq[i])
         return theta, res
+
+    def widen_with_residuals(theta, res):
+        """Rayleigh-Ritz on the block plus the residuals of its poorly converged wanted vectors.
+
+        After a start from nearby vectors (a warm start, or a coarse-grid solve) the error of a
+        wanted vector sits mostly in a few eigenvectors just above the block, where the filter
+        damps slowest; the residual points at them.  One Rayleigh-Ritz step on the block widened
+        by those residuals (a Davidson step without preconditioner: E. R. Davidson, J. Comput.
+        Phys. 17, 87 (1975)) keeps the ``m`` lowest Ritz vectors; by the Courant-Fischer min-max
+        principle none of their Ritz values rises.  Returns Ritz values, residual norms and the
+        number of residuals used.
+
+        Expects ``hq_buf[:m]`` to hold the residuals left by :func:`orthonormalize_and_rr` on the
+        whole block (nothing locked).  The residuals R (normalised) and H R live in ``hq_buf``,
+        so nothing block-sized is allocated; at most m // 2 residuals (the largest) are used.  The
+        residuals are not orthonormalised: Rayleigh-Ritz solves the generalised problem
+        A c = theta B c on [Q; R], with B the Gram matrix, through B^(-1/2) (as in SVQB).
+        """
+        want = min(k, m)
+        scale = max(abs(theta[:want]).max(), theta[want - 1] - theta[0], 1e-300)
+        bad = np.nonzero(res[:want] > _WIDEN_FACTOR * tol * scale)[0]
+        if bad.size == 0:
+            return theta, res, 0
+        bad = np.sort(bad[np.argsort(res[bad])[::-1][: m // 2]])
+        pr = len(bad)
+        rr = hq_buf[: 2 * pr]
+        for j, i in enumerate(bad):                      # ascending: row i >= j, nothing overwritten early
+            rr[j] = hq_buf[i] / res[i]
+        op.apply(rr[:pr], rr[pr:])
+        q = blk[:m]
+        qr = _dot(q, rr)                                 # [<q, r>  <q, H r>]
+        rrr = _dot(rr[:pr], rr)                          # [<r, r>  <r, H r>]
+        dt = np.result_type(qr, theta)
+        gram = np.eye(m + pr, dtype=dt)
+        gram[:m, m:] = qr[:, :pr]
+        gram[m:, m:] = rrr[:, :pr]
+        gram[m:, :m] = np.conj(gram[:m, m:].T)
+        amat = np.zeros((m + pr, m + pr), dtype=dt)
+        amat[:m, :m] = np.diag(theta)
+        amat[:m, m:] = qr[:, pr:]
+        amat[m:, m:] = rrr[:, pr:]
+        amat[m:, :m] = np.conj(amat[:m, m:].T)
+        gram = 0.5 * (gram + np.conj(gram.T))
+        amat = 0.5 * (amat + np.conj(amat.T))
+        w, u = np.linalg.eigh(gram)
+        keep = w > 1e-10 * w.max()
+        if int(keep.sum()) < m:
+            return theta, res, 0                         # residuals dependent on the block: nothing to add
+        mm = u[:, keep] / np.sqrt(w[keep])[None, :]
+        theta2, v = np.linalg.eigh(np.conj(mm.T) @ amat @ mm)
+        coef = mm @ v[:, :m]                             # columns: the m lowest Ritz vectors in [Q; R]
+        cq = np.ascontiguousarray(coef[:m].T)
+        cr = np.ascontiguousarray(coef[m:].T)
+        step = _column_chunk(m + pr, blk.itemsize)
+        for lo in range(0, n, step):
+            q[:, lo:lo + step] = cq @ q[:, lo:lo + step] + cr @ rr[:pr, lo:lo + step]
+        if _DEBUG:
+            print(f"widen: {pr} residuals, cond(B) {w.max() / w[keep].min():.2e}")
+        if w.max() / w[keep].min() > 1e3:
+            # B^(-1/2) amplified rounding to ~eps * cond(B): one symmetric (Loewdin) orthonormalisation
+            # moves each Ritz vector least, and to first order leaves its Ritz value as it was
+            gq = _dot(q, q)
+            gq = 0.5 * (gq + np.conj(gq.T))
+            wq, uq = np.linalg.eigh(gq)
+            _rotate(q, ((uq / np.sqrt(wq)[None, :]) @ np.conj(uq.T)).T)
+        hq = hq_buf[:m]
+        op.apply(q, hq)
+        theta2 = theta2[:m].copy()
+        res2 = np.empty(m)
+        for i in range(m):
+            hq[i] -= theta2[i] * q[i]
+            res2[i] = np.linalg.norm(hq[i])
+        return theta2, res2, pr
 
     def chebyshev_filter(rows: np.ndarray, degree: np.ndarray, a0: float, c: float, e: float) -> None:
         """Filter each row of ``rows`` (in place) by its own degree, ``chunk`` rows at a time.
@@ -487,6 +593,9 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
                     x[i] = bufs[d % 3][i]
 
     theta, res = orthonormalize_and_rr(0)
+    widened = 0
+    if warm and widen:
+        theta, res, widened = widen_with_residuals(theta, res)
     nlock = 0
     locked_theta = np.empty(0)
     locked_res = np.empty(0)
@@ -510,7 +619,8 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
                         grid=h.grid, iterations=iterations, applications=op.applications,
                         wall_time=time.perf_counter() - t0, converged=converged, requested=k,
                         tolerance=tol, degeneracy_tolerance=deg_abs, multiplet_cut=cut_flag, scheme=scheme,
-                        notes=tuple(notes), guard_states=guards)
+                        notes=tuple(notes), guard_states=guards,
+                        extra={"widened_with_residuals": widened})
 
     deg_abs = 0.0
     while True:
@@ -591,7 +701,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         target = np.clip(res / np.maximum(tol_abs, 1e-300), 10.0, 1e6)
         degree = np.ceil(np.arccosh(target) / np.arccosh(xt)).astype(int)
         hardest = int(min(max(need - nlock, 1), p)) - 1
-        dmax = int(np.clip(degree[: hardest + 1].max(), 4, 120))
+        dmax = int(np.clip(degree[: hardest + 1].max(), 4, _MAX_DEGREE))
         # keep the filter's dynamic range resolvable: the lowest component present in the block must not
         # outgrow the hardest wanted one by more than ~1e5, or SVQB drops the wanted directions as noise
         first_random = not warm and iterations == 1

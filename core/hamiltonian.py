@@ -17,6 +17,8 @@ Gauges (about a centre c):
 """
 from __future__ import annotations
 
+import hashlib
+
 from dataclasses import dataclass
 
 import numpy as np
@@ -176,9 +178,9 @@ class Hamiltonian:
         for a in range(self.grid.ndim):
             t = self.kinetic_1d[a]
             if t.shape[0] <= 3000:
-                w = np.linalg.eigvalsh(t)
-                lo += self.prefactors[a] * float(w[0])
-                hi += self.prefactors[a] * float(w[-1])
+                w0, w1 = _extreme_eigenvalues(t)
+                lo += self.prefactors[a] * w0
+                hi += self.prefactors[a] * w1
             else:  # Gershgorin
                 hi += self.prefactors[a] * float(np.abs(t).sum(axis=1).max())
         return lo, hi
@@ -253,6 +255,23 @@ class Hamiltonian:
     def describe(self) -> dict:
         return {"scheme": self.scheme, "grid": self.grid.to_dict(), "prefactors": list(self.prefactors),
                 "magnetic_field": list(self.magnetic_field), "gauge": self.gauge}
+
+
+_EXTREMES: dict = {}
+
+
+def _extreme_eigenvalues(t: np.ndarray) -> tuple:
+    """Lowest and highest eigenvalue of a dense symmetric 1D kinetic matrix, remembered by content
+    (every solve of a sweep or a slider drag asks again for the same few matrices; 4 ms at n = 256)."""
+    key = (t.shape[0], hashlib.blake2b(np.ascontiguousarray(t).view(np.uint8), digest_size=16).digest())
+    found = _EXTREMES.get(key)
+    if found is None:
+        w = np.linalg.eigvalsh(t)
+        found = (float(w[0]), float(w[-1]))
+        if len(_EXTREMES) >= 64:
+            _EXTREMES.clear()
+        _EXTREMES[key] = found
+    return found
 
 
 def _contract(mat: np.ndarray, x: np.ndarray, axis: int) -> np.ndarray:

@@ -202,6 +202,37 @@ def test_warm_start_converges_quickly():
     assert warm.applications < 0.6 * cold2.applications
 
 
+def test_widened_warm_start_gives_the_lowest_eigenpairs():
+    """A warm start widens its first Rayleigh-Ritz with the residuals of its poorly converged vectors
+    (one Davidson step: E. R. Davidson, J. Comput. Phys. 17, 87 (1975)).  The answer must still be
+    the lowest eigenpairs of the operator: energies against scipy.sparse.linalg.eigsh in shift-invert
+    mode (ARPACK, an outside reference), residuals within the tolerance, states orthonormal, and the
+    same energies as without widening.  Asking for 7 states of the oscillator ends inside an exactly
+    degenerate pair of its fourth shell (x <-> y mirror symmetry of the grid), so the whole pair must
+    come back.  An eigenvalue with residual r is within r of an exact one (Weyl / Kato bound), so
+    1e-9 of the energy scale bounds the energy error."""
+    g = Grid([-7, -7], [7, 7], [96, 96])
+    v = oscillator(g)
+    h = build_hamiltonian(g, v, scheme="fd2")
+    cold = lowest_states(h, 7)
+    h2 = build_hamiltonian(g, 1.01 * v, scheme="fd2")
+    tol = 1e-9
+    warm = lowest_states(h2, 7, start=cold.block(), tolerance=tol)
+    assert warm.extra["widened_with_residuals"] > 0
+    count = warm.energies.size
+    ref = np.sort(spla.eigsh(h2.to_sparse().tocsc(), k=14, sigma=0.0, which="LM", tol=1e-12)[0])
+    assert ref[7] - ref[6] < 1e-9 and count == 8 and not warm.multiplet_cut
+    assert ref[count] - ref[count - 1] > warm.degeneracy_tolerance
+    scale = max(abs(warm.energies).max(), warm.energies[-1] - warm.energies[0])
+    assert np.all(warm.residuals <= 1.0001 * tol * scale)
+    np.testing.assert_allclose(warm.energies, ref[:count], rtol=0, atol=tol * scale)
+    flat = warm.states.reshape(warm.energies.size, -1) * math.sqrt(g.volume_element)
+    np.testing.assert_allclose(flat @ flat.T, np.eye(warm.energies.size), atol=1e-12)
+    plain = lowest_states(h2, 7, start=cold.block(), tolerance=tol, widen=False)
+    assert plain.extra["widened_with_residuals"] == 0
+    np.testing.assert_allclose(warm.energies, plain.energies, rtol=0, atol=2 * tol * scale)
+
+
 def test_cancel_raises_with_partial_result():
     g = Grid([-7, -7], [7, 7], [64, 64])
     h = build_hamiltonian(g, oscillator(g), scheme="fd2")

@@ -135,3 +135,20 @@ def test_hofstadter_half_flux_bandwidth():
     assert w.max() == pytest.approx(2 * np.sqrt(2) * t, rel=0.02)
     assert w.min() == pytest.approx(-2 * np.sqrt(2) * t, rel=0.02)
     assert w.max() <= 2 * np.sqrt(2) * t + 1e-12
+
+
+def test_warm_start_in_a_stronger_field_follows_fock_darwin():
+    """A warm start from the 2 T states to 2.1 T (complex Hamiltonian, widened first Rayleigh-Ritz)
+    lands on the Fock-Darwin levels at 2.1 T (spectral scheme: 1e-7 as in the test above), and its
+    complex states are orthonormal."""
+    g = Grid([-120, -120], [120, 120], [63, 63])
+    v = parabolic(g, 3.0)
+    cold = solve_states(g, v, states=8, mass=M_GAAS, units="semiconductor", magnetic_field=[0, 0, 2.0],
+                        scheme="spectral", tolerance=1e-9)
+    warm = solve_states(g, v, states=8, mass=M_GAAS, units="semiconductor", magnetic_field=[0, 0, 2.1],
+                        scheme="spectral", tolerance=1e-9, start=cold.block())
+    assert warm.extra["widened_with_residuals"] > 0
+    exact, _ = fock_darwin(3.0, SEMI.cyclotron_energy(M_GAAS, 2.1), 8)
+    np.testing.assert_allclose(warm.energies[:8], exact, rtol=1e-7)
+    flat = warm.states.reshape(warm.energies.size, -1) * np.sqrt(g.volume_element)
+    np.testing.assert_allclose(np.conj(flat) @ flat.T, np.eye(warm.energies.size), atol=1e-12)
