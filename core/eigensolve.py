@@ -364,6 +364,12 @@ def _dense_solve(h: Hamiltonian, k: int, t0: float, tol: float, deg_rel: float, 
 _BLAS_THREADS: Optional[int] = 1
 
 
+def _row_threads() -> int:
+    """Threads of the compiled kernels (numba's current setting)."""
+    import numba
+    return int(numba.get_num_threads())
+
+
 def _blas_threads_limited(solve):
     """Run ``solve`` with ``_BLAS_THREADS`` BLAS threads (threadpoolctl), keeping its signature."""
     @functools.wraps(solve)
@@ -538,7 +544,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         amat = 0.5 * (amat + np.conj(amat.T))
         w, u = np.linalg.eigh(gram)
         keep = w > 1e-10 * w.max()
-        if int(keep.sum()) < m:
+        if int(keep.sum()) <= m:
             return theta, res, 0                         # residuals dependent on the block: nothing to add
         mm = u[:, keep] / np.sqrt(w[keep])[None, :]
         theta2, v = np.linalg.eigh(np.conj(mm.T) @ amat @ mm)
@@ -546,13 +552,19 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         cq = np.ascontiguousarray(coef[:m].T)
         cr = np.ascontiguousarray(coef[m:].T)
         step = _column_chunk(m + pr, blk.itemsize)
+        part = np.empty((m, min(step, n)), dtype=blk.dtype)
         for lo in range(0, n, step):
-            q[:, lo:lo + step] = cq @ q[:, lo:lo + step] + cr @ rr[:pr, lo:lo + step]
+            hi = min(lo + step, n)
+            np.matmul(cr, rr[:pr, lo:hi], out=part[:, : hi - lo])
+            part[:, : hi - lo] += cq @ q[:, lo:hi]
+            q[:, lo:hi] = part[:, : hi - lo]
         if _DEBUG:
             print(f"widen: {pr} residuals, cond(B) {w.max() / w[keep].min():.2e}")
         if w.max() / w[keep].min() > 1e3:
-            # B^(-1/2) amplified rounding to ~eps * cond(B): one symmetric (Loewdin) orthonormalisation
-            # moves each Ritz vector least, and to first order leaves its Ritz value as it was
+            # B^(-1/2) amplified rounding to ~eps * cond(B) (Stathopoulos & Wu 2002): one symmetric
+            # (Loewdin) orthonormalisation moves each Ritz vector least, and to first order leaves
+            # its Ritz value as it was.  (Dropping the nearly dependent residual directions instead
+            # cost the 2D 256^2 warm start a second filter pass.)
             gq = _dot(q, q)
             gq = 0.5 * (gq + np.conj(gq.T))
             wq, uq = np.linalg.eigh(gq)
@@ -567,18 +579,42 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         return theta2, res2, pr
 
     def chebyshev_filter(rows: np.ndarray, degree: np.ndarray, a0: float, c: float, e: float) -> None:
-        """Filter each row of ``rows`` (in place) by its own degree, ``chunk`` rows at a time.
+        """Filter each row of ``rows`` (in place) by its own degree.
 
-        Scaled three-term recurrence of Zhou et al. (2006), Algorithm 4.1; the row itself serves as
-        one of the three rotating buffers, so only two chunk-sized buffers exist.
+        Scaled three-term recurrence of Zhou et al. (2006), Algorithm 4.1.  Where the Hamiltonian
+        has a fused per-row kernel (1D/2D, real, nearest neighbour) each thread runs whole
+        recurrences on its own rows, rows of similar degree side by side, with a cancel check
+        between rounds.  Otherwise ``chunk`` rows at a time step together; the row itself serves
+        as one of the three rotating buffers, so only two chunk-sized buffers exist.
         """
+        sigma = e / (a0 - c)
+        tau = 2.0 / sigma
+        if h.row_filter:
+            top = int(degree.max())
+            alphas = np.zeros(top + 1)
+            betas = np.zeros(top + 1)
+            alphas[1] = sigma / e
+            for step in range(2, top + 1):
+                sigma_new = 1.0 / (tau - sigma)
+                alphas[step] = 2.0 * sigma_new / e
+                betas[step] = -sigma * sigma_new
+                sigma = sigma_new
+            width = max(1, min(_row_threads(), chunk))
+            order = np.argsort(degree, kind="stable")
+            for r0 in range(0, len(rows), width):
+                if should_stop is not None and r0 and should_stop():
+                    raise Cancelled("solve cancelled", partial=None)
+                take = np.full(width, -1, dtype=np.int64)
+                take[: len(order[r0:r0 + width])] = order[r0:r0 + width]
+                h.chebyshev_rows(rows, fbuf[0][:width], fbuf[1][:width], take, degree, alphas, betas, c)
+            op.applications += int(np.sum(degree))
+            return
         for r0 in range(0, len(rows), chunk):
             x = rows[r0:r0 + chunk]
             deg = degree[r0:r0 + chunk]
             q = len(x)
             bufs = [x, fbuf[0][:q], fbuf[1][:q]]
             sigma = e / (a0 - c)
-            tau = 2.0 / sigma
             op.step(x, bufs[1], sigma / e, c, 0.0, x)
             for step in range(2, int(deg[-1]) + 1):
                 s0 = int(np.searchsorted(deg, step))     # rows with degree >= step

@@ -235,6 +235,28 @@ class Hamiltonian:
         if beta != 0.0:
             out += beta * z
 
+    @property
+    def row_filter(self) -> bool:
+        """True if :meth:`chebyshev_rows` has a fused kernel here (real, nearest-neighbour, 1D or 2D)."""
+        if not self._banded or self.phases is not None or self._shape3[0] != 1:
+            return False
+        cx, cy, cz = self._coeffs
+        return cx.shape[0] == 1 and cy.shape[0] <= 2 and cz.shape[0] <= 2
+
+    def chebyshev_rows(self, x: np.ndarray, w0: np.ndarray, w1: np.ndarray, rows: np.ndarray,
+                       degree: np.ndarray, alphas: np.ndarray, betas: np.ndarray, shift: float) -> None:
+        """Chebyshev recurrence on rows ``x[rows[t]]`` of a block (m, *grid.shape), in place, one row
+        per thread, with work rows ``w0[t]``, ``w1[t]`` (see :func:`core.kernels.chebyshev_rows_real_2d`).
+        Only where :attr:`row_filter` is True."""
+        n1, n2 = self._shape3[1], self._shape3[2]
+        cx, cy, cz = self._coeffs
+        ix, sx, iy, sy, iz, sz = self._tables
+        m = x.shape[0]
+        _kernels().chebyshev_rows_real_2d(
+            x.reshape(m, n1, n2), w0.reshape(len(w0), n1, n2), w1.reshape(len(w1), n1, n2),
+            np.asarray(rows, dtype=np.int64), self._v3.reshape(n1, n2), cx[0] + cy[0] + cz[0] - shift,
+            cy, cz, iy, sy, iz, sz, alphas, betas, np.asarray(degree, dtype=np.int64))
+
     # -- assembled forms ------------------------------------------------------------------
     def to_sparse(self) -> sp.csr_matrix:
         """H as a scipy sparse CSR matrix (grid points in C order, ``indexing="ij"``)."""
