@@ -364,6 +364,12 @@ def _dense_solve(h: Hamiltonian, k: int, t0: float, tol: float, deg_rel: float, 
 _BLAS_THREADS: Optional[int] = 1
 
 
+def _residual_norms(q: np.ndarray, hq: np.ndarray, theta: np.ndarray) -> np.ndarray:
+    """hq_i -= theta_i q_i in place for row blocks that hold H q; returns the residual norms."""
+    from .kernels import residual_norms
+    return residual_norms(q, hq, theta)
+
+
 def _row_threads() -> int:
     """Threads of the compiled kernels (numba's current setting)."""
     import numba
@@ -493,11 +499,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         wt = np.ascontiguousarray(w.T)
         _rotate(q, wt)                               # Ritz vectors
         op.apply(q, hq)                              # H applied to them: cheaper than a second rotation
-        res = np.empty(p)
-        for i in range(p):
-            hq[i] -= theta[i] * q[i]
-            res[i] = np.linalg.norm(hq[i])
-        return theta, res
+        return theta, _residual_norms(q, hq, theta)
 
     def widen_with_residuals(theta, res):
         """Rayleigh-Ritz on the block plus the residuals of its poorly converged wanted vectors.
@@ -565,11 +567,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
 
         def residuals(rows):
             op.apply(q[rows], hq[rows])
-            out = np.empty(rows.stop - rows.start)
-            for j, i in enumerate(range(rows.start, rows.stop)):
-                hq[i] -= theta2[i] * q[i]
-                out[j] = np.linalg.norm(hq[i])
-            return out
+            return _residual_norms(q[rows], hq[rows], theta2[rows])
 
         res2 = residuals(slice(0, m))
         if w.max() / w[keep].min() > 1e3:

@@ -23,7 +23,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit, prange
 
-__all__ = ["neighbour_table", "fd_step_real", "fd_step_phased", "chebyshev_rows_real_2d"]
+__all__ = ["neighbour_table", "fd_step_real", "fd_step_phased", "chebyshev_rows_real_2d", "residual_norms"]
 
 
 def neighbour_table(n: int, radius: int, periodic: bool):
@@ -322,3 +322,27 @@ def fd_step_phased(X, V, cx, cy, cz, ix, sx, iy, sy, iz, sz, px, py, pz,
                     Y[b, i, j, k] = alpha * v
                 else:
                     Y[b, i, j, k] = alpha * v + beta * Z[b, i, j, k]
+
+
+def residual_norms(q, hq, theta):
+    """In place hq_i -= theta_i q_i for the rows of two (p, N) blocks; returns ||hq_i||.
+
+    One pass over memory, rows in parallel (numpy needs two passes per row, one thread)."""
+    out = np.empty(len(q))
+    _residual_norms(q, hq, np.asarray(theta, dtype=np.float64), out)
+    return out
+
+
+@njit(parallel=True, cache=True, nogil=True, fastmath=False, error_model="numpy")
+def _residual_norms(q, hq, theta, out):  # pragma: no cover - compiled
+    p, n = q.shape
+    for i in prange(p):
+        t = theta[i]
+        acc = 0.0
+        qi = q[i]
+        hi = hq[i]
+        for j in range(n):
+            v = hi[j] - t * qi[j]
+            hi[j] = v
+            acc += v.real * v.real + v.imag * v.imag
+        out[i] = np.sqrt(acc)
