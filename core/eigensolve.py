@@ -37,9 +37,12 @@ from .grid import Grid
 from .hamiltonian import Hamiltonian
 from .resources import check_memory
 
-__all__ = ["Spectrum", "lowest_states", "group_levels", "weyl_level_estimate", "solver_memory_bytes"]
+__all__ = ["Spectrum", "lowest_states", "group_levels", "weyl_level_estimate", "solver_memory_bytes",
+           "DEFAULT_DEGENERACY_TOLERANCE"]
 
 _DEBUG = False
+#: levels closer than this, relative to the energy scale, count as one multiplet (default)
+DEFAULT_DEGENERACY_TOLERANCE = 1e-6
 #: highest filter degree of one pass
 _MAX_DEGREE = 120
 #: a started solve widens its first Rayleigh-Ritz with the residuals of the wanted vectors whose
@@ -391,7 +394,7 @@ def _blas_threads_limited(solve):
 @_blas_threads_limited
 def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Optional[int] = None,
                   start: Optional[np.ndarray] = None, progress: ProgressFn = None,
-                  should_stop: StopFn = None, degeneracy_tolerance: float = 1e-6,
+                  should_stop: StopFn = None, degeneracy_tolerance: float = DEFAULT_DEGENERACY_TOLERANCE,
                   max_iterations: int = 300, dense_limit: int = 1200, seed: int = 12345,
                   check_memory_first: bool = True, coarse_start: bool = True,
                   widen: bool = True) -> Spectrum:

@@ -6,7 +6,7 @@ from typing import Callable, Optional, Union
 
 import numpy as np
 
-from .eigensolve import Spectrum, lowest_states
+from .eigensolve import DEFAULT_DEGENERACY_TOLERANCE, Spectrum, lowest_states
 from .errors import InputError
 from .grid import Grid
 from .hamiltonian import build_hamiltonian, check_potential
@@ -66,7 +66,7 @@ def solve_states(grid: Grid, potential: Union[np.ndarray, Callable, float], *, s
                  gauge_centre=None, start: Optional[np.ndarray] = None,
                  progress: Optional[Callable[[str, float], None]] = None,
                  should_stop: Optional[Callable[[], bool]] = None,
-                 degeneracy_tolerance: float = 1e-6) -> Spectrum:
+                 degeneracy_tolerance: float = DEFAULT_DEGENERACY_TOLERANCE) -> Spectrum:
     """Find the lowest ``states`` bound states of ``potential`` on ``grid``.
 
     Parameters

@@ -38,6 +38,7 @@ import numpy as np
 from scipy.optimize import curve_fit, linear_sum_assignment
 
 from .analysis import angular_momentum_z, mirror_parity, position_expectation
+from .eigensolve import DEFAULT_DEGENERACY_TOLERANCE
 from .errors import Cancelled, InputError, ProjectError, WellscapeError
 from .project import GatesTerm, Project, project_from_dict, project_to_dict
 from .study import solve_project
@@ -291,12 +292,16 @@ def _two_level(x, x0, s, gap):
     return np.sqrt((s * (x - x0)) ** 2 + gap**2)
 
 
-def find_close_approaches(values, track_e, labels=None, *, relative=0.3) -> list:
+def find_close_approaches(values, track_e, labels=None, *, relative=0.3, degenerate: float = 0.0) -> list:
     """Classify close approaches of every pair of tracks.
 
     ``track_e`` is (T, P); ``labels`` an optional (T, P) array of symmetry labels (equal labels
     forbid a crossing).  A close approach is an interior local minimum of the separation that is
     smaller than ``relative`` times the separation at the ends of its window, or a sign change.
+    Two tracks closer than ``degenerate`` (absolute energy: the solver's degeneracy tolerance) at a
+    point are degenerate there: such a point is neither a minimum nor one side of a sign change.
+    Without it a sweep that starts at a symmetric point (a circular dot, zero field) reported its
+    degenerate levels' solver noise (~1e-8 of the energy) as an anticrossing at the start.
     """
     values = np.asarray(values, dtype=float)
     t_count, p = track_e.shape
@@ -307,8 +312,8 @@ def find_close_approaches(values, track_e, labels=None, *, relative=0.3) -> list
         for b in range(a + 1, t_count):
             d = track_e[b] - track_e[a]
             ad = np.abs(d)
-            tiny = 1e-9 * max(float(np.abs(track_e).max()), 1e-300)
-            nz = np.nonzero(ad > tiny)[0]            # skip points where the two are exactly degenerate
+            tiny = max(1e-9 * max(float(np.abs(track_e).max()), 1e-300), float(degenerate))
+            nz = np.nonzero(ad > tiny)[0]            # skip points where the two are degenerate
             sign_change = [(nz[q], nz[q + 1]) for q in range(nz.size - 1) if d[nz[q]] * d[nz[q + 1]] < 0]
             for i, i2 in sign_change:
                 j = int(np.argmin(ad[i:i2 + 1])) + i
@@ -328,7 +333,7 @@ def find_close_approaches(values, track_e, labels=None, *, relative=0.3) -> list
                                               reason="equal symmetry labels forbid a crossing; the gap is "
                                                      "smaller than the sampling resolves (an upper bound)"))
             for j in range(1, p - 1):
-                if not (ad[j] <= ad[j - 1] and ad[j] <= ad[j + 1]) or ad[j] == 0:
+                if not (ad[j] <= ad[j - 1] and ad[j] <= ad[j + 1]) or ad[j] <= tiny:
                     continue
                 if np.sign(d[j - 1]) != np.sign(d[j + 1]):
                     continue
@@ -431,7 +436,9 @@ def _assemble(project, target, values, energies, obs_list, states_list, keep_sta
     tracks = track_levels(overlaps) if p > 1 else np.arange(e.shape[1])[:, None]
     labels = _labels_from_observables(obs, tracks) if p > 1 else None
     te = np.stack([e[np.arange(p), t] for t in tracks]) if p > 1 else e.T
-    approaches = tuple(find_close_approaches(values[:p], te, labels))
+    scale = max(float(np.abs(e).max()), float(np.ptp(e)), 1e-300) if e.size else 1.0
+    approaches = tuple(find_close_approaches(values[:p], te, labels,
+                                             degenerate=DEFAULT_DEGENERACY_TOLERANCE * scale))
     tracking = time.perf_counter() - t1
     kept = np.array(states_list) if keep_states else None
     return SweepResult(parameter=target, values=np.asarray(values[:p], dtype=float), energies=e, tracks=tracks,

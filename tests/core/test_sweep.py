@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import dataclasses
 import time
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -10,7 +11,7 @@ import scipy.linalg as sla
 
 from core.errors import Cancelled, InputError, ProjectError, WellscapeError
 from core.grid import Grid
-from core.project import FormulaTerm, MaterialSpec, Project, SolverSettings
+from core.project import FormulaTerm, MaterialSpec, Project, SolverSettings, load_project
 from core.sweep import load_sweep, run_sweep, save_sweep, track_levels
 
 
@@ -65,6 +66,25 @@ def test_symmetry_allowed_crossing_keeps_track_identity():
     te = r.track_energies()
     np.testing.assert_allclose(te[1], 0.5 + 1.5 * values, rtol=1e-7)   # track 1 starts as (0,1)
     np.testing.assert_allclose(te[2], 1.5 + 0.5 * values, rtol=1e-7)   # track 2 starts as (1,0)
+
+
+def test_sweep_from_the_circular_point_reports_no_anticrossing():
+    """The bundled elliptical dot, V = hw^2 ((1 - ell) x^2 + (1 + ell) y^2) / (4 kin), swept from the
+    circular point ell = 0: the potential is separable at every ell, so product states (n_x, n_y) never
+    couple and no two levels anticross (textbook separable oscillator, Cohen-Tannoudji, Diu, Laloe,
+    Quantum Mechanics, Wiley 1977, vol. 1, ch. VI).  At ell = 0 the square grid splits the fourth shell
+    into two pairs 3e-8 meV apart (2e-9 of the energy, far inside the solver's degeneracy tolerance);
+    that was reported as an anticrossing at the start of the sweep, and a crossing next to it.
+    Levels at the last point: hbar w_x (n_x + 1/2) + hbar w_y (n_y + 1/2) with hbar w_x,y =
+    hw sqrt(1 -/+ ell); the sample rounds hbar^2/2m* to 5 digits (kin), so 1e-4 relative."""
+    project = load_project(Path(__file__).resolve().parents[2] / "sample_projects" / "elliptical_dot.json")
+    r = run_sweep(project, "ell", np.linspace(0.0, 0.3, 7), states=10)
+    assert [a for a in r.anticrossings if a.kind == "anticrossing"] == []
+    assert all(a.at > 0.01 for a in r.anticrossings)            # nothing at the degenerate start
+    hw = project.parameters["hw"]
+    wx, wy = hw * np.sqrt(1 - 0.3), hw * np.sqrt(1 + 0.3)
+    exact = np.sort([wx * (nx + 0.5) + wy * (ny + 0.5) for nx in range(6) for ny in range(6)])[:10]
+    np.testing.assert_allclose(r.energies[-1], exact, rtol=1e-4)
 
 
 def test_track_levels_assignment():
