@@ -252,14 +252,16 @@ def test_finer_direction_keeps_the_project_grid_as_reference():
 
 
 def test_report_applied_to_a_solve_matches_levels_by_energy(oscillator_report):
-    """on_levels: the project grid's own energies match every reported level; a solve whose fourth
-    level differs (another project) matches only the three below it, and splittings keep to those."""
+    """on_levels: the project grid's own energies match every reported level; a solve whose fifth
+    level differs (another project) matches only the four below it (the ground state and the whole
+    first excited shell, whose members sort among themselves by rounding), and splittings keep to
+    those: the three between the four levels."""
     r = oscillator_report
     e = r.project_energies.copy()
     errors, sps = r.on_levels(e)
     np.testing.assert_array_equal(errors, r.grid_errors)
     assert len(sps) == len(r.splittings())
-    e[3] += 0.1
+    e[4] += 0.1
     errors, sps = r.on_levels(e)
-    assert np.all(np.isfinite(errors[:3])) and np.all(np.isnan(errors[3:]))
-    assert all(s.lower < 3 and s.upper < 3 for s in sps) and len(sps) == 2
+    assert np.all(np.isfinite(errors[:4])) and np.all(np.isnan(errors[4:]))
+    assert all(s.lower < 4 and s.upper < 4 for s in sps) and len(sps) == 3
