@@ -162,69 +162,32 @@ def _column_chunk(rows: int, itemsize: int) -> int:
     return max(1024, _COLUMN_BYTES // max(rows * itemsize, 1))
 
 
-#: below this many elements a block product stays on the calling thread (a hand-off costs ~50 us)
-_PARALLEL_ELEMENTS = 1 << 18
-_POOL = None
-
-
-def _column_parts(rows: int, cols: int) -> list:
-    """Column ranges [lo, hi) for the block products: one per compiled-kernel thread on large blocks."""
-    parts = _row_threads() if rows * cols >= _PARALLEL_ELEMENTS else 1
-    parts = max(1, min(parts, cols // 1024 or 1))
-    return [(cols * i // parts, cols * (i + 1) // parts) for i in range(parts)]
-
-
-def _over_columns(rows: int, cols: int, work) -> list:
-    """``work(lo, hi)`` on disjoint column ranges, in parallel, the first on the calling thread.
-
-    The block products are tall and skinny and split cleanly by columns.  Each part calls BLAS on
-    its own thread with BLAS held at one thread (a BLAS thread pool competed with numba's threads:
-    measured 1.3-2x slower solves), so the second core works during products too: a 30 x 65536 Gram
-    matrix 7.9 -> 4.5 ms, a rotation 7.8 -> 5.3 ms (medians, 2 cores).
-    """
-    global _POOL
-    ranges = _column_parts(rows, cols)
-    if len(ranges) == 1:
-        return [work(0, cols)]
-    if _POOL is None or _POOL._max_workers < len(ranges) - 1:
-        from concurrent.futures import ThreadPoolExecutor
-        _POOL = ThreadPoolExecutor(max_workers=len(ranges) - 1, thread_name_prefix="wellscape-blocks")
-    futures = [_POOL.submit(work, lo, hi) for lo, hi in ranges[1:]]
-    first = work(*ranges[0])
-    return [first] + [f.result() for f in futures]
-
-
 def _dot(a, b):
-    """Gram-type product G_ij = <a_i, b_j> for row blocks (conjugates in column chunks: no block copy)."""
-    if not np.iscomplexobj(a):
-        return sum(_over_columns(len(a) + len(b), a.shape[1], lambda lo, hi: a[:, lo:hi] @ b[:, lo:hi].T))
-    step = _column_chunk(len(a), a.itemsize)
+    """Gram-type product G_ij = <a_i, b_j> for row blocks (conjugates in column chunks: no block copy).
 
-    def part(lo, hi):
-        g = np.zeros((len(a), len(b)), dtype=np.result_type(a, b))
-        for c in range(lo, hi, step):
-            e = min(c + step, hi)
-            g += np.conj(a[:, c:e]) @ b[:, c:e].T
-        return g
-    return sum(_over_columns(len(a) + len(b), a.shape[1], part))
+    Block products stay on one thread with one-thread BLAS: splitting them by columns over a second
+    Python thread made 2D 256^2 solves 5-10 % slower (numba's OpenMP threads spin after each kernel
+    and compete for the second core), and a BLAS thread pool 1.3-2x slower."""
+    if not np.iscomplexobj(a):
+        return a @ b.T
+    step = _column_chunk(len(a), a.itemsize)
+    g = np.zeros((len(a), len(b)), dtype=np.result_type(a, b))
+    for lo in range(0, a.shape[1], step):
+        g += np.conj(a[:, lo:lo + step]) @ b[:, lo:lo + step].T
+    return g
 
 
 def _gram_and_cross(a: np.ndarray, b: np.ndarray) -> tuple:
     """(a a^T, a b^T) for real row blocks in one pass over ``a``: column chunks small enough to stay
     in cache between the two products."""
     step = _column_chunk(len(a) + len(b), a.itemsize)
-
-    def part(lo, hi):
-        g = np.zeros((len(a), len(a)))
-        c = np.zeros((len(a), len(b)))
-        for lo2 in range(lo, hi, step):
-            e = min(lo2 + step, hi)
-            ac = a[:, lo2:e]
-            g += ac @ ac.T
-            c += ac @ b[:, lo2:e].T
-        return g, c
-    parts = _over_columns(len(a) + len(b), a.shape[1], part)
-    return sum(g for g, _ in parts), sum(c for _, c in parts)
+    g = np.zeros((len(a), len(a)))
+    c = np.zeros((len(a), len(b)))
+    for lo in range(0, a.shape[1], step):
+        ac = a[:, lo:lo + step]
+        g += ac @ ac.T
+        c += ac @ b[:, lo:lo + step].T
+    return g, c
 
 
 def _rotate(y: np.ndarray, t: np.ndarray) -> None:
@@ -232,39 +195,27 @@ def _rotate(y: np.ndarray, t: np.ndarray) -> None:
     r = t.shape[0]
     step = _column_chunk(len(y), y.itemsize)
     t = np.asarray(t, dtype=np.result_type(t, y))
-
-    def part(lo, hi):
-        for c in range(lo, hi, step):
-            e = min(c + step, hi)
-            y[:r, c:e] = t @ y[:, c:e]
-    _over_columns(len(y), y.shape[1], part)
+    for lo in range(0, y.shape[1], step):
+        y[:r, lo:lo + step] = t @ y[:, lo:lo + step]
 
 
 def _combine(out: np.ndarray, ta: np.ndarray, a: np.ndarray, tb: np.ndarray, b: np.ndarray) -> None:
-    """out = ta @ a + tb @ b in place (``out`` may be ``a``), in column chunks."""
+    """out = ta @ a + tb @ b in place (``out`` may be ``a``), in column chunks with one buffer."""
     step = _column_chunk(len(a) + len(b), a.itemsize)
-    dt = np.result_type(ta, tb, a, b)
-
-    def part(lo, hi):
-        buf = np.empty((len(out), min(step, hi - lo)), dtype=dt)
-        for c in range(lo, hi, step):
-            e = min(c + step, hi)
-            np.matmul(tb, b[:, c:e], out=buf[:, : e - c])
-            buf[:, : e - c] += ta @ a[:, c:e]
-            out[:, c:e] = buf[:, : e - c]
-    _over_columns(len(a) + len(b), a.shape[1], part)
+    buf = np.empty((len(out), min(step, a.shape[1])), dtype=np.result_type(ta, tb, a, b))
+    for lo in range(0, a.shape[1], step):
+        hi = min(lo + step, a.shape[1])
+        np.matmul(tb, b[:, lo:hi], out=buf[:, : hi - lo])
+        buf[:, : hi - lo] += ta @ a[:, lo:hi]
+        out[:, lo:hi] = buf[:, : hi - lo]
 
 
 def _subtract_projection(y: np.ndarray, c: np.ndarray, locked: np.ndarray) -> None:
     """y_j -= sum_k c_kj locked_k in place (c_kj = <locked_k, y_j>), in column chunks (no big temporaries)."""
     step = _column_chunk(max(len(y), len(locked)), y.itemsize)
     ct = np.ascontiguousarray(c.T)
-
-    def part(lo, hi):
-        for c0 in range(lo, hi, step):
-            e = min(c0 + step, hi)
-            y[:, c0:e] -= ct @ locked[:, c0:e]
-    _over_columns(len(y) + len(locked), y.shape[1], part)
+    for lo in range(0, y.shape[1], step):
+        y[:, lo:lo + step] -= ct @ locked[:, lo:lo + step]
 
 
 def _orthonormalize(y: np.ndarray, rng, locked: Optional[np.ndarray] = None,
