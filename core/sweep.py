@@ -320,13 +320,18 @@ def find_close_approaches(values, track_e, labels=None, *, relative=0.3, degener
                 # compare labels away from the degeneracy, where the states have a definite symmetry
                 differ = labels is not None and (np.any(labels[a, i] != labels[b, i])
                                                  or np.any(labels[a, i2] != labels[b, i2]))
-                # interpolate the crossing point linearly
-                x0 = values[i] - d[i] * (values[i2] - values[i]) / (d[i2] - d[i])
-                if differ or labels is None:
+                # degenerate at a sampled value in between: they meet there (any gap is below what the
+                # solver resolves, whatever the labels say: a symmetry they do not capture, such as
+                # separability, may allow it); otherwise interpolate the crossing point linearly
+                met = i < j < i2 and ad[j] <= tiny
+                x0 = values[j] if met else values[i] - d[i] * (values[i2] - values[i]) / (d[i2] - d[i])
+                if differ or labels is None or met:
+                    why = ("the levels pass through each other" if not met else
+                           f"the levels meet at a sampled value, degenerate there within the solver's "
+                           f"tolerance ({tiny:.3g} in energy)")
                     found.append(Anticrossing(at=float(x0), gap=0.0, tracks=(a, b), kind="crossing", index=int(j),
                                               sampled_gap=float(ad[j]),
-                                              reason="the levels pass through each other"
-                                              + (" and their symmetry labels differ" if differ else "")))
+                                              reason=why + (" and their symmetry labels differ" if differ else "")))
                 else:
                     found.append(Anticrossing(at=float(x0), gap=float(ad[j]), tracks=(a, b), kind="anticrossing",
                                               index=int(j), sampled_gap=float(ad[j]),

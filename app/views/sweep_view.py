@@ -317,6 +317,9 @@ class SweepView(QtWidgets.QWidget):
                 self.plot.addItem(lab)
                 self.track_labels.append(lab)
         lines = []
+        marked = set()                                  # one crossing mark where several pairs meet
+        e_span = float(np.nanmax(tracks) - np.nanmin(tracks)) if np.isfinite(tracks).any() else 1.0
+        x_span = float(np.ptp(x)) if x.size else 1.0
         for ac in getattr(sweep, "anticrossings", ()) or ():
             a, b = (int(v) for v in ac.tracks)
             at = float(ac.at)
@@ -325,11 +328,15 @@ class SweepView(QtWidgets.QWidget):
             lo_e, hi_e = min(ea, eb), max(ea, eb)
             where = f"{sweep.parameter} = {fmt(at, 4)}"
             if getattr(ac, "kind", "anticrossing") == "crossing":
+                lines.append(f"tracks {a} and {b} cross at {where} (no gap: they do not couple)")
+                spot = (round(at / max(x_span, 1e-300), 3), round((ea + eb) / 2 / max(e_span, 1e-300), 3))
+                if spot in marked:
+                    continue
+                marked.add(spot)
                 mark = pg.ScatterPlotItem([at], [(ea + eb) / 2], symbol="x", size=14,
                                           pen=pg.mkPen("#111111", width=2), brush=None)
                 text = pg.TextItem("crossing", anchor=(-0.1, 1.0), color="#111111")
                 text.setPos(at, (ea + eb) / 2)
-                lines.append(f"tracks {a} and {b} cross at {where} (no gap: they do not couple)")
                 items = [mark, text]
             else:
                 gap = float(ac.gap)

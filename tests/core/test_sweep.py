@@ -87,6 +87,18 @@ def test_sweep_from_the_circular_point_reports_no_anticrossing():
     np.testing.assert_allclose(r.energies[-1], exact, rtol=1e-4)
 
 
+def test_sweep_through_the_circular_point_reports_crossings_there():
+    """The same elliptical dot swept through ell = 0 (a sampled value): the product states of the
+    separable potential cross there, including pairs whose mirror parities are equal (separability,
+    not mirror symmetry, lets them cross).  Every approach must be a crossing placed at ell = 0 and
+    none an anticrossing with the grid's 3e-8 meV splitting as its "gap"."""
+    project = load_project(Path(__file__).resolve().parents[2] / "sample_projects" / "elliptical_dot.json")
+    r = run_sweep(project, "ell", np.linspace(-0.3, 0.3, 7), states=10)
+    near = [a for a in r.anticrossings if abs(a.at) < 0.05]
+    assert near and all(a.kind == "crossing" and a.at == 0.0 for a in near)
+    assert [a for a in r.anticrossings if a.kind == "anticrossing"] == []
+
+
 def test_track_levels_assignment():
     """Overlap tracking is an assignment problem (scipy.optimize.linear_sum_assignment)."""
     swap = np.array([[0.05, 0.95, 0.0], [0.95, 0.05, 0.0], [0.0, 0.0, 1.0]])
