@@ -317,7 +317,7 @@ class SweepView(QtWidgets.QWidget):
                 self.plot.addItem(lab)
                 self.track_labels.append(lab)
         lines = []
-        marked = set()                                  # one crossing mark where several pairs meet
+        marked = set()                 # crossing marks drawn: one per point, one label per neighbourhood
         e_span = float(np.nanmax(tracks) - np.nanmin(tracks)) if np.isfinite(tracks).any() else 1.0
         x_span = float(np.ptp(x)) if x.size else 1.0
         for ac in getattr(sweep, "anticrossings", ()) or ():
@@ -329,15 +329,17 @@ class SweepView(QtWidgets.QWidget):
             where = f"{sweep.parameter} = {fmt(at, 4)}"
             if getattr(ac, "kind", "anticrossing") == "crossing":
                 lines.append(f"tracks {a} and {b} cross at {where} (no gap: they do not couple)")
-                spot = (round(at / max(x_span, 1e-300), 3), round((ea + eb) / 2 / max(e_span, 1e-300), 3))
-                if spot in marked:
-                    continue
-                marked.add(spot)
+                fx, fe = at / max(x_span, 1e-300), (ea + eb) / 2 / max(e_span, 1e-300)
+                if any(abs(fx - px) < 1e-3 and abs(fe - pe) < 1e-3 for px, pe, _ in marked):
+                    continue                            # the same point: one mark
                 mark = pg.ScatterPlotItem([at], [(ea + eb) / 2], symbol="x", size=14,
                                           pen=pg.mkPen("#111111", width=2), brush=None)
-                text = pg.TextItem("crossing", anchor=(-0.1, 1.0), color="#111111")
-                text.setPos(at, (ea + eb) / 2)
-                items = [mark, text]
+                items = [mark]
+                if not any(labelled and abs(fx - px) < 0.04 and abs(fe - pe) < 0.04 for px, pe, labelled in marked):
+                    text = pg.TextItem("crossing", anchor=(-0.1, 1.0), color="#111111")
+                    text.setPos(at, (ea + eb) / 2)
+                    items.append(text)
+                marked.add((fx, fe, len(items) > 1))
             else:
                 gap = float(ac.gap)
                 bar = pg.PlotDataItem([at, at], [lo_e, hi_e], pen=_GAP_PEN, symbol="_", symbolSize=12,
