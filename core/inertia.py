@@ -53,8 +53,12 @@ __all__ = ["CountCertificate", "FactorEstimate", "InertiaCount", "CountUnavailab
 DENSE_LIMIT = 300
 #: With the spectral scheme (whole lines coupled, so the sparse factor is dense anyway), problems up
 #: to this many real unknowns are factorised densely too: LAPACK's blocked LDL^T is then far faster
-#: than SuperLU on a dense pattern (2D 40^2: 0.4 s on one thread against an estimated 4 s).
-DENSE_SPECTRAL_LIMIT = 2500
+#: than SuperLU on a dense pattern (2D 40^2: 0.4 s on one thread against an estimated 4 s; 2D 64^2,
+#: the bundled elliptical dot: 3.6 s on one thread, where SuperLU was estimated at 69 s).  Memory:
+#: three dense copies, 600 MB at the limit, checked before factorising.
+DENSE_SPECTRAL_LIMIT = 5000
+#: floating-point rate assumed for the dense LDL^T time estimate (one thread; measured 3.4-6.4e9 here)
+_DENSE_FLOPS = 4e9
 
 # Fill of SuperLU's L+U (MMD on A+A^T, symmetric mode) per row, measured on this kind of machine
 # for second-order differences (stencil half-width 1) and fitted as c * (N / 4096)**e:
@@ -157,7 +161,7 @@ def estimate_factorisation(h: Hamiltonian) -> FactorEstimate:
     if rows <= DENSE_LIMIT or (_halfwidth(h.scheme) is None and rows <= DENSE_SPECTRAL_LIMIT):
         nnz = rows * rows
         return FactorEstimate(unknowns=rows, nonzeros=nnz, bytes=int(3 * 8 * nnz),
-                              seconds=max(1e-3, rows**3 / 3.0 / 2e9), method="dense LDL^T (Bunch-Kaufman)")
+                              seconds=max(1e-3, rows**3 / 3.0 / _DENSE_FLOPS), method="dense LDL^T (Bunch-Kaufman)")
     r = _halfwidth(h.scheme)
     d = h.grid.ndim
     if r is None:
