@@ -502,6 +502,9 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
             blk[i] = _random_block(rng, 1, n, dtype)[0]
         del st, start, row
         warm = True
+        # a caller's start (a previous solve's block) is usually orthonormal already; a prolonged
+        # coarse-grid block never is
+        fused_check = [prolong is None]
     else:
         if np.iscomplexobj(blk):
             for i in range(m):
@@ -509,6 +512,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         else:
             rng.standard_normal(out=blk)
         warm = False
+        fused_check = [False]
 
     # work arrays: H applied to the block (Rayleigh-Ritz) and two buffers of the chunked filter
     chunk = _chunk_rows(n, blk.itemsize)
@@ -519,9 +523,11 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         """Orthonormalise the active rows of blk (against the locked ones) in place, then Rayleigh-Ritz
         on them; the Ritz vectors replace them. Returns Ritz values and residual norms."""
         s = None
-        if count_locked == 0 and not np.iscomplexobj(blk):
-            # a start block is often orthonormal already (a previous solve's): apply H first and take
-            # the Gram matrix and Q H Q^T in one pass over Q; only if Q is not orthonormal, start over
+        if count_locked == 0 and fused_check[0] and not np.iscomplexobj(blk):
+            # a caller's start block is usually orthonormal already (a previous solve's): apply H first
+            # and take the Gram matrix and Q H Q^T in one pass over Q; only if Q is not orthonormal,
+            # start over
+            fused_check[0] = False
             q, hq = blk[:m], hq_buf[:m]
             op.apply(q, hq)
             g, s = _gram_and_cross(q, hq)

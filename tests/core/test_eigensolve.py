@@ -233,6 +233,25 @@ def test_widened_warm_start_gives_the_lowest_eigenpairs():
     np.testing.assert_allclose(warm.energies, plain.energies, rtol=0, atol=2 * tol * scale)
 
 
+def test_start_that_is_not_orthonormal_is_accepted():
+    """A caller's start need not be orthonormal (here the previous states mixed and rescaled, with a
+    row of zeros): the solve orthonormalises it and returns the same lowest levels as a cold solve,
+    which are those of the assembled matrix (numpy.linalg.eigvalsh, 1e-8 of the energy scale)."""
+    g = Grid([-7, -7], [7, 7], [40, 40])
+    h = build_hamiltonian(g, oscillator(g), scheme="fd2")
+    cold = lowest_states(h, 6, tolerance=1e-10)
+    rng = np.random.default_rng(3)
+    block = cold.block()
+    mixed = np.tensordot(rng.standard_normal((len(block), len(block))), block, axes=1) * 7.0
+    mixed[2] = 0.0
+    warm = lowest_states(h, 6, start=mixed, tolerance=1e-10)
+    exact = np.linalg.eigvalsh(h.to_sparse().toarray())[: warm.energies.size]
+    scale = max(abs(exact).max(), exact[-1] - exact[0])
+    np.testing.assert_allclose(warm.energies, exact, rtol=0, atol=1e-8 * scale)
+    flat = warm.states.reshape(warm.energies.size, -1) * math.sqrt(g.volume_element)
+    np.testing.assert_allclose(flat @ flat.T, np.eye(warm.energies.size), atol=1e-12)
+
+
 def test_cancel_raises_with_partial_result():
     g = Grid([-7, -7], [7, 7], [64, 64])
     h = build_hamiltonian(g, oscillator(g), scheme="fd2")
