@@ -38,7 +38,7 @@ from .hamiltonian import Hamiltonian
 from .resources import check_memory
 
 __all__ = ["Spectrum", "lowest_states", "group_levels", "weyl_level_estimate", "solver_memory_bytes",
-           "DEFAULT_DEGENERACY_TOLERANCE"]
+           "DEFAULT_DEGENERACY_TOLERANCE", "energy_scale"]
 
 _DEBUG = False
 #: levels closer than this, relative to the energy scale, count as one multiplet (default)
@@ -63,6 +63,15 @@ def group_levels(energies, tolerance: float) -> tuple:
     if current:
         groups.append(tuple(current))
     return tuple(groups)
+
+
+def energy_scale(energies) -> float:
+    """The energy scale that tolerances are relative to, for ascending levels:
+    ``max(|E_0|, |E_last|, E_last - E_0)``."""
+    e = np.asarray(energies, dtype=float)
+    if e.size == 0:
+        return 1.0
+    return max(float(np.abs(e).max()), float(e[-1] - e[0]), 1e-300)
 
 
 @dataclass(frozen=True, eq=False)
@@ -218,6 +227,14 @@ def _subtract_projection(y: np.ndarray, c: np.ndarray, locked: np.ndarray) -> No
         y[:, lo:lo + step] -= ct @ locked[:, lo:lo + step]
 
 
+def _scaled_gram(g: np.ndarray) -> tuple:
+    """(scale, D g D, clean) for a Gram matrix g, D = diag(scale) normalising the rows; ``clean``
+    when the normalised rows are orthonormal to 1e-13."""
+    scale = 1.0 / np.sqrt(np.maximum(np.real(np.diag(g)), 1e-300))
+    gs = scale[:, None] * g * scale[None, :]
+    return scale, gs, bool(np.abs(gs - np.eye(len(g))).max() < 1e-13)
+
+
 def _orthonormalize(y: np.ndarray, rng, locked: Optional[np.ndarray] = None,
                     joined: Optional[np.ndarray] = None) -> np.ndarray:
     """Orthonormalise the rows of ``y`` in place against ``locked`` and each other (SVQB, repeated until clean).
@@ -248,10 +265,8 @@ def _orthonormalize(y: np.ndarray, rng, locked: Optional[np.ndarray] = None,
         else:
             g = _dot(y, y)
         first = False
-        dg = np.real(np.diag(g)).copy()
-        scale = 1.0 / np.sqrt(np.maximum(dg, 1e-300))
-        gs = scale[:, None] * g * scale[None, :]
-        if np.abs(gs - np.eye(want)).max() < 1e-13:
+        scale, gs, clean = _scaled_gram(g)
+        if clean:
             y *= scale[:, None]
             return y
         w, u = np.linalg.eigh(gs)
@@ -368,7 +383,7 @@ class _Operator:
 def _dense_solve(h: Hamiltonian, k: int, t0: float, tol: float, deg_rel: float, scheme: str) -> Spectrum:
     a = h.to_sparse().toarray()
     w, v = np.linalg.eigh(a)
-    scale = max(abs(w[:k]).max(), w[k - 1] - w[0], 1e-300)
+    scale = energy_scale(w[:k])
     deg_abs = deg_rel * scale
     kk = k
     while kk < len(w) and w[kk] - w[kk - 1] <= deg_abs:
@@ -485,26 +500,27 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         if st.ndim == h.grid.ndim:
             st = st[None]
         # fill the block row by row (no block-sized temporaries: peak memory matters on large grids)
-        rows, row = 0, None
-        if prolong is None and st.dtype == dtype and st.ndim == h.grid.ndim + 1:
-            rows = min(len(st), m)                       # one copy; rows of zeros are replaced later
+        if prolong is None and st.dtype == dtype:
+            rows = min(len(st), m)        # one copy; a row of zeros is replaced when orthonormalised
             blk[:rows] = st.reshape(len(st), -1)[:rows]
-            st = st[:0]
-        parts = (lambda r: (r.real, r.imag)) if (np.iscomplexobj(st) and dtype == np.float64) else (lambda r: (r,))
-        for row in st:
-            if prolong is not None:
-                row = _prolong(row, prolong)
-            for part in parts(row.reshape(-1)):
-                if rows < m and np.any(part):
-                    blk[rows] = part
-                    rows += 1
+        else:                             # interpolated, or complex parts into a real block: row by row
+            rows = 0
+            parts = ((lambda r: (r.real, r.imag)) if (np.iscomplexobj(st) and dtype == np.float64)
+                     else (lambda r: (r,)))
+            for row in st:
+                if prolong is not None:
+                    row = _prolong(row, prolong)
+                for part in parts(row.reshape(-1)):
+                    if rows < m and np.any(part):
+                        blk[rows] = part
+                        rows += 1
         for i in range(rows, m):
             blk[i] = _random_block(rng, 1, n, dtype)[0]
-        del st, start, row
+        del st, start
         warm = True
         # a caller's start (a previous solve's block) is usually orthonormal already; a prolonged
         # coarse-grid block never is
-        fused_check = [prolong is None]
+        fused_check = prolong is None
     else:
         if np.iscomplexobj(blk):
             for i in range(m):
@@ -512,7 +528,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         else:
             rng.standard_normal(out=blk)
         warm = False
-        fused_check = [False]
+        fused_check = False
 
     # work arrays: H applied to the block (Rayleigh-Ritz) and two buffers of the chunked filter
     chunk = _chunk_rows(n, blk.itemsize)
@@ -522,17 +538,18 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
     def orthonormalize_and_rr(count_locked):
         """Orthonormalise the active rows of blk (against the locked ones) in place, then Rayleigh-Ritz
         on them; the Ritz vectors replace them. Returns Ritz values and residual norms."""
+        nonlocal fused_check
         s = None
-        if count_locked == 0 and fused_check[0] and not np.iscomplexobj(blk):
+        if count_locked == 0 and fused_check and not np.iscomplexobj(blk):
             # a caller's start block is usually orthonormal already (a previous solve's): apply H first
             # and take the Gram matrix and Q H Q^T in one pass over Q; only if Q is not orthonormal,
             # start over
-            fused_check[0] = False
+            fused_check = False
             q, hq = blk[:m], hq_buf[:m]
             op.apply(q, hq)
             g, s = _gram_and_cross(q, hq)
-            scale = 1.0 / np.sqrt(np.maximum(np.diag(g), 1e-300))
-            if np.abs(scale[:, None] * g * scale[None, :] - np.eye(m)).max() < 1e-13:
+            scale, _, clean = _scaled_gram(g)
+            if clean:
                 q *= scale[:, None]
                 s = scale[:, None] * s * scale[None, :]
             else:
@@ -567,7 +584,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         A c = theta B c on [Q; R], with B the Gram matrix, through B^(-1/2) (as in SVQB).
         """
         want = min(k, m)
-        scale = max(abs(theta[:want]).max(), theta[want - 1] - theta[0], 1e-300)
+        scale = energy_scale(theta[:want])
         bad = np.nonzero(res[:want] > _WIDEN_FACTOR * tol * scale)[0]
         if bad.size == 0:
             return theta, res, 0
@@ -618,7 +635,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
             # leading converged ones.  A symmetric (Loewdin) orthonormalisation of just those moves
             # each least and, to first order, leaves its Ritz value as it was.  (Dropping the nearly
             # dependent residual directions instead cost the 2D 256^2 warm start a second pass.)
-            scale2 = max(abs(theta2[:want]).max(), theta2[want - 1] - theta2[0], 1e-300)
+            scale2 = energy_scale(theta2[:want])
             lead = 0
             while lead < m - 1 and res2[lead] <= tol * scale2:
                 lead += 1
@@ -714,7 +731,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
     while True:
         all_theta = np.concatenate([locked_theta, theta])
         all_res = np.concatenate([locked_res, res])
-        scale = max(abs(all_theta[:need]).max(), all_theta[need - 1] - all_theta[0], 1e-300)
+        scale = energy_scale(all_theta[:need])
         tol_abs = tol * scale
         deg_abs = degeneracy_tolerance * scale
         # the energy scale settles as the block converges: unlock vectors locked under a looser scale

@@ -18,7 +18,6 @@ Gauges (about a centre c):
 from __future__ import annotations
 
 import hashlib
-
 from dataclasses import dataclass
 
 import numpy as np

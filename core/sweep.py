@@ -38,7 +38,7 @@ import numpy as np
 from scipy.optimize import curve_fit, linear_sum_assignment
 
 from .analysis import angular_momentum_z, mirror_parity, position_expectation
-from .eigensolve import DEFAULT_DEGENERACY_TOLERANCE
+from .eigensolve import DEFAULT_DEGENERACY_TOLERANCE, energy_scale
 from .errors import Cancelled, InputError, ProjectError, WellscapeError
 from .project import GatesTerm, Project, project_from_dict, project_to_dict
 from .study import solve_project
@@ -382,7 +382,7 @@ def _align_degenerate(states_list, energies, dv, spin=None, rel=1e-7):
     out = list(states_list)
     for p in range(1, len(out)):
         e = energies[p]
-        scale = max(float(np.abs(e).max()), float(e[-1] - e[0]), 1e-300)
+        scale = energy_scale(e)
         groups, cur = [], [0]
         for i in range(1, e.size):
             same_spin = spin is None or spin[p][i] == spin[p][cur[-1]]
@@ -441,7 +441,7 @@ def _assemble(project, target, values, energies, obs_list, states_list, keep_sta
     tracks = track_levels(overlaps) if p > 1 else np.arange(e.shape[1])[:, None]
     labels = _labels_from_observables(obs, tracks) if p > 1 else None
     te = np.stack([e[np.arange(p), t] for t in tracks]) if p > 1 else e.T
-    scale = max(float(np.abs(e).max()), float(np.ptp(e)), 1e-300) if e.size else 1.0
+    scale = max((energy_scale(row) for row in e), default=1.0)
     approaches = tuple(find_close_approaches(values[:p], te, labels,
                                              degenerate=DEFAULT_DEGENERACY_TOLERANCE * scale))
     tracking = time.perf_counter() - t1
