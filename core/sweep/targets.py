@@ -1,0 +1,60 @@
+"""What a sweep can vary: parameters, field components and gate voltages, all driven by one parameter."""
+from __future__ import annotations
+
+from dataclasses import replace
+
+from ..errors import InputError
+from ..project import GatesTerm, Project
+
+__all__ = ["SWEEP_PARAMETER", "sweep_targets", "prepare_target"]
+
+SWEEP_PARAMETER = "sweep_value"
+
+
+def sweep_targets(project: Project) -> list:
+    """Names that :func:`run_sweep` accepts for this project."""
+    names = list(project.parameters)
+    names += [f"electric_field[{i}]" for i in range(len(project.electric_field))]
+    names += [f"magnetic_field[{i}]" for i in range(3)]
+    for t in project.potential:
+        if isinstance(t, GatesTerm):
+            names += [f"gate:{g.label}" for g in t.gates]
+    return names
+
+
+def prepare_target(project: Project, target: str) -> tuple:
+    """(project with the target driven by a parameter, parameter name, current value)."""
+    from ..potentials import resolve_parameters, resolve_value
+    if target in project.parameters:
+        return project, target, project.parameters[target]
+    params = resolve_parameters(project)
+    new_params = dict(project.parameters)
+    new_params[SWEEP_PARAMETER] = 0.0
+    for field_name in ("electric_field", "magnetic_field"):
+        if target.startswith(field_name + "[") and target.endswith("]"):
+            try:
+                i = int(target[len(field_name) + 1:-1])
+                vals = list(getattr(project, field_name))
+                current = resolve_value(vals[i], params, target)
+            except (ValueError, IndexError):
+                break
+            vals[i] = SWEEP_PARAMETER
+            new_params[SWEEP_PARAMETER] = current
+            return replace(project, parameters=new_params, **{field_name: tuple(vals)}), SWEEP_PARAMETER, current
+    if target.startswith("gate:"):
+        label = target[5:]
+        terms = list(project.potential)
+        for ti, t in enumerate(terms):
+            if isinstance(t, GatesTerm):
+                gates = list(t.gates)
+                for gi, g in enumerate(gates):
+                    if g.label == label:
+                        current = resolve_value(g.voltage, params, target)
+                        gates[gi] = replace(g, voltage=SWEEP_PARAMETER)
+                        terms[ti] = replace(t, gates=tuple(gates))
+                        new_params[SWEEP_PARAMETER] = current
+                        return (replace(project, parameters=new_params, potential=tuple(terms)),
+                                SWEEP_PARAMETER, current)
+    known = ", ".join(sweep_targets(project))
+    raise InputError(f"cannot sweep {target!r}: not a parameter, field component or gate of this project. "
+                     f"Sweepable: {known}")
