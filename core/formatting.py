@@ -36,12 +36,15 @@ def format_measured(value: float, uncertainty: float, unit: str = "") -> str:
         return f"{value:.6g}{suffix}"
     dec = _decimals_for(uncertainty)
     shown = 0.0 if abs(value) < uncertainty else value
-    if dec <= 0 or abs(shown) >= 1e6 or (shown != 0 and abs(shown) < 1e-4) or uncertainty < 1e-4:
+    big = abs(shown) >= 1e6 or uncertainty >= 1e6
+    small = (abs(shown) < 1e-3 and shown != 0) or (shown == 0 and uncertainty < 1e-3)
+    if big or small or dec > 12:
         # scientific form with a shared exponent
         exp = int(math.floor(math.log10(abs(shown)))) if shown != 0 else int(math.floor(math.log10(uncertainty)))
         scale = 10.0 ** exp
         d = max(0, _decimals_for(uncertainty / scale))
         return f"({shown / scale:.{d}f} ± {uncertainty / scale:.{d}f})e{exp}{suffix}"
+    dec = max(dec, 0)
     return f"{shown:.{dec}f} ± {uncertainty:.{dec}f}{suffix}"
 
 

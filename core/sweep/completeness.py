@@ -160,7 +160,9 @@ def check_completeness(h: Hamiltonian, spectrum: Spectrum, *, rng, probes: int =
                 if not missed or count == "always":
                     return CompletenessCheck("level count", missed, cert.reason, 0.0,
                                              time.perf_counter() - t0), probe_vectors
-    theta, ritz, resolution, degree, margin = _probe(h, spectrum, rng, probes, previous)
+    from threadpoolctl import threadpool_limits
+    with threadpool_limits(1):       # the block products are memory-bound (see DEVELOPERS.md)
+        theta, ritz, resolution, degree, margin = _probe(h, spectrum, rng, probes, previous)
     k = spectrum.energies.size
     e_top = float(np.max(spectrum.energies))
     missed = len(theta) > k and theta[k] < e_top + margin

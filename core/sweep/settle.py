@@ -281,6 +281,10 @@ class Settler:
         common = dict(at=x0, at_uncertainty=x_unc, gap=gap, gap_uncertainty=gap_unc, fit=fit_out,
                       sampled_gap=float(min(ds.min(), c.sampled_gap)), refinements=len(samples),
                       smallest_step=float(steps.min()) if steps.size else math.nan, samples=tuple(samples))
+        if history and math.isfinite(gap_unc) and gap + 2 * gap_unc <= self.resolution:
+            return replace(c, kind="crossing", gap_bound=gap + 2 * gap_unc, evidence="no gap above the resolution",
+                           **{**common, "gap": 0.0},
+                           reason=f"the refined gap is below the resolution ({self.resolution:.2g} in energy)")
         if settled and exchanged:
             return replace(c, kind="anticrossing", gap_bound=math.nan,
                            evidence="the states exchange character", **common,
