@@ -21,6 +21,9 @@ def add_sweep_parser(sub) -> None:
     s.add_argument("--cluster", metavar="ADDRESS", help="a running dask.distributed scheduler, tcp://host:port")
     s.add_argument("--out", metavar="DIR", help="write sweep.npz and sweep.csv into DIR")
     s.add_argument("--json", action="store_true", help="print machine-readable JSON")
+    s.add_argument("--refine-budget", type=int, metavar="N",
+                   help="at most N extra solves to settle close approaches (default: half the number of values)")
+    s.add_argument("--no-refine", action="store_true", help="do not insert values to settle close approaches")
     s.set_defaults(func=cmd_sweep)
 
 
@@ -36,9 +39,20 @@ def cmd_sweep(args) -> int:
     est = estimate_sweep(project, values.size, states=args.states).check()   # refused with a suggestion
     if not args.json:
         print(f"wellscape: {est.describe()}", file=sys.stderr)
+    from core.errors import Cancelled
     bar = _Progress("sweep", enabled=None if not args.json else False)
-    result = run_sweep(project, args.vary, values, states=args.states, workers=args.workers,
-                       cluster=args.cluster, progress=bar)
+    interrupted = None
+    try:
+        result = run_sweep(project, args.vary, values, states=args.states, workers=args.workers,
+                           cluster=args.cluster, progress=bar, refine=not args.no_refine,
+                           refine_budget=args.refine_budget)
+    except Cancelled as exc:              # Ctrl-C: keep what was solved
+        bar.done()
+        if exc.partial is None:
+            raise
+        result, interrupted = exc.partial, str(exc)
+        print(f"wellscape: {interrupted}; {result.values.size} of {values.size} values solved, "
+              f"written as an incomplete sweep", file=sys.stderr)
     bar.done()
     if args.out:
         out = Path(args.out)
@@ -48,27 +62,59 @@ def cmd_sweep(args) -> int:
         doc = result.to_json_dict()
         doc["tracks"] = result.tracks.tolist()
         print(json.dumps(doc, indent=1))
-        return 0
+        return 130 if interrupted else 0
     u = result.units
     print(f"{project.title}: swept {args.vary} over {args.steps} values from {args.start:g} to {args.stop:g}; "
           f"{result.energies.shape[1]} levels tracked in {result.wall_time:.1f} s")
     te = result.track_energies()
     print(f"energy range {te.min():.6g} .. {te.max():.6g} {u.energy_unit}")
-    anti = [a for a in result.anticrossings if a.kind == "anticrossing"]
-    cross = [a for a in result.anticrossings if a.kind == "crossing"]
-    print()
-    if anti:
-        print(f"anticrossings ({len(anti)}):")
-        print(f"  {'at ' + args.vary:>22}  {'gap [' + u.energy_unit + ']':>14}  {'t [' + u.energy_unit + ']':>14}  levels")
-        for a in anti:
-            fit = " (two-level fit)" if a.fit else " (smallest sampled)"
-            print(f"  {a.at:>22.6g}  {a.gap:>14.6g}  {a.gap / 2:>14.6g}  {a.tracks[0]} & {a.tracks[1]}{fit}")
-    else:
-        print("no anticrossings found in this range")
-    if cross:
-        print(f"crossings allowed by symmetry ({len(cross)}):")
-        for a in cross:
-            print(f"  at {args.vary} = {a.at:.6g}: levels {a.tracks[0]} & {a.tracks[1]}")
+    _print_verdicts(result, args.vary, u.energy_unit)
+    _print_completeness(result)
     if args.out:
         print(f"\nwrote {Path(args.out) / 'sweep.npz'} and {Path(args.out) / 'sweep.csv'}")
-    return 0
+    return 130 if interrupted else 0
+
+
+def _print_verdicts(result, parameter: str, energy_unit: str) -> None:
+    """Every close approach in the words of :meth:`core.sweep.Anticrossing.describe` (the same words as
+    the sweep view and figure sheets)."""
+    groups = (("anticrossing", "anticrossings (gap 2t = minimum separation, t the tunnel coupling)"),
+              ("crossing", "crossings (the states keep their character; an upper bound on any gap)"),
+              ("not settled", "not settled (the refinement budget ran out; what is known)"))
+    any_found = False
+    for kind, title in groups:
+        found = [a for a in result.anticrossings if a.kind == kind]
+        if not found:
+            continue
+        any_found = True
+        print(f"{title}: {len(found)}")
+        for a in found:
+            print("  " + a.describe(parameter, energy_unit))
+    if not any_found:
+        print("no close approaches of the tracked levels in this range")
+    if result.refinement_solves:
+        print(f"{result.refinement_solves} extra solve(s) at inserted values settled these")
+    for note in result.notes:
+        print(f"note: {note}")
+
+
+def _print_completeness(result) -> None:
+    """How each point was checked for missed levels."""
+    checks = [c for c in result.checks if c is not None]
+    if not checks:
+        return
+    counted = sum(c.certified for c in checks)
+    probed = [c for c in checks if c.method == "filtered probe"]
+    parts = []
+    if counted:
+        parts.append(f"{counted} by a level count (Sylvester's law of inertia)")
+    if probed:
+        worst = max(c.resolution for c in probed)
+        parts.append(f"{len(probed)} by a filtered random probe (no level missed by more than {worst:.2g} "
+                     f"{result.units.energy_unit} below the highest one)")
+    print(f"no level missed at {len(checks)} of {result.values.size} values: " + "; ".join(parts))
+    bad = int(np.count_nonzero(~result.converged)) if result.converged is not None else 0
+    if bad:
+        print(f"warning: the solver did not converge at {bad} value(s); those points hold partial results")
+    if not result.complete:
+        print("warning: this sweep is incomplete")

@@ -49,6 +49,11 @@ _MAX_DEGREE = 120
 #: residual exceeds this many tolerances
 _WIDEN_FACTOR = 100.0
 ProgressFn = Optional[Callable[[str, float], None]]
+
+
+class _FilterStopped(Exception):
+    """should_stop() returned True inside a filter pass (turned into Cancelled with a partial result)."""
+
 StopFn = Optional[Callable[[], bool]]
 
 
@@ -672,7 +677,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
             order = np.argsort(degree, kind="stable")
             for r0 in range(0, len(rows), width):
                 if should_stop is not None and r0 and should_stop():
-                    raise Cancelled("solve cancelled", partial=None)
+                    raise _FilterStopped
                 take = np.full(width, -1, dtype=np.int64)
                 take[: len(order[r0:r0 + width])] = order[r0:r0 + width]
                 h.chebyshev_rows(rows, fbuf[0][:width], fbuf[1][:width], take, degree, alphas, betas, c)
@@ -692,7 +697,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
                 op.step(cur[s0:], nxt_b[s0:], 2.0 * sigma_new / e, c, -sigma * sigma_new, prev[s0:])
                 sigma = sigma_new
                 if should_stop is not None and step % 8 == 0 and should_stop():
-                    raise Cancelled("solve cancelled", partial=None)
+                    raise _FilterStopped
             for i, d in enumerate(deg):                   # row i finished at step d, in buffer d % 3
                 if d % 3:
                     x[i] = bufs[d % 3][i]
@@ -822,7 +827,12 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
         if _DEBUG:
             print(f"it {iterations}: nlock {nlock} need {need} p {p} cut {cut:.4g} upper {upper:.4g} "
                   f"res[:need] {np.array2string(res[:max(need - nlock, 1)], precision=1)} deg {degree.tolist()}")
-        chebyshev_filter(blk[nlock:m], degree, a0, c, e)
+        try:
+            chebyshev_filter(blk[nlock:m], degree, a0, c, e)
+        except _FilterStopped:
+            # stopped inside the filter: Rayleigh-Ritz on the block as it stands is still a valid result
+            theta, res = orthonormalize_and_rr(nlock)
+            raise Cancelled("solve cancelled", partial=partial()) from None
         theta, res = orthonormalize_and_rr(nlock)
         cut = theta[-1]
 

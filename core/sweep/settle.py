@@ -271,6 +271,15 @@ class Settler:
                 break
         xs = np.array(sorted(pts))
         ds = np.array([pts[x].d for x in xs])
+        if history:
+            # a sample near the centre brackets the gap under the two-level form:
+            # sqrt(d^2 - (s delta)^2) <= gap <= d, delta its distance from the centre (plus the centre's error)
+            near = int(np.argmin(np.abs(xs - x0)))
+            delta = abs(xs[near] - x0) + (x_unc if math.isfinite(x_unc) else 0.0)
+            lo_gap = math.sqrt(max(ds[near] ** 2 - (s * delta) ** 2, 0.0))
+            half = 0.5 * (ds[near] - lo_gap)
+            if not math.isfinite(gap_unc) or half < gap_unc:
+                gap, gap_unc = 0.5 * (ds[near] + lo_gap), max(half, 1e-3 * self.resolution)
         settled = bool(history) and math.isfinite(gap_unc) and gap_unc <= max(2 * GAP_RTOL * gap, self.resolution)
         # the states must exchange character across the approach as the two-level form predicts
         r_meas, eps = _mixing(pts[xs[0]], pts[xs[-1]])
@@ -290,8 +299,9 @@ class Settler:
                            evidence="the states exchange character", **common,
                            reason="the levels approach and turn back; their states mix as a two-level "
                                   "anticrossing predicts")
-        why = ("refinement budget used up" if not settled else
-               "the states do not exchange character as a two-level anticrossing would")
+        why = ("the states do not exchange character as a two-level anticrossing would" if settled else
+               "refinement budget used up" if not self._can_solve() else
+               "the two-level form does not fit the sampled separations well enough")
         return replace(c, kind="not settled", gap_bound=float(ds.min()), evidence=why, **common,
                        reason="the levels come close, but the evidence does not settle the kind of approach")
 

@@ -101,7 +101,8 @@ def test_sweep_command_json_and_table(capsys, tmp_path):
     assert (tmp_path / "sweep.npz").exists() and (tmp_path / "sweep.csv").exists()
     code, out, err = run(capsys, "sweep", str(double), "--vary", "tilt", "--from", "-0.02", "--to", "0.02",
                          "--steps", "5", "--states", "2")
-    assert code == 0 and "anticrossings (1)" in out and "h*kHz" in out
+    assert code == 0 and "anticrossing of levels 0 & 1 at tilt = " in out and "h*kHz" in out
+    assert "no level missed at 5 of 5 values" in out
     assert "a sweep of 5 solves of 2 states" in err          # the estimate comes first
     code, out, err = run(capsys, "sweep", str(double), "--vary", "tilt", "--from", "0", "--to", "1",
                          "--steps", "0")
@@ -124,3 +125,29 @@ def test_solve_count_verifies_against_the_analytic_elliptical_oscillator(capsys)
     assert count["count_below"] == int(np.sum(exact < count["shift"])) == len(doc["energies"])
     code, out, err = run(capsys, "solve", str(SAMPLE), "--states", "6", "--count")
     assert code == 0 and "[ok] count verified" in out and "meV, as many as the solve returned" in out
+
+
+def test_sweep_interrupted_writes_what_was_solved(capsys, tmp_path, monkeypatch):
+    """Ctrl-C during `wellscape sweep --json --out DIR`: the points solved so far are printed and written,
+    marked incomplete, and the exit code is 130 (interrupted)."""
+    import core.sweep.points as points
+    original = points.PointSolver.solve
+    calls = []
+
+    def flaky(self, *args, **kwargs):
+        calls.append(1)
+        if len(calls) == 4:
+            raise KeyboardInterrupt
+        return original(self, *args, **kwargs)
+
+    monkeypatch.setattr(points.PointSolver, "solve", flaky)
+    double = ROOT / "sample_projects" / "atom_tilted_double_well.json"
+    code, out, err = run(capsys, "sweep", str(double), "--vary", "tilt", "--from", "-0.02", "--to", "0.02",
+                         "--steps", "6", "--states", "2", "--json", "--out", str(tmp_path))
+    assert code == 130
+    doc = json.loads(out)
+    assert doc["complete"] is False and len(doc["values"]) == 3
+    assert "incomplete" in err
+    from core.sweep import load_sweep
+    back = load_sweep(tmp_path / "sweep.npz")
+    assert not back.complete and back.values.size == 3

@@ -263,7 +263,8 @@ def test_cancel_raises_with_partial_result():
 
     with pytest.raises(Cancelled) as info:
         lowest_states(h, 6, should_stop=stop)
-    assert info.value.partial is None or info.value.partial.energies.size >= 1
+    part = info.value.partial
+    assert part is not None and part.energies.size >= 1 and not part.converged
 
 
 def test_non_convergence_raises_with_partial_result():

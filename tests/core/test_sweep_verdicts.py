@@ -161,3 +161,59 @@ def test_gap_from_mixing_inverts_the_two_level_model():
     d1, d2 = math.hypot(s * (x1 - x0), g), math.hypot(s * (x2 - x0), g)
     assert gap_from_mixing(r, d1, d2) == pytest.approx(g, rel=1e-9)
     assert gap_from_mixing(0.0, d1, d2) == 0.0
+
+
+def test_interrupt_keeps_the_points_solved():
+    """Ctrl-C (KeyboardInterrupt) during a sweep raises Cancelled carrying the points solved so far."""
+    from core.errors import Cancelled
+
+    def progress(stage, fraction):
+        if fraction >= 0.5:                  # the user presses Ctrl-C after the third of six values
+            raise KeyboardInterrupt
+
+    with pytest.raises(Cancelled) as info:
+        run_sweep(coupled_oscillators(), "wx", np.linspace(0.8, 1.2, 6), states=3, progress=progress)
+    part = info.value.partial
+    assert part is not None and part.values.size == 3 and not part.complete
+    assert any("interrupted" in n for n in part.notes)
+
+
+def test_cancel_with_two_workers_keeps_finished_chunks():
+    """A cancelled process-pool sweep keeps the chunks that had finished (not None)."""
+    import time as _time
+    t0 = []
+
+    def stop():
+        if not t0:
+            t0.append(_time.perf_counter())
+        return _time.perf_counter() - t0[0] > 20.0 or bool(getattr(stop, "flag", False))
+
+    from core.errors import Cancelled
+    values = np.linspace(0.8, 1.2, 8)
+    r_full = run_sweep(coupled_oscillators(), "wx", values, states=3, workers=2)
+    assert r_full.complete and r_full.values.size == 8
+
+    seen = []
+
+    def progress(stage, fraction):
+        seen.append(fraction)
+        stop.flag = fraction >= 0.5           # cancel as soon as the first chunk is in
+
+    with pytest.raises(Cancelled) as info:
+        run_sweep(coupled_oscillators(), "wx", values, states=3, workers=2, should_stop=stop, progress=progress)
+    part = info.value.partial
+    assert part is not None and part.values.size == 4 and not part.complete
+    np.testing.assert_allclose(part.energies, r_full.energies[:4], rtol=1e-9)
+
+
+def test_sweep_starting_at_the_symmetric_point():
+    """The bundled double dot swept from eps = 0 (where inversion parity exists only at the first point)
+    used to crash with KeyError: 'parity_inversion'.  Observables that exist at some points only are NaN
+    elsewhere, and symmetry labels are then not used."""
+    from pathlib import Path
+    from core.project import load_project
+    project = load_project(Path(__file__).resolve().parents[2] / "sample_projects" / "gaas_double_dot.json")
+    r = run_sweep(project, "eps", np.linspace(0.0, 0.002, 4), states=4)
+    assert r.values.size == 4 and r.complete
+    if "parity_inversion" in r.observables:
+        assert np.isnan(r.observables["parity_inversion"][1:]).all()
