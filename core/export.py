@@ -250,11 +250,20 @@ def write_sweep_csv(sweep, path: PathLike, *, by: str = "tracks") -> Path:
         unit = parameter_unit(sweep)
         buf = io.StringIO()
         w = csv.writer(buf, lineterminator="\n")
-        w.writerow([f"at {sweep.parameter}" + (f" [{unit}]" if unit else ""), f"gap [{u.energy_unit}]",
-                    f"tunnel coupling t = gap/2 [{u.energy_unit}]", "track a", "track b", "kind", "gap from"])
+        pu = f" [{unit}]" if unit else ""
+        w.writerow([f"at {sweep.parameter}{pu}", f"at uncertainty{pu}", f"gap [{u.energy_unit}]",
+                    f"gap uncertainty [{u.energy_unit}]", f"gap upper bound [{u.energy_unit}]",
+                    f"tunnel coupling t = gap/2 [{u.energy_unit}]", "track a", "track b", "kind", "evidence",
+                    "refinement solves"])
+
+        def num(x):
+            return "" if x is None or not np.isfinite(float(x)) else repr(float(x))
         for a in acs:
-            w.writerow([repr(float(a.at)), repr(float(a.gap)), repr(float(a.gap) / 2), int(a.tracks[0]),
-                        int(a.tracks[1]), a.kind, "two-level fit" if getattr(a, "fit", None) else "smallest sampled"])
+            w.writerow([repr(float(a.at)), num(getattr(a, "at_uncertainty", None)), repr(float(a.gap)),
+                        num(getattr(a, "gap_uncertainty", None)), num(getattr(a, "gap_bound", None)),
+                        repr(float(a.gap) / 2), int(a.tracks[0]), int(a.tracks[1]), a.kind,
+                        getattr(a, "evidence", "") or ("two-level fit" if getattr(a, "fit", None) else ""),
+                        int(getattr(a, "refinements", 0))])
         _write_text(p.with_name(p.stem + "_anticrossings.csv"), buf.getvalue())
     return p
 

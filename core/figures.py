@@ -632,8 +632,11 @@ def _fan_panel(sweep, parameter_unit: Optional[str]) -> dict:
         eb = _interp(values, tracks[b], at)
         if not (np.isfinite(ea) and np.isfinite(eb)):
             continue
-        acs.append({"at": at, "gap": float(ac.gap), "tracks": [a, b], "kind": str(getattr(ac, "kind", "anticrossing")),
-                    "centre": 0.5 * (ea + eb)})
+        entry = {"at": at, "gap": float(ac.gap), "tracks": [a, b], "kind": str(getattr(ac, "kind", "anticrossing")),
+                 "centre": 0.5 * (ea + eb)}
+        if hasattr(ac, "gap_text"):            # the sweep's own words (value ± uncertainty, or a bound)
+            entry["text"] = ac.gap_text(units.energy_unit)
+        acs.append(entry)
     name = str(sweep.parameter)
     label = f"{name} [{_pretty_unit(unit)}]" if unit else name
     title = f"Levels against {name}"
@@ -1145,11 +1148,15 @@ def _draw_fan(fig, ax, p: dict, t: Template) -> None:
     for k in range(n):
         ax.plot(x, tr[k], color=cmap(0.85 * k / max(1, n - 1)), linewidth=t.line_width)
     acs = sorted(p["anticrossings"], key=lambda a: a["gap"])
-    anti = [a for a in acs if a["kind"] != "crossing"]
+    anti = [a for a in acs if a["kind"] == "anticrossing"]
     for a in acs:
-        if a["kind"] == "crossing":
-            ax.plot([a["at"]], [a["centre"]], marker="o", markersize=1.2 * t.font_pt * 0.5, markerfacecolor="none",
+        if a["kind"] == "crossing":             # the window's mark for a crossing: x
+            ax.plot([a["at"]], [a["centre"]], marker="x", markersize=1.2 * t.font_pt * 0.5,
                     markeredgecolor="black", markeredgewidth=0.6 * t.line_width, linestyle="none")
+        elif a["kind"] == "not settled":
+            q = ax.annotate("?", xy=(a["at"], a["centre"]), fontsize=t.font_pt * 0.8, ha="center", va="center",
+                            color="#8a3b00")
+            _outline(q, 2.0, "white")
     ymin, ymax = np.nanmin(tr), np.nanmax(tr)
     yspan = (ymax - ymin) or 1.0
     for rank, a in enumerate(anti):
@@ -1158,7 +1165,7 @@ def _draw_fan(fig, ax, p: dict, t: Template) -> None:
                     arrowprops={"arrowstyle": "<->", "color": "black", "linewidth": 0.8 * t.line_width,
                                 "shrinkA": 0, "shrinkB": 0})
         if rank < 8:
-            txt = ax.annotate(f"gap {a['gap']:.3g} {p['energy_unit']}", xy=(a["at"], hi),
+            txt = ax.annotate(a.get("text") or f"gap {a['gap']:.3g} {p['energy_unit']}", xy=(a["at"], hi),
                               xytext=(4, 4 + (rank % 2) * 0.9 * t.font_pt), textcoords="offset points",
                               fontsize=t.font_pt * 0.72, ha="left", va="bottom")
             _outline(txt, 2.5, "white")
@@ -1818,14 +1825,18 @@ def _read_panel(r: _Reader, raw, path: str) -> dict:
             if not isinstance(tracks, list) or len(tracks) != 2:
                 r.fail(f"{ap}.tracks", "expected two track numbers")
             kind_ac = a.get("kind")
-            if kind_ac not in ("anticrossing", "crossing"):
-                r.fail(f"{ap}.kind", "expected 'anticrossing' or 'crossing'")
+            if kind_ac not in ("anticrossing", "crossing", "not settled"):
+                r.fail(f"{ap}.kind", "expected 'anticrossing', 'crossing' or 'not settled'")
             gap = r.number(a.get("gap"), f"{ap}.gap")
             if gap < 0:
                 r.fail(f"{ap}.gap", "a gap cannot be negative")
             out_acs.append({"at": r.number(a.get("at"), f"{ap}.at"), "gap": gap,
                             "tracks": [r.integer(t, f"{ap}.tracks", 0, tr.shape[0] - 1) for t in tracks],
                             "kind": kind_ac, "centre": r.number(a.get("centre"), f"{ap}.centre")})
+            if "text" in a:
+                if not isinstance(a["text"], str) or len(a["text"]) > 200:
+                    r.fail(f"{ap}.text", "expected a short text")
+                out_acs[-1]["text"] = a["text"]
         out.update({"values": x, "tracks": tr, "anticrossings": out_acs})
     return out
 

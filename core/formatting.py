@@ -36,6 +36,8 @@ def format_measured(value: float, uncertainty: float, unit: str = "") -> str:
         return f"{value:.6g}{suffix}"
     dec = _decimals_for(uncertainty)
     shown = 0.0 if abs(value) < uncertainty else value
+    if shown == 0.0:
+        return f"0 ± {uncertainty:.2g}{suffix}"
     big = abs(shown) >= 1e6 or uncertainty >= 1e6
     small = (abs(shown) < 1e-3 and shown != 0) or (shown == 0 and uncertainty < 1e-3)
     if big or small or dec > 12:

@@ -326,38 +326,57 @@ class SweepView(QtWidgets.QWidget):
             ea = float(np.interp(at, x, tracks[a]))
             eb = float(np.interp(at, x, tracks[b]))
             lo_e, hi_e = min(ea, eb), max(ea, eb)
-            where = f"{sweep.parameter} = {fmt(at, 4)}"
-            if getattr(ac, "kind", "anticrossing") == "crossing":
-                lines.append(f"tracks {a} and {b} cross at {where} (no gap: they do not couple)")
+            kind = getattr(ac, "kind", "anticrossing")
+            describe = getattr(ac, "describe", None)
+            lines.append(describe(sweep.parameter, u.energy_unit) if describe is not None else
+                         f"tracks {a} and {b}: {kind} at {sweep.parameter} = {fmt(at, 4)}")
+            items = []
+            samples = np.asarray(getattr(ac, "samples", ()) or (), dtype=float).reshape(-1, 3)
+            if samples.size:                    # values inserted to settle it: hollow rings on both levels
+                ring = pg.ScatterPlotItem(np.repeat(samples[:, 0], 2), samples[:, 1:].ravel(), symbol="o", size=7,
+                                          pen=pg.mkPen("#111111", width=1), brush=None)
+                ring.setToolTip(f"{len(samples)} value(s) inserted to settle this close approach")
+                items.append(ring)
+            if kind == "crossing":
                 fx, fe = at / max(x_span, 1e-300), (ea + eb) / 2 / max(e_span, 1e-300)
                 if any(abs(fx - px) < 1e-3 and abs(fe - pe) < 1e-3 for px, pe, _ in marked):
                     continue                            # the same point: one mark
                 mark = pg.ScatterPlotItem([at], [(ea + eb) / 2], symbol="x", size=14,
                                           pen=pg.mkPen("#111111", width=2), brush=None)
-                items = [mark]
+                items.append(mark)
                 if not any(labelled and abs(fx - px) < 0.04 and abs(fe - pe) < 0.04 for px, pe, labelled in marked):
                     text = pg.TextItem("crossing", anchor=(-0.1, 1.0), color="#111111")
                     text.setPos(at, (ea + eb) / 2)
                     items.append(text)
                 marked.add((fx, fe, len(items) > 1))
-            else:
-                gap = float(ac.gap)
+            elif kind == "anticrossing":
                 bar = pg.PlotDataItem([at, at], [lo_e, hi_e], pen=_GAP_PEN, symbol="_", symbolSize=12,
                                       symbolPen=pg.mkPen("#111111", width=2))
-                text = pg.TextItem(f"gap {fmt_energy(gap, u.energy_unit, 3)}", anchor=(-0.08, 0.5),
-                                   color="#111111", fill=pg.mkBrush(255, 255, 255, 210))
+                label = ac.gap_text(u.energy_unit) if hasattr(ac, "gap_text") else \
+                    f"gap {fmt_energy(float(ac.gap), u.energy_unit, 3)}"
+                text = pg.TextItem(label, anchor=(-0.08, 0.5), color="#111111", fill=pg.mkBrush(255, 255, 255, 210))
                 text.setPos(at, (lo_e + hi_e) / 2)
-                lines.append(f"tracks {a} and {b} anticross at {where}: gap {fmt_energy(gap, u.energy_unit, 4)} "
-                             f"(half of it is the coupling between them)")
-                items = [bar, text]
+                items += [bar, text]
+            else:                               # not settled: a question mark where the verdict is open
+                text = pg.TextItem("? not settled", anchor=(-0.08, 0.5), color="#8a3b00",
+                                   fill=pg.mkBrush(255, 255, 255, 210))
+                text.setPos(at, (lo_e + hi_e) / 2)
+                items.append(text)
             for it in items:
                 it.setZValue(15)
                 self.plot.addItem(it)
                 self.gap_items.append(it)
         head = (f"{tracks.shape[0]} tracked levels over {x.size} values of {sweep.parameter}. "
                 "Each track keeps its colour and line style; its number is at its right end.")
+        checks = [c for c in (getattr(sweep, "checks", ()) or ()) if c is not None]
+        if checks:
+            counted = sum(bool(c.certified) for c in checks)
+            head += (f" No level is missing at {len(checks)} of {x.size} values ({counted} proved by a level count, "
+                     f"{len(checks) - counted} checked by a filtered random probe).")
+        if not getattr(sweep, "complete", True):
+            head += " <b>Incomplete sweep</b> (stopped before its last value)."
         self.summary.setText(head + ("<br>" + "<br>".join(lines) if lines else
-                                     "<br>No anticrossings were found in this range."))
+                                     "<br>No close approaches of the tracked levels in this range."))
         self._update_marker()
 
     def _update_marker(self, *_args) -> None:

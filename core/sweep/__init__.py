@@ -51,7 +51,7 @@ DEFAULT_REFINE_FRACTION = 0.5
 
 
 def _solve_chunk(project_dict: dict, base_dir, pname: str, values: list, k: int, count: str,
-                 threads: Optional[int] = None) -> list:
+                 threads: Optional[int] = None, check: bool = True) -> list:
     """Solve a run of consecutive values with warm starts (in a worker process, or locally)."""
     if threads:
         try:
@@ -59,7 +59,7 @@ def _solve_chunk(project_dict: dict, base_dir, pname: str, values: list, k: int,
             numba.set_num_threads(max(1, min(threads, numba.config.NUMBA_NUM_THREADS)))
         except Exception:  # pragma: no cover - best effort only
             pass
-    solver = PointSolver(project_from_dict(project_dict, base_dir=base_dir), pname, k, count=count)
+    solver = PointSolver(project_from_dict(project_dict, base_dir=base_dir), pname, k, count=count, check=check)
     out: list = []
     _solve_run(solver, values, out)
     return out
@@ -159,7 +159,7 @@ def run_sweep(project: Project, parameter: str, values, *, states: Optional[int]
               cluster_timeout: float = 5.0, progress: Optional[Callable[[str, float], None]] = None,
               should_stop: Optional[Callable[[], bool]] = None, refine: bool = True,
               refine_budget: Optional[int] = None, gap_resolution: Optional[float] = None,
-              count: str = "auto") -> SweepResult:
+              count: str = "auto", check_levels: bool = True) -> SweepResult:
     """Solve ``project`` at each of ``values`` of ``parameter`` (see :func:`sweep_targets`).
 
     Parameters
@@ -173,6 +173,8 @@ def run_sweep(project: Project, parameter: str, values, *, states: Optional[int]
         the degeneracy tolerance and 10 solver tolerances, relative to the energy scale.
     count : completeness check per point: "auto" (a level count where cheap, else a filtered
         probe), "always" (a level count at every point) or "never" (the probe only).
+    check_levels : False skips the completeness check (faster, but a level that a warm start
+        cannot see may then be lost; the result's ``checks`` are None).
 
     Returns
     -------
@@ -195,7 +197,7 @@ def run_sweep(project: Project, parameter: str, values, *, states: Optional[int]
         raise InputError(f"count must be 'auto', 'always' or 'never', got {count!r}")
     k = int(states or project.solver.states)
     prepared, pname, _current = prepare_target(project, parameter)
-    solver = PointSolver(prepared, pname, k, count=count)
+    solver = PointSolver(prepared, pname, k, count=count, check=check_levels)
     opts = dict(solver=solver, refine=refine, budget=refine_budget, gap_resolution=gap_resolution,
                 should_stop=should_stop, keep_states=keep_states)
     points: list = []
@@ -205,7 +207,7 @@ def run_sweep(project: Project, parameter: str, values, *, states: Optional[int]
                        on_point=(lambda n: progress("sweep", n / vals.size)) if progress is not None else None)
         else:
             _run_chunks(prepared, pname, vals, k, count, workers, cluster, cluster_timeout, progress,
-                        should_stop, points)
+                        should_stop, points, check_levels)
     except (Cancelled, KeyboardInterrupt) as exc:
         why = "interrupted" if isinstance(exc, KeyboardInterrupt) else "cancelled"
         partial = (_assemble(prepared, parameter, vals, points, t0, False,
@@ -218,7 +220,7 @@ def run_sweep(project: Project, parameter: str, values, *, states: Optional[int]
 
 
 def _run_chunks(prepared, pname, vals, k, count, workers, cluster, cluster_timeout, progress, should_stop,
-                points: list) -> None:
+                points: list, check: bool = True) -> None:
     """Solve consecutive chunks in processes or on a cluster; completed leading chunks go into ``points``
     as they finish (so a cancel keeps them)."""
     nchunks = max(1, min(int(workers or 1), vals.size // 2)) if cluster is None else max(2, int(workers or 2))
@@ -226,7 +228,7 @@ def _run_chunks(prepared, pname, vals, k, count, workers, cluster, cluster_timeo
     chunks = [vals[bounds[c]:bounds[c + 1]].tolist() for c in range(nchunks) if bounds[c + 1] > bounds[c]]
     pdict = project_to_dict(prepared)
     threads = max(1, (os.cpu_count() or 1) // len(chunks))
-    args = [(pdict, prepared.base_dir, pname, ch, k, count, threads) for ch in chunks]
+    args = [(pdict, prepared.base_dir, pname, ch, k, count, threads, check) for ch in chunks]
     if cluster is not None:
         for res in _run_on_cluster(cluster, args, cluster_timeout, progress, should_stop):
             points.extend(res)

@@ -98,7 +98,9 @@ class PointSolver:
     need the two levels of a close approach).
     """
 
-    def __init__(self, project: Project, parameter: str, k: int, *, count: str = "auto", seed: int = 2024):
+    def __init__(self, project: Project, parameter: str, k: int, *, count: str = "auto", seed: int = 2024,
+                 check: bool = True):
+        self.check = bool(check)
         self.project = project
         self.parameter = parameter
         self.k = int(k)
@@ -135,7 +137,7 @@ class PointSolver:
         try:
             h, result, converged = self._solve_once(value, start, should_stop)
             chk, probe = None, None
-            if check:
+            if check and self.check:
                 chk, probe = check_completeness(h, result.spectrum, rng=self.rng, count=self.count,
                                                 previous=previous_probe)
                 recovered = chk.missed
@@ -153,7 +155,7 @@ class PointSolver:
             raise InputError(f"at {self.parameter} = {value:.6g}: only {result.energies.size} states were found")
         if not converged:
             notes.append("the solver did not converge here; the point holds its partial result")
-        if check and recovered and not chk.missed:
+        if recovered and not chk.missed:
             notes[-1] += " (found it)"
         e, obs, st, res = _spin_resolved(result, self.k)
         spec = result.spectrum

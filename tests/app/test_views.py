@@ -473,6 +473,9 @@ def test_states_view_1d_and_3d(qtbot, r1, r3):
 
 # --- sweep view ---------------------------------------------------------------------------------
 
+from core.sweep import Anticrossing  # noqa: E402
+
+
 @dataclasses.dataclass
 class _Anticrossing:
     at: float
@@ -493,7 +496,9 @@ def _two_level_sweep(project):
     tracks = np.tile(np.arange(3)[:, None], (1, eps.size))
     return SimpleNamespace(parameter=next(iter(project.parameters)), values=eps, energies=energies, tracks=tracks,
                            track_energies=lambda: energies.T.copy(),
-                           anticrossings=[_Anticrossing(at=0.0, gap=2 * t, tracks=(0, 1))],
+                           anticrossings=[Anticrossing(at=0.0, gap=2 * t, tracks=(0, 1), kind="anticrossing", index=10,
+                                                       sampled_gap=2 * t, at_uncertainty=1e-4,
+                                                       gap_uncertainty=1e-3, samples=((0.05, -0.3, 0.3),))],
                            observables={}, states=None, project=project, units=None)
 
 
@@ -527,8 +532,8 @@ def test_fan_draws_one_curve_per_track_and_labels_gaps(qtbot, r2):
     for t, curve in enumerate(view.curves):
         np.testing.assert_array_equal(curve.getData()[1], sweep.track_energies()[t])
     texts = [it.toPlainText() for it in view.gap_items if hasattr(it, "toPlainText")]
-    assert texts == ["gap 0.6 meV"]
-    assert "anticross at hw = 0" in view.summary.text()
+    assert texts == ["gap 2t = 0.6000 ± 0.0010 meV"]          # the words of Anticrossing.gap_text
+    assert "anticrossing of levels 0 & 1 at hw = 0 ± 0.0001: gap 2t = 0.6000 ± 0.0010 meV" in view.summary.text()
     assert view.plot.getPlotItem().getAxis("left").labelText == "E [meV]"
 
 

@@ -153,8 +153,9 @@ def test_sweep_csv_by_tracks_and_by_levels(osc, tmp_path):
     assert rows[0][1] == "level 0 [meV]"
     path = write_sweep_csv(sweep, tmp_path / "fan.csv")
     acs = list(csv.reader((tmp_path / "fan_anticrossings.csv").open(encoding="utf-8")))
-    assert acs[0][:3] == ["at magnetic_field[2] [T]", "gap [meV]", "tunnel coupling t = gap/2 [meV]"]
-    assert float(acs[1][1]) == 0.2 and float(acs[1][2]) == 0.1 and acs[1][5] == "anticrossing"
+    assert acs[0][:6] == ["at magnetic_field[2] [T]", "at uncertainty [T]", "gap [meV]", "gap uncertainty [meV]",
+                          "gap upper bound [meV]", "tunnel coupling t = gap/2 [meV]"]
+    assert float(acs[1][2]) == 0.2 and float(acs[1][5]) == 0.1 and acs[1][8] == "anticrossing"
     assert path.exists()
     with pytest.raises(InputError):
         sweep_csv_text(sweep, by="colour")
