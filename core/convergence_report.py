@@ -3,11 +3,11 @@
 The command line (``wellscape converge``), the window's convergence marks and figure sheets all use
 these helpers, so that a level or a splitting reads the same everywhere:
 
-* :func:`format_uncertain` prints a value with its uncertainty, the uncertainty rounded to one or
-  two significant digits and the value to the same decimal place (the rounding rule of the Particle
-  Data Group: two digits when the uncertainty's three leading digits are 100-354, one digit for
-  355-949, 950-999 rounded up to two digits of 1000; Review of Particle Physics, Introduction,
-  recalled from memory);
+* :func:`format_uncertain` prints a value with its uncertainty, the uncertainty to one or two
+  significant digits and the value to the same decimal place (the digit rule of the Particle Data
+  Group: two digits when the uncertainty's three leading digits are 100-354, one digit for 355-949,
+  950-999 as two digits of 1000; Review of Particle Physics, Introduction, recalled from memory).
+  The uncertainty is rounded up, so that a printed error bar is never smaller than the estimate;
 * :func:`level_status` and :func:`order_words` word each level's convergence and the study's order;
 * :func:`format_report` builds the plain-text report.
 """
@@ -33,7 +33,8 @@ def _rounded_uncertainty(u: float) -> tuple:
     else:
         digits = 2 if lead <= 354 else 1
     decimals = digits - 1 - exp
-    return round(u, decimals), decimals
+    step = 10.0 ** -decimals
+    return math.ceil(u / step * (1 - 1e-12)) * step, decimals
 
 
 def _fixed(x: float, decimals: int) -> str:
