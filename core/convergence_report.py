@@ -20,7 +20,7 @@ import numpy as np
 from .convergence import (CONVERGES, DEGENERATE, JUDGE_FRACTION, MARKS, NOT_RESOLVED, RESOLVED, TOO_COARSE,
                           default_degeneracy_tolerance)
 
-__all__ = ["format_uncertain", "format_value", "format_bound", "format_spacing", "format_order", "level_status",
+__all__ = ["coarse_words", "format_uncertain", "format_value", "format_bound", "format_spacing", "format_order", "level_status",
            "order_words", "summary_words", "verdict_legend", "format_report"]
 
 
@@ -143,6 +143,21 @@ def verdict_legend(marks=MARKS) -> str:
             f"{marks[NOT_RESOLVED]} not resolved: within it — {DEGENERATE}, or a splitting or grid artefact "
             f"smaller than the errors; where those errors exceed {JUDGE_FRACTION:g} of the gap to the nearest "
             f"other level: {TOO_COARSE}")
+
+
+def coarse_words(report) -> list:
+    """One short line per cluster too coarse to judge, e.g. "the grid is too coarse to judge levels
+    3, 4, 5: about 303 x 303 x 170 points would be needed (about 6.3 GiB)" (window and captions)."""
+    out = []
+    for c in report.coarse:
+        lv = ", ".join(str(i) for i in c.levels)
+        line = f"{TOO_COARSE}: levels {lv}"
+        if c.needed is not None:
+            line += f"; about {' x '.join(str(p) for p in c.needed.points)} points would be needed"
+            if c.estimate is not None:
+                line += f" ({c.estimate.brief()})"
+        out.append(line)
+    return out
 
 
 def _coarse_lines(report, eu: str) -> list:
