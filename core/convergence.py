@@ -8,24 +8,34 @@ A 210, 307 (1911)): with the scheme's formal order p (2, 4, 6 or 8 for finite di
 
     E(h) = E + a h^p + ...   =>   E ~ E(h2) + (E(h2) - E(h1)) / ((h1/h2)^p - 1)   (h1 > h2).
 
-Error estimates, per level (energy unit):
+Each energy is known only to the solver's accuracy (its residual tolerance times the energy scale,
+:func:`core.eigensolve.energy_scale`, or the level's residual norm if larger); a change between
+grids is judged only when it is ``SIGNIFICANT`` (10) times that.  Each level is then, in words that
+every front end shares (:mod:`core.convergence_report`):
 
-* ``errors`` — of the extrapolated energy: with three or more grids, how much the extrapolation
-  moved when the finest grid was added (the extrapolation from the two finest grids against the one
-  from the next pair); with two grids, the whole correction |E_ext - E_finest| (no better claim
-  can be made).  For the spectral scheme, which converges faster than any power, the finest grid's
-  energy is the estimate and the change from the next grid is its error.
-* ``grid_errors`` — of the energy on the project's own grid: |E_project - E_ext|.
-* Both are at least the largest residual norm of the level's eigenvector on any grid (a rigorous
-  bound on the distance to an eigenvalue of the discrete operator).
+* "converged to the solver's accuracy" — the two finest grids agree within it; the finest grid's
+  energy is the estimate and its error the larger of the last change and the solver's accuracy;
+* "converges (order p ≈ ...)" — both changes significant, same sign and shrinking; the order p
+  from (E1 - E2) / (E2 - E3) = (h1^p - h2^p) / (h2^p - h3^p); Richardson with the scheme's
+  order, the error how much the extrapolation moved when the finest grid was added (for the
+  spectral scheme the finest grid's energy with the last change as its error), widened when the
+  observed order disagrees with the expected one (a step or kink in the potential, or grids not
+  yet in the asymptotic range);
+* "not monotonic" — both changes significant with opposite signs; "not converging yet" — the change
+  grows on the finer grid.  Both take the finest grid's energy with a widened error.
 
-The observed order follows from three grids (E1 - E2) / (E2 - E3) = (h1^p - h2^p) / (h2^p - h3^p).
-When it disagrees with the expected order (grids not yet in the asymptotic range, or a step or kink
-in the potential, which also spoils the spectral scheme), the report warns and widens the errors.
+``grid_errors`` is the error of the energy on the project's own grid, |E_project - E_ext| (at least
+``errors``).  Levels are matched between grids by overlap and numbered as on the project grid.
 
-A splitting between adjacent levels is "resolved" when it exceeds the combined (summed) error
-estimate of its two levels, and "not resolved" otherwise: such a splitting, or an apparent
-degeneracy, is within what the grid can tell.
+Splittings are between adjacent levels of the project grid: "resolved" when the extrapolated
+splitting exceeds the combined (summed) error of its two levels; "not resolved" otherwise, which is
+either "degenerate on every grid (to the solver's accuracy)" (the pair agrees within it on every
+grid: a symmetry, or a splitting below the solver's accuracy), or a splitting within the errors.
+Unresolved levels whose combined errors exceed ``JUDGE_FRACTION`` of the gap to the nearest other
+level are reported as "the grid is too coarse to judge these levels", with the finer grid on which
+the errors would fall below the splittings seen (from the observed order) and its estimated cost;
+the degeneracy tolerance never merges them.  A cancelled or failed study raises with a
+:class:`PartialConvergence`.
 """
 from __future__ import annotations
 
@@ -208,6 +218,7 @@ class ConvergenceReport:
 
     def rows(self) -> list:
         """One dict per level (project-grid numbering) for tables and JSON."""
+        from .convergence_report import level_status
         out = []
         oe = self.order_errors if self.order_errors is not None else np.full(self.levels, np.nan)
         for i in range(self.levels):
@@ -216,7 +227,8 @@ class ConvergenceReport:
                         "grid_error": float(self.grid_errors[i]), "observed_order": float(self.observed_orders[i]),
                         "observed_order_error": float(oe[i]),
                         "solver_accuracy": float(self.noise[i]) if self.noise is not None else None,
-                        "status": self.statuses[i] if i < len(self.statuses) else ""})
+                        "status": self.statuses[i] if i < len(self.statuses) else "",
+                        "convergence": level_status(self, i)})
         return out
 
     def to_dict(self) -> dict:
