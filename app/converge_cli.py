@@ -28,6 +28,19 @@ def _marks(stream) -> dict:
 
 
 _T_IMPORT = time.perf_counter()
+_ASCII = {"\u00b1": "+/-", "\u2248": "~", "\u2014": "-", "\u2013": "-", "\u00b5": "u", "\u2713": "+"}
+
+
+def _printable(text: str, stream) -> str:
+    """``text`` as it is when ``stream`` can show it, else with plain ASCII for its few symbols."""
+    enc = getattr(stream, "encoding", None) or "ascii"
+    try:
+        text.encode(enc)
+        return text
+    except (UnicodeEncodeError, LookupError):
+        for k, v in _ASCII.items():
+            text = text.replace(k, v)
+        return text.encode("ascii", "replace").decode("ascii")
 
 
 def _elapsed_since_start() -> float:
@@ -92,8 +105,8 @@ def cmd_converge(args) -> int:
                             "shift": cert.shift, "reason": cert.reason, "method": cert.method}
         print(json.dumps(_jsonable(doc), indent=1))
         return 0
-    print(format_report(report, marks=_marks(sys.stdout), title=project.title, certificate=cert,
-                       timing=timing))
+    text = format_report(report, marks=_marks(sys.stdout), title=project.title, certificate=cert, timing=timing)
+    print(_printable(text, sys.stdout))
     return 0
 
 

@@ -138,11 +138,15 @@ def summary_words(report, splittings=None, marks=MARKS) -> str:
     return text + (f" ({', '.join(parts)})" if parts else "")
 
 
+def _fraction_words(f: float) -> str:
+    return {0.25: "a quarter", 0.5: "half"}.get(f, f"{f:g}")
+
+
 def verdict_legend(marks=MARKS) -> str:
     return (f"{marks[RESOLVED]} resolved: larger than the combined error of its two levels; "
             f"{marks[NOT_RESOLVED]} not resolved: within it — {DEGENERATE}, or a splitting or grid artefact "
-            f"smaller than the errors; where those errors exceed {JUDGE_FRACTION:g} of the gap to the nearest "
-            f"other level: {TOO_COARSE}")
+            f"smaller than the errors; where those errors exceed {_fraction_words(JUDGE_FRACTION)} of the gap to the "
+            f"nearest other level: {TOO_COARSE}")
 
 
 def coarse_words(report) -> list:
@@ -173,12 +177,12 @@ def _coarse_lines(report, eu: str) -> list:
         if c.needed is None:
             lines.append("  a finer grid: not computable from these grids (no usable convergence order)")
             continue
-        cost = c.estimate.describe() if c.estimate is not None else "cost not estimated"
+        cost = c.estimate.describe().replace(", time not measured", "") if c.estimate is not None else ""
         if (c.estimate is None or c.estimate.seconds is None) and solves:
             # eigensolver time grows like the unknowns times the inverse spacing (Chebyshev degree)
             g = report.grids[-1]
             t = solves[-1] * (c.needed.size / g.size) * (max(c.needed.points) + 1) / (max(g.points) + 1)
-            cost += f"; roughly {_seconds(t)} scaled from the finest grid's eigensolve"
+            cost += f"{', ' if cost else ''}roughly {_seconds(t)} (scaled from the finest grid's eigensolve)"
         lines.append(f"  to judge them: about {' x '.join(str(p) for p in c.needed.points)} points (spacing "
                      f"{format_spacing(c.needed, report.length_unit)}), with errors falling like h^{c.order:.1f}, "
                      f"would bring the errors to about {c.target:.2g} {eu}; {cost}")
@@ -233,7 +237,8 @@ def format_report(report, *, marks=None, title: str = "", certificate=None, timi
     fmt = lambda row: "  ".join(f"{x:>{w}}" for x, w in zip(row, widths)) + "  " + row[-1]   # noqa: E731
     lines += [fmt(head), "-" * (sum(widths) + 2 * len(widths) + len(head[-1]))] + [fmt(r) for r in cells]
     lines += ["", f"observed convergence: {order_words(report)}", "",
-              "splittings between adjacent levels (extrapolated; levels numbered as on the project grid):"]
+              "splittings between adjacent levels (E extrapolated of the upper minus the lower; levels numbered as on "
+              "the project grid):"]
     cells = []
     for s in report.splittings():
         n2 = 2 * max(noise[s.lower], noise[s.upper])

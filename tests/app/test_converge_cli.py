@@ -147,3 +147,13 @@ def test_ascii_marks_when_output_cannot_show_symbols():
         encoding = "ascii"
 
     assert _marks(Ascii()) == {"resolved": "+", "not resolved": "~"}
+
+
+def test_report_on_an_ascii_terminal_has_no_symbol_it_cannot_show():
+    from app.converge_cli import _printable
+
+    class Ascii:
+        encoding = "ascii"
+
+    text = _printable("200 ± 15  converges (order p ≈ 2.0) — ✓ resolved", Ascii())
+    assert text == "200 +/- 15  converges (order p ~ 2.0) - + resolved"
