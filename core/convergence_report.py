@@ -124,7 +124,7 @@ def order_words(report) -> str:
         seen = "converges faster than any power these grids resolve"
     else:
         seen = f"observed order p ≈ {p:.1f}"
-    return f"{report.scheme} scheme, {seen} ({exp} expected)"
+    return f"{report.scheme} scheme, {seen}, {exp} expected"
 
 
 def summary_words(report, splittings=None, marks=MARKS) -> str:
@@ -150,12 +150,12 @@ def verdict_legend(marks=MARKS) -> str:
 
 
 def coarse_words(report) -> list:
-    """One short line per cluster too coarse to judge, e.g. "the grid is too coarse to judge levels
-    3, 4, 5: about 303 x 303 x 170 points would be needed (about 6.3 GiB)" (window and captions)."""
+    """One short line per cluster too coarse to judge, e.g. "the grid is too coarse to judge these levels
+    (3, 4, 5); about 303 x 303 x 170 points would be needed (about 6.3 GiB)" (window and captions)."""
     out = []
     for c in report.coarse:
         lv = ", ".join(str(i) for i in c.levels)
-        line = f"{TOO_COARSE}: levels {lv}"
+        line = f"{TOO_COARSE} ({lv})"
         if c.needed is not None:
             line += f"; about {' x '.join(str(p) for p in c.needed.points)} points would be needed"
             if c.estimate is not None:
@@ -172,7 +172,7 @@ def _coarse_lines(report, eu: str) -> list:
         inner = [abs(s.project_splitting) for s in report.splittings()
                  if s.lower in c.levels and s.upper in c.levels and not s.degenerate]
         gap = "no other level known" if not math.isfinite(c.gap) else f"a {c.gap:.3g} {eu} gap to the nearest other level"
-        lines.append(f"{TOO_COARSE}: levels {lv} (errors up to ± {c.tolerance:.2g} {eu} against {gap}; "
+        lines.append(f"{TOO_COARSE}: {lv} (errors up to ± {c.tolerance:.2g} {eu} against {gap}; "
                      f"splittings {', '.join(f'{x:.2g}' for x in inner)} {eu} on the project grid)")
         if c.needed is None:
             lines.append("  a finer grid: not computable from these grids (no usable convergence order)")

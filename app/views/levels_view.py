@@ -375,7 +375,9 @@ class LevelsView(QtWidgets.QWidget):
                 words.append("≈ degenerate within the grid error")
             else:
                 words.append("✓ a resolved splitting inside")
-        if any(not sp.resolved for sp in below):
+        if any(sp.too_coarse for sp in below):
+            words.append("≈ too coarse to judge against the level below")
+        elif any(not sp.resolved for sp in below):
             words.append("≈ not resolved from the level below")
         return " · ".join(words)
 

@@ -418,7 +418,7 @@ def test_a_grid_too_coarse_says_so_and_the_grid_it_names_resolves_the_splitting(
     assert cluster.levels == (1, 2) and cluster.tolerance > 0.25 * cluster.gap
     assert cluster.needed.points[0] > 14 * 5 and cluster.estimate is not None and cluster.estimate.fits
     text = format_report(r)
-    assert TOO_COARSE + ": levels 1, 2" in text and "to judge them: about" in text
+    assert TOO_COARSE + ": 1, 2 (" in text and "to judge them: about" in text
     assert "degeneracy tolerance" not in text           # no tolerance that would merge levels it cannot judge
     fine = convergence_study(dataclasses.replace(p, grid=cluster.needed))
     sp = fine.splittings()[1]
