@@ -420,6 +420,11 @@ def test_a_grid_too_coarse_says_so_and_the_grid_it_names_resolves_the_splitting(
     text = format_report(r)
     assert TOO_COARSE + ": 1, 2 (" in text and "to judge them: about" in text
     assert "degeneracy tolerance" not in text           # no tolerance that would merge levels it cannot judge
+    import json
+    doc = json.loads(json.dumps(r.to_dict()))
+    assert doc["too_coarse_to_judge"][0]["levels"] == [1, 2]
+    assert doc["too_coarse_to_judge"][0]["needed_points"] == list(cluster.needed.points)
+    assert doc["splittings"][1]["words"] == TOO_COARSE
     fine = convergence_study(dataclasses.replace(p, grid=cluster.needed))
     sp = fine.splittings()[1]
     exact = math.sqrt(1 + ell) - math.sqrt(1 - ell)
