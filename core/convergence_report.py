@@ -208,7 +208,7 @@ def _time_lines(report, timing) -> list:
     extra.append(study)
     if timing.get("count") is not None:
         extra.append(f"level count {timing['count']:.1f} s")
-    return [f"time: {timing['total']:.1f} s for the whole command: " + "; ".join(extra)]
+    return [f"time: {timing['total']:.1f} s from the command's start to this report: " + "; ".join(extra)]
 
 
 def format_report(report, *, marks=None, title: str = "", certificate=None, timing=None) -> str:
