@@ -5,7 +5,8 @@ kinds of check, each in a :class:`app.workers.Job`:
 
 * **convergence** - :func:`core.convergence.convergence_study` of the project as it is now: levels
   on the project's grid and coarser ones, Richardson-extrapolated, with error estimates and a
-  "resolved" / "not resolved" verdict for every splitting.  Its memory and time estimate
+  "resolved" / "not resolved" verdict for every splitting (worded by :mod:`core.convergence_report`:
+  "degenerate on every grid", "the grid is too coarse to judge these levels").  Its memory and time estimate
   (:func:`core.estimate.estimate_convergence`) is reported before the study starts, and a study
   that will not fit is refused with a suggestion.
 * **count** - :func:`core.inertia.certify_count` on the latest result: an independent count of the

@@ -9,7 +9,9 @@ from __future__ import annotations
 
 import json
 import math
+import os
 import sys
+import time
 
 __all__ = ["add_converge_parser", "cmd_converge", "format_report"]
 
@@ -25,67 +27,39 @@ def _marks(stream) -> dict:
         return ASCII_MARKS
 
 
-def _num(x: float, width: int, digits: int = 8) -> str:
-    if x is None or not math.isfinite(x):
-        return f"{'-':>{width}}"
-    return f"{x:>{width}.{digits}g}"
+_T_IMPORT = time.perf_counter()
+_ASCII = {"\u00b1": "+/-", "\u2248": "~", "\u2014": "-", "\u2013": "-", "\u00b5": "u", "\u2713": "+"}
 
 
-def format_report(report, *, marks=None, title: str = "", certificate=None) -> str:
-    """Plain-text report: grids, level table (units in the headers), orders, splittings with verdicts."""
-    from core.convergence import default_degeneracy_tolerance
-    marks = marks or {"resolved": "+", "not resolved": "~"}
-    eu, lu = report.energy_unit, report.length_unit
-    lines = []
-    if title:
-        lines.append(title)
-    order = "faster than any power" if math.isinf(report.expected_order) else f"{report.expected_order:g}"
-    lines.append(f"scheme {report.scheme} (expected order {order}); {len(report.grids)} grids, the project's marked *")
-    names = []
-    for i, (g, h) in enumerate(zip(report.grids, report.spacings)):
-        name = "x".join(str(p) for p in g.points) + ("*" if i == report.reference_index else "")
-        names.append(name)
-        unit = "" if lu == "1" else f" {lu}"
-        lines.append(f"  {name:>14}  spacing {h:.4g}{unit}  ({g.size:,} unknowns)")
-    lines.append("")
-    w = max(16, max(len(n) for n in names) + len(eu) + 6)
-    head = (f"{'level':>5}  " + "  ".join(f"{'E ' + n + ' [' + eu + ']':>{w}}" for n in names)
-            + f"  {'E extrapolated [' + eu + ']':>{w + 4}}  {'+/- [' + eu + ']':>12}  {'order':>6}")
-    lines.append(head)
-    lines.append("-" * len(head))
-    for i in range(report.levels):
-        row = f"{i:>5}  " + "  ".join(_num(report.energies[g, i], w, 10) for g in range(len(report.grids)))
-        po = report.observed_orders[i]
-        po_s = "-" if math.isnan(po) else ("fast" if math.isinf(po) else f"{po:.2f}")
-        row += f"  {_num(report.extrapolated[i], w + 4, 10)}  {_num(report.errors[i], 12, 2)}  {po_s:>6}"
-        status = report.statuses[i] if i < len(report.statuses) else ""
-        if status:
-            row += f"  ({status})"
-        lines.append(row)
-    p = report.observed_order
-    p_s = "not available" if math.isnan(p) else ("faster than any power" if math.isinf(p) else f"{p:.2f}")
-    lines.append("")
-    lines.append(f"observed convergence order: {p_s} (expected {order})")
-    lines.append("")
-    lines.append("splittings between neighbouring levels (extrapolated):")
-    head = (f"{'levels':>9}  {'splitting [' + eu + ']':>18}  {'+/- [' + eu + ']':>12}  "
-            f"{'on project grid [' + eu + ']':>24}  verdict")
-    lines.append(head)
-    lines.append("-" * (len(head) + 12))
-    for s in report.splittings():
-        lines.append(f"{str(s.lower) + '-' + str(s.upper):>9}  {_num(s.splitting, 18, 6)}  {_num(s.error, 12, 2)}  "
-                     f"{_num(s.project_splitting, 24, 6)}  {marks[s.verdict]} {s.verdict}")
-    lines.append(f"  {marks['resolved']} resolved: larger than the combined error of its two levels; "
-                 f"{marks['not resolved']} not resolved: within it (a degeneracy or a grid artefact cannot be told apart)")
-    lines.append("")
-    lines.append(f"degeneracy tolerance from the errors: {default_degeneracy_tolerance(report):.3g} {eu}")
-    if certificate is not None:
-        lines.append(f"level count on the project grid: {certificate.label} "
-                     f"({certificate.describe(report.energy_unit)})")
-    for wmsg in report.warnings:
-        lines.append(f"warning: {wmsg}")
-    lines.append(f"took {report.wall_time:.1f} s")
-    return "\n".join(lines)
+def _printable(text: str, stream) -> str:
+    """``text`` as it is when ``stream`` can show it, else with plain ASCII for its few symbols."""
+    enc = getattr(stream, "encoding", None) or "ascii"
+    try:
+        text.encode(enc)
+        return text
+    except (UnicodeEncodeError, LookupError):
+        for k, v in _ASCII.items():
+            text = text.replace(k, v)
+        return text.encode("ascii", "replace").decode("ascii")
+
+
+def _elapsed_since_start() -> float:
+    """Seconds since this process started (Linux: from /proc; elsewhere since this module was imported,
+    which the command line does at its start)."""
+    try:
+        with open("/proc/self/stat", encoding="ascii") as f:
+            fields = f.read().rsplit(")", 1)[1].split()
+        with open("/proc/uptime", encoding="ascii") as f:
+            uptime = float(f.read().split()[0])
+        return max(0.0, uptime - float(fields[19]) / os.sysconf("SC_CLK_TCK"))
+    except (OSError, ValueError, IndexError, AttributeError):
+        return time.perf_counter() - _T_IMPORT
+
+
+def format_report(report, *, marks=None, title: str = "", certificate=None, timing=None) -> str:
+    """Plain-text report (see :func:`core.convergence_report.format_report`, the wording every front end shares)."""
+    from core.convergence_report import format_report as fmt
+    return fmt(report, marks=marks, title=title, certificate=certificate, timing=timing)
 
 
 def cmd_converge(args) -> int:
@@ -93,6 +67,8 @@ def cmd_converge(args) -> int:
     from core.convergence import convergence_study
     from core.estimate import estimate_convergence
 
+    t_start = time.perf_counter()
+    startup = _elapsed_since_start()
     if args.factor is not None and not (math.isfinite(args.factor) and args.factor > 1.0):
         raise _UsageError(f"--factor must be a number above 1, got {args.factor}")
     if args.levels is not None and args.levels < 1:
@@ -100,8 +76,10 @@ def cmd_converge(args) -> int:
     project = _load(args.project)
     params = _parse_sets(args.set)
     refine = "finer" if args.finer else "coarser"
+    t_est = time.perf_counter()
     est = estimate_convergence(project, factor=args.factor, grids=args.grids, levels=args.levels,
                                parameters=params, refine=refine).check()
+    t_est = time.perf_counter() - t_est
     if not args.json:
         print(f"wellscape: {est.describe()}", file=sys.stderr)
     bar = _Progress("converging", enabled=None if not args.json else False)
@@ -109,19 +87,26 @@ def cmd_converge(args) -> int:
                                parameters=params, refine=refine, progress=bar)
     bar.done()
     cert = None
+    t_count = None
     if args.count:
+        t_count = time.perf_counter()
         from core.inertia import certify_count
         from core.study import project_hamiltonian
         h = project_hamiltonian(project, parameters=params, scheme=report.scheme)[0]
         cert = certify_count(h, report.reference.spectrum)
+        t_count = time.perf_counter() - t_count
+    timing = {"total": startup + time.perf_counter() - t_start, "startup": startup, "estimate": t_est,
+              "count": t_count}
     if args.json:
-        doc = {"title": project.title, "convergence": report.to_dict(), "estimate": est.describe()}
+        doc = {"title": project.title, "convergence": report.to_dict(), "estimate": est.describe(),
+               "time_s": timing}
         if cert is not None:
             doc["count"] = {"certified": cert.certified, "count_below": cert.count_below, "expected": cert.expected,
                             "shift": cert.shift, "reason": cert.reason, "method": cert.method}
         print(json.dumps(_jsonable(doc), indent=1))
         return 0
-    print(format_report(report, marks=_marks(sys.stdout), title=project.title, certificate=cert))
+    text = format_report(report, marks=_marks(sys.stdout), title=project.title, certificate=cert, timing=timing)
+    print(_printable(text, sys.stdout))
     return 0
 
 

@@ -435,10 +435,9 @@ class MainWindow(QMainWindow):
 
     def _on_check_finished(self, kind: str, value) -> None:
         if kind == "convergence":
-            sps = value.splittings()
-            bad = sum(1 for sp in sps if not sp.resolved)
-            self.strip.show_message(f"Convergence checked in {value.wall_time:.1f} s: {len(sps) - bad} splittings "
-                                    f"resolved, {bad} not resolved by the grid (marked in the level diagram).", "ok")
+            from core.convergence_report import summary_words
+            self.strip.show_message(f"Convergence checked in {value.wall_time:.1f} s: {summary_words(value)} "
+                                    "(marked in the level diagram).", "ok")
 
     def _on_check_failed(self, kind: str, message: str) -> None:
         self.strip.show_message(f"The {kind} check stopped: {message}", "warn")

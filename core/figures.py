@@ -588,19 +588,23 @@ def _levels_panel(result, highlight: Sequence[int], convergence=None) -> dict:
         panel["errors"] = errors
         panel["splittings"] = [{"lower": int(sp.lower), "upper": int(sp.upper), "resolved": bool(sp.resolved)}
                                for sp in splittings]
-        panel["check"] = (f"convergence checked on {len(convergence.grids)} grids: "
-                          f"{MARKS[RESOLVED]} resolved, {MARKS[NOT_RESOLVED]} not resolved by the grid")
+        from .convergence_report import summary_words
+        panel["check"] = f"convergence checked on {len(convergence.grids)} grids: {summary_words(convergence, splittings)}"
     panel["decimals"] = _decimals(np.array([float(np.mean(e[g])) for g in groups]), ignore_below=0.01)
     return panel
 
 
+def _coarse_words(report) -> list:
+    from .convergence_report import coarse_words
+    return coarse_words(report)
+
+
 def convergence_order_text(report) -> str:
     """How a convergence check extrapolated, in a few words (for captions and status lines)."""
+    from .convergence_report import order_words
     if not np.isfinite(report.expected_order):
-        return "spectral scheme: the finest grid's energies, the change from the next grid as their error"
-    seen = (f"observed order {report.observed_order:.2g}" if np.isfinite(report.observed_order)
-            else "order not measured")
-    return f"Richardson extrapolation, {seen}, {report.expected_order:g} expected"
+        return f"{order_words(report)}: the finest grid's energies, the change from the next grid as their error"
+    return f"Richardson extrapolation, {order_words(report)}"
 
 
 def _fan_panel(sweep, parameter_unit: Optional[str]) -> dict:
@@ -749,7 +753,8 @@ def build_sheet(result=None, *, sweep=None, layout: Optional[str] = None, templa
         caption.append(f"Levels checked on {len(convergence.grids)} grids ({convergence_order_text(convergence)}): "
                        f"{MARKS[RESOLVED]} splitting larger than the combined "
                        f"error estimate of its two levels, {MARKS[NOT_RESOLVED]} within it; error bars: estimated grid "
-                       f"error of each level.")
+                       f"error of each level."
+                       + "".join(f" {line[0].upper()}{line[1:]}." for line in _coarse_words(convergence)))
     from .units import get_units
     u = get_units(project.units)
     if title is None:

@@ -20,6 +20,9 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
+from core.convergence import DEGENERATE, TOO_COARSE
+from core.convergence_report import (coarse_words, format_bound, format_uncertain, level_status, order_words,
+                                     summary_words)
 from core.errors import WellscapeError
 
 from . import colormaps
@@ -364,11 +367,17 @@ class LevelsView(QtWidgets.QWidget):
         below = [sp for sp in sps if sp.upper in group and sp.lower not in group]
         words = []
         if inside:
-            if all(not sp.resolved for sp in inside):
+            if any(sp.too_coarse for sp in inside):
+                words.append(f"≈ {TOO_COARSE}")
+            elif all(sp.degenerate for sp in inside):
+                words.append(f"≈ {DEGENERATE}")
+            elif all(not sp.resolved for sp in inside):
                 words.append("≈ degenerate within the grid error")
             else:
                 words.append("✓ a resolved splitting inside")
-        if any(not sp.resolved for sp in below):
+        if any(sp.too_coarse for sp in below):
+            words.append("≈ too coarse to judge against the level below")
+        elif any(not sp.resolved for sp in below):
             words.append("≈ not resolved from the level below")
         return " · ".join(words)
 
@@ -491,17 +500,13 @@ class LevelsView(QtWidgets.QWidget):
                                         + " — is a splitting physics or a grid artefact? “Check convergence” tells")
             return
         sps = self.splittings()
-        n_ok = sum(1 for sp in sps if sp.resolved)
-        n_no = len(sps) - n_ok
-        if np.isfinite(rep.expected_order):
-            order = (f"observed order {rep.observed_order:.2g}, {rep.expected_order:g} expected"
-                     if np.isfinite(rep.observed_order) else f"order not measured, {rep.expected_order:g} expected")
-        else:
-            order = "spectral scheme"
-        text = (f"<b>convergence checked</b> on {len(rep.grids)} grids ({order}) · "
-                f"<span style='color:{_MARK_COLORS[True]}'>✓ {n_ok} resolved</span>, "
-                f"<span style='color:{_MARK_COLORS[False]}'>≈ {n_no} not resolved</span> · "
+        ok_part, rest = summary_words(rep, sps).split(", ", 1)
+        text = (f"<b>convergence checked</b> on {len(rep.grids)} grids ({order_words(rep)}) · "
+                f"<span style='color:{_MARK_COLORS[True]}'>{ok_part}</span>, "
+                f"<span style='color:{_MARK_COLORS[False]}'>{rest}</span> · "
                 f"error bars: estimated grid error of each level")
+        for line in coarse_words(rep):
+            text += "<br>≈ " + line
         if rep.warnings:
             text += "<br><span style='color:#9b1c1c'>" + "; ".join(str(w) for w in rep.warnings) + "</span>"
         self.converge_label.setText(text)
@@ -673,13 +678,17 @@ class LevelsView(QtWidgets.QWidget):
         errors = self.level_errors()
         if rep is not None and errors is not None and np.isfinite(errors[level]):
             eu = u.energy_unit
+            pu = pretty_unit(eu)
             parts.append(f"grid error ±{fmt_energy(errors[level], eu, 2)}; extrapolated "
-                         f"{fmt_energy(rep.extrapolated[level], eu, 7)} ± {fmt_energy(rep.errors[level], eu, 2)}")
+                         f"{format_uncertain(rep.extrapolated[level], rep.errors[level], pu)}; "
+                         f"{level_status(rep, level)}")
             for sp in self.splittings():
                 if level in (sp.lower, sp.upper):
                     other = sp.upper if level == sp.lower else sp.lower
-                    parts.append(f"splitting to level {other}: {fmt_energy(sp.splitting, eu, 3)} ± "
-                                 f"{fmt_energy(sp.error, eu, 2)}, {sp.mark} {sp.verdict}")
+                    val = (format_bound(sp.error, pu) if sp.degenerate
+                           else format_uncertain(sp.splitting, sp.error, pu))
+                    words = "" if sp.words == sp.verdict else f": {sp.words}"
+                    parts.append(f"splitting to level {other}: {val}, {sp.mark} {sp.verdict}{words}")
         return " · ".join(parts)
 
     def _on_mouse_moved(self, scene_pos) -> None:

@@ -12,9 +12,13 @@ import json
 import math
 
 import pytest
+import re
+from pathlib import Path
 
 import app.cli as cli
 from app.converge_cli import add_converge_parser, format_report
+
+SAMPLES = Path(__file__).resolve().parents[2] / "sample_projects"
 
 PROJECT = {
     "schema_version": 2, "title": "Elliptical trap of our own", "units": "dimensionless",
@@ -58,16 +62,35 @@ def project_file(tmp_path):
 def test_text_report_has_units_orders_and_verdicts(run, project_file):
     code, out, err = run("converge", project_file, "--levels", "3")
     assert code == 0, err
-    assert "E extrapolated [1]" in out and "splitting [1]" in out and "+/- [1]" in out
-    assert "observed convergence order: 2.0" in out or "observed convergence order: 2.1" in out
+    assert "E extrapolated [1]" in out and "splitting [1]" in out and "on project grid [1]" in out
+    assert re.search(r"observed convergence: fd2 scheme, observed order p ≈ (1\.9|2\.0|2\.1), 2 expected", out)
     assert "48x48*" in out and "21x21" in out and "32x32" in out
-    # every verdict carries a symbol and a word
-    verdict_lines = [ln for ln in out.splitlines() if ln.rstrip().endswith("resolved") and "-" in ln.split()[0]]
-    assert len(verdict_lines) == 2
-    for ln in verdict_lines:
-        assert ln.split()[-1] == "resolved"
-        assert ln.split()[-2] in ("\u2713", "\u2248", "+", "~", "not")
-    assert "degeneracy tolerance from the errors" in out
+    assert "spacing 0.2449 x 0.2449" in out                         # 12 / 49 per axis
+    # every level: value ± error to the digits the error allows, and its convergence in words
+    rows = [ln for ln in out.splitlines() if re.match(r"\s+[0-2]\s", ln)]
+    assert len(rows) == 3
+    for ln in rows:
+        assert re.search(r"\d\.\d+ ± 0\.\d+\s+converges \(order p ≈ \d\.\d\)$", ln), ln
+    # every verdict carries a symbol and words
+    verdicts = [ln for ln in out.splitlines() if re.match(r"\s+\d-\d\s", ln)]
+    assert len(verdicts) == 2
+    assert verdicts[0].endswith("✓ resolved") or verdicts[0].endswith("+ resolved")
+    assert verdicts[1].endswith("resolved")
+    assert "not monotonic" not in out
+    assert re.search(r"time: \d+\.\d s from the command.s start to this report: start-up and loading .*; estimate .*; the study "
+                     r".*eigensolves .* on 21x21, .* on 32x32, .* on 48x48", out)
+
+
+def test_single_dot_sample_reads_true(run):
+    """The bundled single dot (spectral scheme, converged far below the solver's accuracy between its two
+    finest grids): no level is called "not monotonic"; the exact doublets are degenerate on every grid."""
+    code, out, err = run("converge", str(SAMPLES / "gaas_single_dot.json"))
+    assert code == 0, err
+    assert "not monotonic" not in out and "converged to the solver's accuracy" in out
+    for pair in ("1-2", "6-7", "8-9"):
+        line = next(ln for ln in out.splitlines() if ln.strip().startswith(pair + " "))
+        assert "degenerate on every grid (to the solver's accuracy)" in line and "< " in line
+    assert "spacing 6.420 x 6.420 nm" in out
 
 
 def test_json_output_matches_core_and_exact_splitting(run, project_file):
@@ -78,8 +101,10 @@ def test_json_output_matches_core_and_exact_splitting(run, project_file):
     assert conv["scheme"] == "fd2" and len(conv["levels"]) == 3 and len(conv["grids"]) == 3
     pair = [s for s in conv["splittings"] if {s["lower"], s["upper"]} == {1, 2}][0]
     exact = math.sqrt(1.01) - math.sqrt(0.99)
-    assert pair["verdict"] == "resolved"
+    assert pair["verdict"] == "resolved" and pair["words"] == "resolved"
     assert abs(pair["splitting"] - exact) <= pair["error"]
+    assert all(lv["status"] == "converges" for lv in conv["levels"])
+    assert doc["time_s"]["total"] >= sum(conv["solve_times_s"]) and doc["time_s"]["count"] > 0
     assert doc["count"]["certified"] is True and doc["count"]["count_below"] == doc["count"]["expected"]
 
 
@@ -122,3 +147,13 @@ def test_ascii_marks_when_output_cannot_show_symbols():
         encoding = "ascii"
 
     assert _marks(Ascii()) == {"resolved": "+", "not resolved": "~"}
+
+
+def test_report_on_an_ascii_terminal_has_no_symbol_it_cannot_show():
+    from app.converge_cli import _printable
+
+    class Ascii:
+        encoding = "ascii"
+
+    text = _printable("200 ± 15  converges (order p ≈ 2.0) — ✓ resolved", Ascii())
+    assert text == "200 +/- 15  converges (order p ~ 2.0) - + resolved"
