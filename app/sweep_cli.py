@@ -103,16 +103,8 @@ def _print_completeness(result) -> None:
     checks = [c for c in result.checks if c is not None]
     if not checks:
         return
-    counted = sum(c.certified for c in checks)
-    probed = [c for c in checks if c.method == "filtered probe"]
-    parts = []
-    if counted:
-        parts.append(f"{counted} by a level count (Sylvester's law of inertia)")
-    if probed:
-        worst = max(c.resolution for c in probed)
-        parts.append(f"{len(probed)} by a filtered random probe (no level missed by more than {worst:.2g} "
-                     f"{result.units.energy_unit} below the highest one)")
-    print(f"no level missed at {len(checks)} of {result.values.size} values: " + "; ".join(parts))
+    from core.sweep import completeness_summary
+    print(completeness_summary(checks, result.values.size, result.units.energy_unit))
     bad = int(np.count_nonzero(~result.converged)) if result.converged is not None else 0
     if bad:
         print(f"warning: the solver did not converge at {bad} value(s); those points hold partial results")

@@ -13,6 +13,8 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtWidgets
 
+from core.sweep import completeness_summary
+
 from . import colormaps
 from .common import (HintStack, NumberBox, axis_title, fmt, fmt_energy, make_plot, set_titles, show_message,
                      status_label)
@@ -370,9 +372,9 @@ class SweepView(QtWidgets.QWidget):
                 "Each track keeps its colour and line style; its number is at its right end.")
         checks = [c for c in (getattr(sweep, "checks", ()) or ()) if c is not None]
         if checks:
-            counted = sum(bool(c.certified) for c in checks)
-            head += (f" No level is missing at {len(checks)} of {x.size} values ({counted} proved by a level count, "
-                     f"{len(checks) - counted} checked by a filtered random probe).")
+            head += " " + completeness_summary(checks, x.size, u.energy_unit) + "."
+        for note in getattr(sweep, "notes", ()) or ():
+            lines.append(f"note: {note}")
         if not getattr(sweep, "complete", True):
             head += " <b>Incomplete sweep</b> (stopped before its last value)."
         self.summary.setText(head + ("<br>" + "<br>".join(lines) if lines else

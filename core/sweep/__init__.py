@@ -42,9 +42,25 @@ from .settle import Settler
 from .targets import SWEEP_PARAMETER, prepare_target, sweep_targets
 from .tracking import align_degenerate, labels_from_observables, overlap_matrices, track_levels
 
-__all__ = ["Anticrossing", "CloseApproach", "CompletenessCheck", "SweepResult", "run_sweep", "save_sweep",
+__all__ = ["completeness_summary", "Anticrossing", "CloseApproach", "CompletenessCheck", "SweepResult", "run_sweep", "save_sweep",
            "load_sweep", "sweep_targets", "track_levels", "find_close_approaches", "SWEEP_PARAMETER",
            "DEFAULT_REFINE_FRACTION"]
+
+def completeness_summary(checks, points: int, energy_unit: str) -> str:
+    """One sentence on how a sweep's points were checked for missed levels (the command line and the
+    sweep view say the same)."""
+    checks = [c for c in checks if c is not None]
+    counted = sum(bool(c.certified) for c in checks)
+    probed = [c for c in checks if c.method == "filtered probe"]
+    parts = []
+    if counted:
+        parts.append(f"{counted} by a level count (Sylvester's law of inertia: a proof)")
+    if probed:
+        worst = max(c.resolution for c in probed)
+        parts.append(f"{len(probed)} by a filtered random probe (no level missed by more than {worst:.2g} "
+                     f"{energy_unit} below the highest one)")
+    return f"checked for missed levels at {len(checks)} of {points} values: " + "; ".join(parts)
+
 
 #: by default the refinement of close approaches may use this fraction of the sweep's own solves
 DEFAULT_REFINE_FRACTION = 0.5

@@ -102,7 +102,7 @@ def test_sweep_command_json_and_table(capsys, tmp_path):
     code, out, err = run(capsys, "sweep", str(double), "--vary", "tilt", "--from", "-0.02", "--to", "0.02",
                          "--steps", "5", "--states", "2")
     assert code == 0 and "anticrossing of levels 0 & 1 at tilt = " in out and "h*kHz" in out
-    assert "no level missed at 5 of 5 values" in out
+    assert "checked for missed levels at 5 of 5 values" in out
     assert "a sweep of 5 solves of 2 states" in err          # the estimate comes first
     code, out, err = run(capsys, "sweep", str(double), "--vary", "tilt", "--from", "0", "--to", "1",
                          "--steps", "0")
