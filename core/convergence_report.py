@@ -17,66 +17,12 @@ import math
 
 import numpy as np
 
+from .formatting import _fixed, _rounded_uncertainty, format_bound, format_uncertain, format_value  # noqa: F401
 from .convergence import (CONVERGES, DEGENERATE, JUDGE_FRACTION, MARKS, NOT_RESOLVED, RESOLVED, TOO_COARSE,
                           default_degeneracy_tolerance)
 
 __all__ = ["coarse_words", "format_uncertain", "format_value", "format_bound", "format_spacing", "format_order", "level_status",
            "order_words", "summary_words", "verdict_legend", "format_report"]
-
-
-def _rounded_uncertainty(u: float) -> tuple:
-    """``(rounded uncertainty, decimals)`` by the three-digit rule above; decimals may be negative."""
-    exp = math.floor(math.log10(u))
-    lead = int(u / 10.0 ** (exp - 2) + 1e-9)          # the three leading digits, 100..999
-    if lead >= 950:
-        exp, digits = exp + 1, 2
-    else:
-        digits = 2 if lead <= 354 else 1
-    decimals = digits - 1 - exp
-    step = 10.0 ** -decimals
-    return math.ceil(u / step * (1 - 1e-12)) * step, decimals
-
-
-def _fixed(x: float, decimals: int) -> str:
-    if decimals <= 0:
-        return f"{round(x, decimals):.0f}"
-    return f"{x:.{decimals}f}"
-
-
-def format_uncertain(value: float, uncertainty: float, unit: str = "") -> str:
-    """``value ± uncertainty [unit]`` to the digits the uncertainty allows, e.g. "199.8 ± 1.4 meV";
-    "-" for a missing value, "<value> (error unknown)" when the uncertainty is not known."""
-    tail = f" {unit}" if unit and unit != "1" else ""
-    if value is None or not math.isfinite(value):
-        return "-"
-    if uncertainty is None or not math.isfinite(uncertainty) or uncertainty <= 0:
-        return f"{value:.4g}{tail} (error unknown)"
-    u, dec = _rounded_uncertainty(float(uncertainty))
-    if dec > 6 and abs(value) < 10.0 ** -3:
-        # a small number with a small uncertainty: one power of ten for both
-        exp = math.floor(math.log10(max(abs(value), u)))
-        s = 10.0 ** exp
-        return f"({_fixed(value / s, dec + exp)} ± {_fixed(u / s, dec + exp)})e{exp:+03d}{tail}"
-    return f"{_fixed(value, dec)} ± {_fixed(u, dec)}{tail}"
-
-
-def format_value(value: float, uncertainty: float) -> str:
-    """The value alone, to the digits ``uncertainty`` allows (for a table whose header says the
-    uncertainty, e.g. energies known to the solver's accuracy)."""
-    if value is None or not math.isfinite(value):
-        return "-"
-    if uncertainty is None or not math.isfinite(uncertainty) or uncertainty <= 0:
-        return f"{value:.4g}"
-    _, dec = _rounded_uncertainty(float(uncertainty))
-    if dec > 6 and abs(value) < 10.0 ** -3:
-        return f"{value:.1e}"
-    return _fixed(value, dec)
-
-
-def format_bound(bound: float, unit: str = "") -> str:
-    """An upper bound, e.g. "< 2.1e-05 meV" (two significant digits: a bound, not a measurement)."""
-    tail = f" {unit}" if unit and unit != "1" else ""
-    return f"< {bound:.2g}{tail}"
 
 
 def format_spacing(grid, unit: str = "") -> str:

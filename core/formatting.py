@@ -1,59 +1,92 @@
 """How numbers are written for people: a value to the digits its uncertainty allows, bounds, and
 energies in a readable sub-unit (µeV, h·Hz).  One policy, used by every report.
 
-Rounding rule (common practice in experimental reporting): the uncertainty is written with two
-significant digits and the value to the same decimal place; a value within its uncertainty of zero
-is written as 0.
+Rounding rule: the uncertainty to one or two significant digits and the value to the same decimal
+place (the digit rule of the Particle Data Group: two digits when the uncertainty's three leading
+digits are 100-354, one digit for 355-949, 950-999 as two digits of 1000; Review of Particle
+Physics, Introduction, recalled from memory).  The uncertainty is rounded up, so that a printed
+error bar is never smaller than the estimate.
 """
 from __future__ import annotations
 
 import math
 
-__all__ = ["format_measured", "format_bound", "readable_energy", "format_energy", "ENERGY_SUBUNITS"]
+__all__ = ["format_uncertain", "format_value", "format_measured", "format_bound", "readable_energy", "format_energy",
+           "ENERGY_SUBUNITS"]
 
 #: energy units with a smaller unit that reads better for small numbers (factor from the unit)
 ENERGY_SUBUNITS = {"meV": ("µeV", 1e3), "h*kHz": ("h*Hz", 1e3), "hartree": ("mhartree", 1e3),
                    "eV": ("meV", 1e3)}
 
 
-def _decimals_for(uncertainty: float, significant: int = 2) -> int:
-    """Number of decimals that shows ``significant`` digits of ``uncertainty`` (may be negative)."""
-    if not (uncertainty > 0 and math.isfinite(uncertainty)):
-        return 6
-    return significant - 1 - int(math.floor(math.log10(uncertainty)))
+def _rounded_uncertainty(u: float) -> tuple:
+    """``(rounded uncertainty, decimals)`` by the three-digit rule above; decimals may be negative."""
+    exp = math.floor(math.log10(u))
+    lead = int(u / 10.0 ** (exp - 2) + 1e-9)          # the three leading digits, 100..999
+    if lead >= 950:
+        exp, digits = exp + 1, 2
+    else:
+        digits = 2 if lead <= 354 else 1
+    decimals = digits - 1 - exp
+    step = 10.0 ** -decimals
+    return math.ceil(u / step * (1 - 1e-12)) * step, decimals
 
 
-def format_measured(value: float, uncertainty: float, unit: str = "") -> str:
-    """``1.2345 ± 0.0012 unit``: the value to the digits its uncertainty allows.
+def _fixed(x: float, decimals: int) -> str:
+    if decimals <= 0:
+        return f"{round(x, decimals):.0f}"
+    return f"{x:.{decimals}f}"
 
-    A value whose magnitude is below its uncertainty is printed as ``0 ± u``.  Without a finite
-    positive uncertainty the value gets 6 significant digits.
-    """
-    suffix = f" {unit}" if unit else ""
-    if not math.isfinite(value):
-        return f"{value}{suffix}"
-    if not (uncertainty > 0 and math.isfinite(uncertainty)):
-        return f"{value:.6g}{suffix}"
-    dec = _decimals_for(uncertainty)
-    shown = 0.0 if abs(value) < uncertainty else value
-    if shown == 0.0:
-        return f"0 ± {uncertainty:.2g}{suffix}"
-    big = abs(shown) >= 1e6 or uncertainty >= 1e6
-    small = (abs(shown) < 1e-3 and shown != 0) or (shown == 0 and uncertainty < 1e-3)
-    if big or small or dec > 12:
-        # scientific form with a shared exponent
-        exp = int(math.floor(math.log10(abs(shown)))) if shown != 0 else int(math.floor(math.log10(uncertainty)))
-        scale = 10.0 ** exp
-        d = max(0, _decimals_for(uncertainty / scale))
-        return f"({shown / scale:.{d}f} ± {uncertainty / scale:.{d}f})e{exp}{suffix}"
-    dec = max(dec, 0)
-    return f"{shown:.{dec}f} ± {uncertainty:.{dec}f}{suffix}"
+
+def format_uncertain(value: float, uncertainty: float, unit: str = "") -> str:
+    """``value ± uncertainty [unit]`` to the digits the uncertainty allows, e.g. "199.8 ± 1.4 meV";
+    "-" for a missing value, "<value> (error unknown)" when the uncertainty is not known."""
+    tail = f" {unit}" if unit and unit != "1" else ""
+    if value is None or not math.isfinite(value):
+        return "-"
+    if uncertainty is None or not math.isfinite(uncertainty) or uncertainty <= 0:
+        return f"{value:.4g}{tail} (error unknown)"
+    u, dec = _rounded_uncertainty(float(uncertainty))
+    if dec > 6 and abs(value) < 10.0 ** -3:
+        # a small number with a small uncertainty: one power of ten for both
+        exp = math.floor(math.log10(max(abs(value), u)))
+        s = 10.0 ** exp
+        return f"({_fixed(value / s, dec + exp)} ± {_fixed(u / s, dec + exp)})e{exp:+03d}{tail}"
+    return f"{_fixed(value, dec)} ± {_fixed(u, dec)}{tail}"
+
+
+def format_value(value: float, uncertainty: float) -> str:
+    """The value alone, to the digits ``uncertainty`` allows (for a table whose header says the
+    uncertainty, e.g. energies known to the solver's accuracy)."""
+    if value is None or not math.isfinite(value):
+        return "-"
+    if uncertainty is None or not math.isfinite(uncertainty) or uncertainty <= 0:
+        return f"{value:.4g}"
+    _, dec = _rounded_uncertainty(float(uncertainty))
+    if dec > 6 and abs(value) < 10.0 ** -3:
+        return f"{value:.1e}"
+    return _fixed(value, dec)
 
 
 def format_bound(bound: float, unit: str = "", relation: str = "<") -> str:
-    """``< 3.1e-07 unit``: an upper (or lower) bound, two significant digits."""
-    suffix = f" {unit}" if unit else ""
-    return f"{relation} {bound:.2g}{suffix}"
+    """A bound, e.g. "< 2.1e-05 meV" (two significant digits: a bound, not a measurement)."""
+    tail = f" {unit}" if unit and unit != "1" else ""
+    return f"{relation} {bound:.2g}{tail}"
+
+
+def format_measured(value: float, uncertainty: float, unit: str = "") -> str:
+    """``1.2345 ± 0.0012 unit`` (:func:`format_uncertain`), with two differences for swept positions and
+    gaps: a value within its uncertainty of zero is printed as ``0 ± u``, and without a finite positive
+    uncertainty the value gets 6 significant digits."""
+    suffix = f" {unit}" if unit and unit != "1" else ""
+    if value is None or not math.isfinite(value):
+        return f"{value}{suffix}"
+    if uncertainty is None or not (uncertainty > 0 and math.isfinite(uncertainty)):
+        return f"{value:.6g}{suffix}"
+    if abs(value) < uncertainty:
+        u, _ = _rounded_uncertainty(float(uncertainty))
+        return f"0 ± {u:.2g}{suffix}"
+    return format_uncertain(value, uncertainty, unit)
 
 
 def readable_energy(value: float, unit: str) -> tuple:

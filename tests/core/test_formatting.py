@@ -1,7 +1,9 @@
 """How numbers are written: value to the digits its uncertainty allows, bounds, readable sub-units.
 
-The rounding rule (uncertainty to two significant digits, the value to the same decimal place) is
-common practice in experimental reporting."""
+Digit rule of the Particle Data Group (Review of Particle Physics, Introduction; recalled from
+memory): the uncertainty gets two significant digits when its three leading digits are 100-354, one
+for 355-949, and 950-999 round up to two digits of 1000; the value takes the same decimal place.
+The uncertainty is rounded up."""
 from __future__ import annotations
 
 import math
@@ -10,11 +12,11 @@ from core.formatting import format_bound, format_energy, format_energy_bound, fo
 
 
 def test_value_to_the_digits_of_its_uncertainty():
-    assert format_measured(1.8901749, 6.2e-6, "T") == "1.8901749 ± 0.0000062 T"
-    assert format_measured(0.0456, 0.0004, "meV") == "0.04560 ± 0.00040 meV"
-    assert format_measured(4.56e-7, 4e-9) == "(4.560 ± 0.040)e-7"
+    assert format_measured(1.8901749, 6.2e-6, "T") == "1.890175 ± 0.000007 T"
+    assert format_measured(0.0456, 0.0004, "meV") == "0.0456 ± 0.0004 meV"
     assert format_measured(123456.0, 3.0) == "123456.0 ± 3.0"
-    assert format_measured(2.71828, 0.05) == "2.718 ± 0.050"
+    assert format_measured(2.71828, 0.012) == "2.718 ± 0.012"
+    assert format_measured(2.71828, 0.0971) == "2.72 ± 0.10"
 
 
 def test_a_value_within_its_uncertainty_of_zero_is_zero():
@@ -30,6 +32,6 @@ def test_small_energies_in_a_readable_sub_unit():
     assert readable_energy(0.0457, "meV") == (1e3, "µeV")
     assert readable_energy(2.0, "meV") == (1.0, "meV")
     assert readable_energy(0.02, "h*kHz") == (1e3, "h*Hz")
-    assert format_energy(0.0456, 0.0004, "meV") == "45.60 ± 0.40 µeV"
+    assert format_energy(0.0456, 0.0004, "meV") == "45.6 ± 0.4 µeV"
     assert format_energy_bound(3.1e-7, "meV") == "< 0.00031 µeV"
     assert format_bound(2.5, "T", ">") == "> 2.5 T"
