@@ -1,0 +1,137 @@
+"""Two interacting electrons (core.two_electron) against the relative-motion reference and exact states.
+
+Dimensionless units (hbar = m = |q| = 1), a parabolic dot of frequency omega and the repulsion
+kappa / r.  References: tests/core/radial_reference.py (the centre-of-mass / relative-motion
+separation, Merkt, Huser, Wagner, Phys. Rev. B 43, 7320 (1991), its radial equation solved with
+scipy's eigh_tridiagonal), and closed-form relative states (Taut, J. Phys. A 27, 1045 (1994)).
+"""
+import numpy as np
+import pytest
+from scipy.optimize import brentq
+
+from core.errors import Cancelled, InputError, MemoryLimitError
+from core.grid import Grid
+from core.solve import solve_states
+from core import two_electron as te
+from tests.core.radial_reference import relative_energy, two_electron_energy
+
+
+def _dot(grid, states, kappa, *, omega=1.0, b=0.0, tolerance=1e-3):
+    sp = solve_states(grid, lambda x, y: 0.5 * omega**2 * (x**2 + y**2), states=states, scheme="spectral",
+                      magnetic_field=[0.0, 0.0, b] if b else None)
+    return te.two_electron_levels(grid, sp.energies, sp.states, strength=kappa, groups=sp.groups,
+                                  tolerance=tolerance)
+
+
+def test_taut_closed_form_relative_states():
+    """Closed-form relative states R = r^|m| (1 + kappa r / (2|m| + 1)) exp(-omega r^2 / 4), exact when
+    omega = kappa^2 / (2|m| + 1), with eps_rel = (|m| + 2) omega (the 2D case of M. Taut, J. Phys. A 27,
+    1045 (1994); the condition and energy were derived here by inserting the form into the radial
+    equation).  The radial reference must reproduce them: checks the reference itself to 1e-8."""
+    assert relative_energy(0, 1.0, 1.0) == pytest.approx(2.0, rel=1e-8)
+    assert relative_energy(1, 1.0 / 3.0, 1.0) == pytest.approx(1.0, rel=1e-8)
+    assert relative_energy(1, 1.0, 0.0) == pytest.approx(2.0, rel=1e-8)       # no repulsion: (2n+|m|+1) omega
+
+
+def test_parabolic_dot_singlet_triplet_and_exchange():
+    """omega = 1, kappa = 1 (l0 / a_B = 1): E_S = 3 exactly (Taut's m = 0 state: E_cm = omega plus
+    eps_rel = 2 omega), E_T = 3.596499 (|m| = 1, radial reference), J = 0.596499.
+    Tolerances from the issue: 0.3 % on the energies, 2 % on J.  Measured with 55 orbitals (10 shells)
+    on 40^2 points: E_S +0.22 % (the singlet converges slowly with the basis, the pair cusp), E_T
+    -0.004 % (grid quadrature), J -1.1 %.  The reported uncertainties must cover the true errors
+    within a factor 1.5 (they are power-law tail estimates, measured 0.89-0.96 of the true error)."""
+    g = Grid([-7.0, -7.0], [7.0, 7.0], [40, 40])
+    r = _dot(g, 55, 1.0)
+    e_s, e_t = two_electron_energy(0, 1.0, 1.0), two_electron_energy(1, 1.0, 1.0)
+    assert e_s == pytest.approx(3.0, rel=1e-9)
+    assert r.spin[0] == "singlet" and r.spin[1] == r.spin[2] == "triplet"
+    assert r.singlet_energy == pytest.approx(e_s, rel=3e-3)
+    assert r.triplet_energy == pytest.approx(e_t, rel=3e-3)
+    assert r.exchange == pytest.approx(e_t - e_s, rel=2e-2)
+    assert abs(r.singlet_energy - e_s) <= 1.5 * r.energy_uncertainty[0]
+    assert abs(r.exchange - (e_t - e_s)) <= 1.5 * r.exchange_uncertainty
+    assert r.orbitals == 55 and not r.converged and "budget" in r.stop_reason
+    sizes = [row[0] for row in r.convergence]
+    singlets = [row[1] for row in r.convergence]
+    assert sizes == sorted(sizes) and all(a >= b for a, b in zip(singlets, singlets[1:]))   # variational
+
+
+def test_taut_triplet_energy():
+    """omega = 1/3, kappa = 1: the lowest triplet has the closed-form |m| = 1 relative state
+    (Taut 1994, 2D), E_T = omega + 3 omega = 4/3.  The triplet converges fast with the basis
+    (measured -0.01 % with 28 orbitals on 36^2 points); tolerance 0.3 % (the issue's)."""
+    lo = np.sqrt(3.0)
+    g = Grid([-7 * lo, -7 * lo], [7 * lo, 7 * lo], [36, 36])
+    r = _dot(g, 28, 1.0, omega=1.0 / 3.0)
+    assert r.triplet_energy == pytest.approx(4.0 / 3.0, rel=3e-3)
+    assert r.spin[0] == "singlet"
+
+
+def test_singlet_triplet_transition_in_field():
+    """The ground state turns from the relative m = 0 singlet to the m = -1 triplet at a field B* where
+    the reference energies cross (M. Wagner, U. Merkt, A. V. Chaplik, Phys. Rev. B 45, 1951 (1992);
+    B* from the radial reference with Omega = sqrt(1 + B^2/4) and the (m/2) B term, brentq).
+    kappa = 2, B* = 0.9634.  The configuration interaction must put the transition within 3 % of B*:
+    singlet ground at 0.97 B*, triplet at 1.03 B*.  Measured with 45 complex orbitals: the singlet is
+    0.009 too high (slow convergence of the m = 0 pair in a field), the triplet within 1e-4, so the
+    computed transition is 2.4 % below B* (J slope -0.379 per unit field)."""
+    kappa = 2.0
+    bstar = brentq(lambda b: two_electron_energy(-1, 1.0, kappa, b) - two_electron_energy(0, 1.0, kappa, b),
+                   0.1, 3.0, xtol=1e-10)
+    assert bstar == pytest.approx(0.9634, abs=1e-3)
+    g = Grid([-6.5, -6.5], [6.5, 6.5], [32, 32])
+    below = _dot(g, 45, kappa, b=0.97 * bstar)
+    above = _dot(g, 45, kappa, b=1.03 * bstar)
+    assert below.spin[0] == "singlet" and below.exchange > 0
+    assert above.spin[0] == "triplet" and above.exchange < 0
+    assert above.triplet_energy == pytest.approx(two_electron_energy(-1, 1.0, kappa, 1.03 * bstar), rel=3e-3)
+
+
+def test_double_dot_singlet_ground_and_exchange_falls_with_barrier():
+    """At B = 0 the two-electron ground state is a singlet (E. Lieb, D. Mattis, Phys. Rev. 125, 164
+    (1962)), so J > 0; in a double dot J falls as the barrier between the dots rises (Heitler-London
+    trend, G. Burkard, D. Loss, D. P. DiVincenzo, Phys. Rev. B 59, 2070 (1999)).  Quartic double well
+    (x^2 - d^2)^2 / (8 d^2) + y^2 / 2 (barrier d^2 / 8) for d = 1.5, 2, 2.5; the differences of J must
+    exceed the reported uncertainties."""
+    js = []
+    for d in (1.5, 2.0, 2.5):
+        g = Grid([-d - 5.0, -5.0], [d + 5.0, 5.0], [40, 28])
+        sp = solve_states(g, lambda x, y: (x**2 - d**2)**2 / (8 * d**2) + 0.5 * y**2, states=16, scheme="spectral")
+        r = te.two_electron_levels(g, sp.energies, sp.states, strength=1.0, groups=sp.groups)
+        assert r.spin[0] == "singlet" and r.exchange > 0
+        js.append((r.exchange, r.exchange_uncertainty))
+    for (j1, u1), (j2, u2) in zip(js, js[1:]):
+        assert j1 - j2 > u1 + u2
+
+
+def test_no_repulsion_gives_orbital_sums():
+    """Without repulsion the levels are sums of orbital energies: E_S = 2 E_0 = 2, E_T = E_0 + E_1 = 3
+    (2D oscillator, Fock-Darwin at B = 0)."""
+    g = Grid([-6.0, -6.0], [6.0, 6.0], [24, 24])
+    r = _dot(g, 6, 0.0)
+    assert r.singlet_energy == pytest.approx(2.0, abs=1e-8)
+    assert r.triplet_energy == pytest.approx(3.0, abs=1e-8)
+
+
+def test_memory_refusal_names_fewer_orbitals(monkeypatch):
+    g = Grid([-6.0, -6.0], [6.0, 6.0], [24, 24])
+    sp = solve_states(g, lambda x, y: 0.5 * (x**2 + y**2), states=6, scheme="spectral")
+    monkeypatch.setattr(te, "available_memory_bytes", lambda: 200_000)
+    with pytest.raises(MemoryLimitError, match="fewer orbitals"):
+        te.two_electron_levels(g, sp.energies, sp.states, strength=1.0)
+
+
+def test_cancel_and_bad_input():
+    g = Grid([-6.0, -6.0], [6.0, 6.0], [24, 24])
+    sp = solve_states(g, lambda x, y: 0.5 * (x**2 + y**2), states=10, scheme="spectral")
+    calls = []
+
+    def stop():
+        calls.append(1)
+        return len(calls) > 1
+    with pytest.raises(Cancelled):
+        te.two_electron_levels(g, sp.energies, sp.states, strength=1.0, groups=sp.groups, should_stop=stop)
+    with pytest.raises(InputError, match="at least 2"):
+        te.two_electron_levels(g, sp.energies[:1], sp.states[:1], strength=1.0)
+    with pytest.raises(InputError, match="tolerance"):
+        te.two_electron_levels(g, sp.energies, sp.states, strength=1.0, tolerance=2.0)
