@@ -16,12 +16,14 @@ Convergence: the integrals are computed once for the largest basis, and the inte
 solved for growing N (whole degenerate multiplets only, from a quarter of the orbitals up, each
 size at least 1.3 times the last) until the estimated remaining error of J is within
 ``tolerance * |J|`` and that of the lowest singlet and triplet energies within ``tolerance`` times
-the interaction energy E_S - 2 E_0 (with a floor of 1e-3 of the orbital energy span, for a J near
+the interaction energy E_S - 2 E_0 (with a floor of 1e-6 of the orbital energy span, for a J near
 zero), or all orbitals are used (the budget).  The remaining error of each energy is estimated
 from the last three sizes by a power law in N (:func:`tail_estimate`; the configuration-interaction
-energies converge algebraically, so the last change alone would understate it), and that of J as
-the sum of the singlet's and the triplet's: estimates, not bounds.  The tolerance counts as met only
-when the power law fits both (changes that shrink steadily).
+energies converge algebraically, so the last change alone would understate it) or as the last
+change, whichever is larger; that of J the same way from J's own sequence, or, when J does not
+converge steadily, as the sum of the singlet's and the triplet's: estimates, not bounds.  The tolerance counts as met only when the
+power law fits both energies and the last two changes are within it as well (J need not converge
+monotonically: in a double dot it was seen to rise, fall and rise again with N).
 
 J = E(lowest triplet) - E(lowest singlet), without the Zeeman energy.  With ``spin`` on and a
 g-factor, the triplet's S_z = -1, 0, +1 components sit at E_T + S_z g* mu_B |B| (no spin-orbit
@@ -86,9 +88,12 @@ class TwoElectronResult:
         return float(self.energies[self.spin.index(TRIPLET)])
 
     def to_dict(self) -> dict:
+        """JSON-ready; an uncertainty that could not be estimated is None."""
+        def finite(v):
+            return float(v) if np.isfinite(v) else None
         return {"energies": self.energies.tolist(), "spin": list(self.spin), "exchange": self.exchange,
-                "exchange_uncertainty": self.exchange_uncertainty,
-                "energy_uncertainty": self.energy_uncertainty.tolist(), "orbitals": self.orbitals,
+                "exchange_uncertainty": finite(self.exchange_uncertainty),
+                "energy_uncertainty": [finite(v) for v in self.energy_uncertainty], "orbitals": self.orbitals,
                 "previous_orbitals": self.previous_orbitals, "converged": self.converged,
                 "stop_reason": self.stop_reason, "tolerance": self.tolerance,
                 "convergence": [{"orbitals": n, "singlet": s, "triplet": t, "exchange": j}
@@ -237,21 +242,35 @@ def two_electron_levels(grid: Grid, orbital_energies, orbitals, *, strength: flo
 
 
 def _uncertainties(done: list, blocks: list, e: np.ndarray, tolerance: float) -> tuple:
-    """Per-spin-block uncertainty arrays, J's uncertainty, and whether the tolerance is met."""
+    """Per-spin-block uncertainty arrays, J's uncertainty, whether the tolerance is met, and how.
+
+    Each uncertainty is the larger of the power-law tail estimate and the last change; J's is the
+    larger of its own last change and its own power-law tail or, when J does not converge steadily,
+    the sum of the lowest singlet's and triplet's uncertainties.  The tolerance is
+    met when the power law fits both lowest energies and the last two changes of J and of both
+    energies, and the uncertainties, are all within it."""
     unc, how = {}, {}
     for name in (SINGLET, TRIPLET):
         m = min(b[name].size for b in blocks[-3:])
         rows = [tail_estimate(done[-3:], [b[name][i] for b in blocks[-3:]]) for i in range(m)]
-        unc[name] = np.array([r[0] for r in rows])
+        last = np.array([abs(blocks[-1][name][i] - blocks[-2][name][i]) for i in range(m)])
+        unc[name] = np.maximum([r[0] for r in rows], last) if m else np.empty(0)
         how[name] = rows[0][1] if rows else ""
-    last = blocks[-1]
-    j = float(last[TRIPLET][0] - last[SINGLET][0])
-    d_j = float(unc[SINGLET][0] + unc[TRIPLET][0])        # |err_T - err_S| <= |err_T| + |err_S|
-    floor = 1e-3 * float(e[done[-1] - 1] - e[0])
-    interaction = abs(float(last[SINGLET][0]) - 2.0 * float(e[0]))
+    series = {"J": [float(b[TRIPLET][0] - b[SINGLET][0]) for b in blocks],
+              SINGLET: [float(b[SINGLET][0]) for b in blocks], TRIPLET: [float(b[TRIPLET][0]) for b in blocks]}
+    j = series["J"][-1]
+    j_tail, j_how = tail_estimate(done[-3:], series["J"][-3:])
+    if not j_how.startswith("power-law"):
+        j_tail = float(unc[SINGLET][0] + unc[TRIPLET][0])      # |err_T - err_S| <= |err_T| + |err_S|
+    d_j = max(j_tail, abs(series["J"][-1] - series["J"][-2]))
+    floor = 1e-6 * float(e[done[-1] - 1] - e[0])
+    interaction = abs(series[SINGLET][-1] - 2.0 * float(e[0]))
+    limit = {"J": tolerance * max(abs(j), floor), SINGLET: tolerance * max(interaction, floor)}
+    limit[TRIPLET] = limit[SINGLET]
+    steady = len(done) >= 3 and all(abs(v[-1] - v[-2]) <= limit[k] and abs(v[-2] - v[-3]) <= limit[k]
+                                    for k, v in series.items())
     fitted = all(v.startswith("power-law") for v in how.values())
-    met = bool(fitted and d_j <= tolerance * max(abs(j), floor)
-               and max(unc[SINGLET][0], unc[TRIPLET][0]) <= tolerance * max(interaction, floor))
+    met = bool(steady and fitted and d_j <= limit["J"] and max(unc[SINGLET][0], unc[TRIPLET][0]) <= limit[SINGLET])
     return unc, d_j, met, how[SINGLET]
 
 
@@ -269,7 +288,8 @@ def _result(done, blocks, *, e, tolerance, met, t0, grid, levels, **common) -> T
         verdict = (f"tolerance met with {n} orbitals" if met else
                    f"budget: all {n} orbitals used and the tolerance ({tolerance:g} relative) is not met; "
                    f"solve more states for a larger basis")
-        reason = f"{verdict}; uncertainty from {how} over {', '.join(map(str, done[-3:]))} orbitals"
+        reason = (f"{verdict}; uncertainty: the larger of the last change and a {how} over "
+                  f"{', '.join(map(str, done[-3:]))} orbitals")
         prev = done[-2]
     else:
         du, d_j, prev = np.full(energies.size, np.nan), float("nan"), None
