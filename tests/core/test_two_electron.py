@@ -39,7 +39,7 @@ def test_parabolic_dot_singlet_triplet_and_exchange():
     Tolerances from the issue: 0.3 % on the energies, 2 % on J.  Measured with 55 orbitals (10 shells)
     on 40^2 points: E_S +0.22 % (the singlet converges slowly with the basis, the pair cusp), E_T
     -0.004 % (grid quadrature), J -1.1 %.  The reported uncertainties must cover the true errors
-    within a factor 1.5 (they are power-law tail estimates, measured 0.89-0.96 of the true error)."""
+    within a factor 1.5 (power-law tail estimates: measured 0.89 and 0.91 of the true errors)."""
     g = Grid([-7.0, -7.0], [7.0, 7.0], [40, 40])
     r = _dot(g, 55, 1.0)
     e_s, e_t = two_electron_energy(0, 1.0, 1.0), two_electron_energy(1, 1.0, 1.0)
@@ -59,7 +59,7 @@ def test_parabolic_dot_singlet_triplet_and_exchange():
 def test_taut_triplet_energy():
     """omega = 1/3, kappa = 1: the lowest triplet has the closed-form |m| = 1 relative state
     (Taut 1994, 2D), E_T = omega + 3 omega = 4/3.  The triplet converges fast with the basis
-    (measured -0.01 % with 28 orbitals on 36^2 points); tolerance 0.3 % (the issue's)."""
+    (measured +0.012 % with 28 orbitals on 36^2 points); tolerance 0.3 % (the issue's)."""
     lo = np.sqrt(3.0)
     g = Grid([-7 * lo, -7 * lo], [7 * lo, 7 * lo], [36, 36])
     r = _dot(g, 28, 1.0, omega=1.0 / 3.0)
