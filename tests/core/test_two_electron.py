@@ -135,3 +135,33 @@ def test_cancel_and_bad_input():
         te.two_electron_levels(g, sp.energies[:1], sp.states[:1], strength=1.0)
     with pytest.raises(InputError, match="tolerance"):
         te.two_electron_levels(g, sp.energies, sp.states, strength=1.0, tolerance=2.0)
+
+
+def test_complete_basis_equals_exact_diagonalisation_on_the_grid():
+    """With every orbital of a small grid the configuration interaction is exact in the grid basis, so it
+    must reproduce the plain diagonalisation (scipy.linalg.eigh) of the two-particle grid Hamiltonian
+    h x 1 + 1 x h + W(r1 - r2) (same kernel values), each eigenvector labelled by its exchange parity
+    <P12> = +1 (singlet) or -1 (triplet).  Tolerance 1e-9 (rounding).  A double well, so the levels
+    are not degenerate."""
+    import scipy.linalg as la
+    from core.coulomb import _kernel_values
+    from core.hamiltonian import build_hamiltonian
+    g = Grid([-4.0, -3.0], [4.0, 3.0], [7, 5])
+    v = (lambda x, y: (x**2 - 2.0)**2 / 8.0 + 0.5 * y**2)(*g.mesh())
+    h = build_hamiltonian(g, v, mass=1.0, units="dimensionless", scheme="fd2").to_sparse().toarray().real
+    e, phi = la.eigh(h)
+    phi = phi.T.reshape(-1, *g.shape) / np.sqrt(g.volume_element)
+    r = te.two_electron_levels(g, e, phi, strength=0.7, levels=6, tolerance=1e-12)
+    assert r.orbitals == g.size
+    pts = np.stack([c.ravel() for c in g.mesh()], axis=1)
+    idx = np.rint(np.abs(pts[:, None, :] - pts[None, :, :]) / np.asarray(g.spacing)).astype(int)
+    table = _kernel_values(g, [np.arange(m) * s for m, s in zip(g.shape, g.spacing)])
+    n = g.size
+    eye = np.eye(n)
+    big = np.kron(h, eye) + np.kron(eye, h) + np.diag(0.7 * table[idx[..., 0], idx[..., 1]].ravel())
+    w, vecs = la.eigh(big, subset_by_index=[0, 9])
+    parity = np.einsum("ik,ik->k", vecs, vecs.reshape(n, n, -1).transpose(1, 0, 2).reshape(n * n, -1))
+    labels = ["singlet" if p > 0.5 else "triplet" for p in parity]
+    assert np.all(np.abs(np.abs(parity) - 1.0) < 1e-9)
+    np.testing.assert_allclose(r.energies, w[:6], rtol=0, atol=1e-9)
+    assert list(r.spin) == labels[:6]
