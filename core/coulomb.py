@@ -106,11 +106,12 @@ def coulomb_kernel_spectrum(grid: Grid, strength: float, *, real: bool) -> np.nd
 
 def coulomb_memory_bytes(grid: Grid, orbitals: int, complex_: bool) -> int:
     """Bytes held at once by :func:`coulomb_tensor`: pair densities and their potentials
-    (2 N^2 x grid), the N^4 tensor, the kernel and one chunk of padded transforms."""
+    (2 N^2 x grid), the N^4 tensor with its half-size product and conjugated copy (3 N^4 in all),
+    the kernel and one chunk of padded transforms (complex, 16 bytes a value)."""
     item = 16 if complex_ else 8
     n2 = orbitals * orbitals
     pad = int(np.prod(_padded_shape(grid)))
-    return int(2 * n2 * grid.size * item + n2 * n2 * item * 2 + 16 * pad * (1 + _CHUNK))
+    return int(2 * n2 * grid.size * item + 3 * n2 * n2 * item + 16 * pad * (2 + 2 * _CHUNK))
 
 
 _CHUNK = 16
