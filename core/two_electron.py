@@ -45,7 +45,8 @@ from .grid import Grid
 from .materials import get_material
 from .resources import available_memory_bytes, format_bytes
 
-__all__ = ["TwoElectronResult", "two_electron_levels", "two_electron_for_spectrum", "solve_two_electron",
+__all__ = ["TwoElectronResult", "two_electron_levels", "two_electron_for_spectrum", "two_electron_for_study",
+           "sweep_columns", "solve_two_electron",
            "project_permittivity", "pair_bases", "tail_estimate", "DEFAULT_TOLERANCE", "DEFAULT_LEVELS"]
 
 DEFAULT_TOLERANCE = 0.01
@@ -343,6 +344,25 @@ def two_electron_for_spectrum(spectrum, project, *, parameters: Optional[Mapping
                                zeeman_splitting=zeeman, **options)
 
 
+def two_electron_for_study(result, **options) -> TwoElectronResult:
+    """Two-electron levels from a :class:`core.study.StudyResult` (its states are the orbitals; the
+    project, parameters, field and g-factor come with it).  The hook for a sweep: call it on each
+    point's result and collect the points with :func:`sweep_columns`."""
+    return two_electron_for_spectrum(result.spectrum, result.project, parameters=result.parameters,
+                                     magnetic_field=result.magnetic_field, g_factor=result.g_factor, **options)
+
+
+def sweep_columns(points) -> dict:
+    """The ``two_electron`` section of a sweep's JSON from one :class:`TwoElectronResult` per point:
+    ``{"energies": [[...]], "spin": [[...]], "exchange": [...], "exchange_uncertainty": [...],
+    "orbitals": [...], "converged": [...]}`` (energies in the project's energy unit)."""
+    points = list(points)
+    return {"energies": [p.energies.tolist() for p in points], "spin": [list(p.spin) for p in points],
+            "exchange": [p.exchange for p in points],
+            "exchange_uncertainty": [p.to_dict()["exchange_uncertainty"] for p in points],
+            "orbitals": [p.orbitals for p in points], "converged": [p.converged for p in points]}
+
+
 def solve_two_electron(project, *, parameters: Optional[Mapping[str, float]] = None, orbitals: Optional[int] = None,
                        tolerance: float = DEFAULT_TOLERANCE, levels: int = DEFAULT_LEVELS,
                        progress: Optional[Callable[[str, float], None]] = None,
@@ -355,10 +375,8 @@ def solve_two_electron(project, *, parameters: Optional[Mapping[str, float]] = N
     n = int(orbitals or project.solver.states)
     study = solve_project(project, parameters=parameters, states=n, progress=progress, should_stop=should_stop)
     try:
-        result = two_electron_for_spectrum(study.spectrum, project, parameters=study.parameters,
-                                           magnetic_field=study.magnetic_field, g_factor=study.g_factor,
-                                           tolerance=tolerance, levels=levels, progress=progress,
-                                           should_stop=should_stop)
+        result = two_electron_for_study(study, tolerance=tolerance, levels=levels, progress=progress,
+                                        should_stop=should_stop)
     except Cancelled as exc:
         raise Cancelled(str(exc), partial=exc.partial if exc.partial is not None else study) from None
     return study, result

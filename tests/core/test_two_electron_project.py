@@ -75,3 +75,18 @@ def test_zeeman_splitting_of_the_triplet():
     _study, pair = solve_two_electron(p)
     mu_b = sc.physical_constants["Bohr magneton"][0] / (1e-3 * sc.e)
     assert pair.zeeman_splitting == pytest.approx(0.44 * mu_b * 2.0, rel=1e-9)
+
+
+def test_sweep_hook_per_point():
+    """The per-point hook a sweep calls (bookkeeping only: the columns hold each point's energies, spins
+    and J = E_T - E_S, JSON-ready; the physics of each point is tested elsewhere)."""
+    from core.study import solve_project
+    from core.two_electron import sweep_columns, two_electron_for_study
+    p = project_from_dict(_doc(solver={"states": 10, "scheme": "spectral"}))
+    points = [two_electron_for_study(solve_project(p, parameters={"hw": hw})) for hw in (3.0, 5.0)]
+    cols = sweep_columns(points)
+    json.dumps(cols)
+    assert cols["exchange"] == [pt.exchange for pt in points]
+    assert cols["spin"][0][0] == "singlet" and len(cols["energies"]) == 2
+    assert all(abs(e[s.index("triplet")] - e[s.index("singlet")] - j) < 1e-12
+               for e, s, j in zip(cols["energies"], cols["spin"], cols["exchange"]))
