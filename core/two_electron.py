@@ -224,14 +224,15 @@ def two_electron_levels(grid: Grid, orbital_energies, orbitals, *, strength: flo
     _memory_check(grid, n_max, np.iscomplexobj(phi))
     groups = groups if groups is not None else tuple((k,) for k in range(n_max))
     sizes = _sizes(groups, n_max)
-    common = dict(permittivity=float(permittivity), permittivity_source=permittivity_source,
+    common = dict(e=e, tolerance=float(tolerance), t0=t0, grid=grid, levels=levels,
+                  permittivity=float(permittivity), permittivity_source=permittivity_source,
                   zeeman_splitting=zeeman_splitting)
     v = coulomb_tensor(grid, phi, strength, progress=progress, should_stop=should_stop)
     blocks, done, met = [], [], False
     for k, n in enumerate(sizes):
         if should_stop is not None and should_stop():
             raise Cancelled("cancelled while solving the two-electron problem",
-                            partial=_result(done, blocks, **common) if blocks else None)
+                            partial=_result(done, blocks, met=False, **common) if blocks else None)
         blocks.append(_interaction(e, v, n, levels))
         done.append(n)
         if progress is not None:
@@ -239,7 +240,7 @@ def two_electron_levels(grid: Grid, orbital_energies, orbitals, *, strength: flo
         if len(done) >= 3 and _uncertainties(done, blocks, e, tolerance)[2]:
             met = True
             break
-    return _result(done, blocks, e=e, tolerance=tolerance, met=met, t0=t0, grid=grid, levels=levels, **common)
+    return _result(done, blocks, met=met, **common)
 
 
 def _uncertainties(done: list, blocks: list, e: np.ndarray, tolerance: float) -> tuple:
@@ -289,8 +290,11 @@ def _result(done, blocks, *, e, tolerance, met, t0, grid, levels, **common) -> T
         verdict = (f"tolerance met with {n} orbitals" if met else
                    f"budget: all {n} orbitals used and the tolerance ({tolerance:g} relative) is not met; "
                    f"solve more states for a larger basis")
-        reason = (f"{verdict}; uncertainty: the larger of the last change and a {how} over "
-                  f"{', '.join(map(str, done[-3:]))} orbitals")
+        sizes = ", ".join(map(str, done[-3:]))
+        reason = (f"{verdict}; uncertainty: the larger of the last change and a {how} over {sizes} orbitals"
+                  if how.startswith("power-law") else
+                  f"{verdict}; uncertainty: the last change over {sizes} orbitals (the changes do not shrink "
+                  f"steadily, so no tail could be fitted)")
         prev = done[-2]
     else:
         du, d_j, prev = np.full(energies.size, np.nan), float("nan"), None

@@ -185,3 +185,17 @@ def test_three_dimensional_hooke_atom():
     pair = te.two_electron_levels(g, sp.energies, sp.states, strength=1.0, groups=sp.groups, tolerance=1e-6)
     assert pair.orbitals == 20 and pair.spin[0] == "singlet"
     assert pair.singlet_energy == pytest.approx(2.0, rel=5e-3)
+
+
+def test_cancel_during_the_interaction_stage_keeps_the_sizes_done():
+    """Cancelled after the first basis size: the partial result holds that size's levels."""
+    g = Grid([-6.0, -6.0], [6.0, 6.0], [24, 24])
+    sp = solve_states(g, lambda x, y: 0.5 * (x**2 + y**2), states=15, scheme="spectral")
+    stages = []
+    with pytest.raises(Cancelled) as info:
+        te.two_electron_levels(g, sp.energies, sp.states, strength=1.0, groups=sp.groups, tolerance=1e-6,
+                               progress=lambda stage, f: stages.append(stage),
+                               should_stop=lambda: "interaction" in stages)
+    partial = info.value.partial
+    assert isinstance(partial, te.TwoElectronResult) and len(partial.convergence) == 1
+    assert partial.spin[0] == "singlet" and not partial.converged
