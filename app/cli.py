@@ -235,6 +235,10 @@ def cmd_check(args) -> int:
     print(f"  potential: {len(project.potential)} terms, range {v.min():.6g} .. {v.max():.6g} {u.energy_unit}")
     print(f"  scheme: {scheme} ({reason})")
     print(f"  memory for {k} states: about {format_bytes(mem)} of {format_bytes(available_memory_bytes())} available")
+    if project.electrons == 2:
+        from core.coulomb import coulomb_memory_bytes
+        pair_mem = coulomb_memory_bytes(g, k, bool(any(project.magnetic_field)))
+        print(f"  two electrons: Coulomb integrals in {k} orbitals need about {format_bytes(pair_mem)} more")
     if project.warnings:
         print(f"  {len(project.warnings)} warning(s) above")
     return 0

@@ -61,3 +61,9 @@ def test_sample_double_dot_singlet_ground():
         assert pair.spin[0] == "singlet" and pair.exchange > pair.exchange_uncertainty
         js.append((pair.exchange, pair.exchange_uncertainty))
     assert js[1][0] - js[0][0] > js[0][1] + js[1][1]
+
+
+def test_check_estimates_the_coulomb_memory(capsys, tmp_path):
+    code = main(["check", str(_small(tmp_path))])
+    out = capsys.readouterr().out
+    assert code == 0 and "two electrons: Coulomb integrals in 12 orbitals need about" in out and "iB more" in out
