@@ -163,13 +163,13 @@ class Project:
     magnetic_field: tuple = (0.0, 0.0, 0.0)
     spin: bool = False
     solver: SolverSettings = SolverSettings()
-    electrons: int = 1                       # 1, or 2 for two interacting electrons (core.two_electron)
     notes: str = ""
     parameter_ranges: dict = field(default_factory=dict)
     schema_version: int = CURRENT_SCHEMA_VERSION
     base_dir: Optional[str] = field(default=None, compare=False)
     warnings: tuple = field(default=(), compare=False)
     migrated_from: Optional[int] = field(default=None, compare=False)
+    electrons: int = 1                       # 1, or 2 for two interacting electrons (core.two_electron)
 
     @property
     def ndim(self) -> int:
@@ -347,6 +347,8 @@ def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
     if electrons not in ELECTRON_COUNTS:
         r.fail("electrons", f"expected 1 or 2 (levels are computed for one electron or for two interacting "
                             f"electrons), got {electrons}")
+    if electrons == 2 and ndim == 1:
+        r.fail("electrons", "two electrons need a 2D or 3D grid (the 1/|x| repulsion is not integrable in 1D)")
 
     s = r.obj(data.get("solver", {}), "solver")
     _extra_keys(s, ("states", "scheme", "tolerance"), "solver", warnings)

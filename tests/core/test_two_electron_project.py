@@ -90,3 +90,10 @@ def test_sweep_hook_per_point():
     assert cols["spin"][0][0] == "singlet" and len(cols["energies"]) == 2
     assert all(abs(e[s.index("triplet")] - e[s.index("singlet")] - j) < 1e-12
                for e, s, j in zip(cols["energies"], cols["spin"], cols["exchange"]))
+
+
+def test_two_electrons_refused_on_a_1d_grid():
+    doc = _doc(electrons=2, grid={"lower": [-100], "upper": [100], "points": [64]},
+               potential=[{"kind": "formula", "label": "dot", "formula": "0.5*hw*x**2/l0**2"}])
+    with pytest.raises(ProjectError, match="2D or 3D"):
+        project_from_dict(doc)
