@@ -49,23 +49,24 @@ def _padded_shape(grid: Grid) -> tuple:
     return tuple(sfft.next_fast_len(2 * n) for n in grid.shape)
 
 
-def singular_weight(spacing, *, widths=(24, 48)) -> float:
+def singular_weight(spacing, *, widths: Optional[tuple] = None) -> float:
     """The weight of the singular point in the corrected trapezoidal rule for 1/|r| on a grid.
 
     sum_{j != 0} f(r_j) / |r_j| dV + w0 f(0) dV approximates int f(r) / |r| d^dr with an error of
     third order in the spacing for smooth f (the plain point sum with the cell average at r = 0 is
     only first order).  For a square lattice w0 h = -4 zeta(1/2) beta(1/2) = 3.90026..., for a cubic
     one -Z(1/2) = 2.83730... (analytic continuations of the lattice sum of 1/|n|; see
-    J. Marin, O. Runborg, A.-K. Tornberg, Adv. Comput. Math. 40, 1 (2014)).  Here w0 is found for
-    any rectangular cell from the exact integral of a Gaussian, int exp(-r^2/2s^2)/|r| = 2 pi s
-    sqrt(pi/2) (2D) or 4 pi s^2 (3D), at two widths s, extrapolated in 1/s^2 (the rule's leading
-    error).  Returns w0 in 1 / length unit.
+    J. Marin, O. Runborg, A.-K. Tornberg, Adv. Comput. Math. 40, 1 (2014) [recalled from memory]).
+    Here w0 is found for any rectangular cell from the exact integral of a Gaussian,
+    int exp(-r^2/2s^2)/|r| = 2 pi s sqrt(pi/2) (2D) or 4 pi s^2 (3D), at two widths s (``widths``,
+    in cells: 24 and 48 in 2D, 6 and 12 in 3D unless given), extrapolated in 1/s^2 (the rule's
+    leading error).  Returns w0 in 1 / length unit.
     """
     h = np.asarray([float(v) for v in spacing])
     if h.size not in (2, 3):
         raise InputError("the Coulomb repulsion on a grid needs 2 or 3 dimensions (1/|x| is not integrable in 1D)")
-    if h.size == 3:
-        widths = (6, 12)
+    if widths is None:
+        widths = (24, 48) if h.size == 2 else (6, 12)
     values = []
     for cells in widths:
         s = cells * h.max()
@@ -89,7 +90,7 @@ def _kernel_values(grid: Grid, offsets: list) -> np.ndarray:
 
 
 def coulomb_kernel_spectrum(grid: Grid, strength: float, *, real: bool) -> np.ndarray:
-    """FFT of the zero-padded kernel strength/|r| at the grid offsets (cell averages, see _kernel_values)."""
+    """FFT of the zero-padded kernel strength/|r| at the grid offsets (corrected-trapezoid weight at r = 0)."""
     if grid.ndim not in (2, 3):
         raise InputError("the Coulomb repulsion on a grid needs 2 or 3 dimensions (1/|x| is not "
                          "integrable in 1D)")
