@@ -102,7 +102,13 @@ def cmd_solve(args) -> int:
 
     project = _load(args.project)
     bar = _Progress("solving", enabled=None if not args.json else False)
-    result = solve_project(project, parameters=_parse_sets(args.set), states=args.states, progress=bar)
+    pair = None
+    if project.electrons == 2:
+        from core.two_electron import solve_two_electron
+        result, pair = solve_two_electron(project, parameters=_parse_sets(args.set), orbitals=args.states,
+                                          progress=bar)
+    else:
+        result = solve_project(project, parameters=_parse_sets(args.set), states=args.states, progress=bar)
     bar.done()
     spec = result.spectrum
     u = result.units
@@ -141,6 +147,8 @@ def cmd_solve(args) -> int:
             sl = spin_levels(result)
             doc["spin_levels"] = {"energies": sl.energies.tolist(), "orbital": sl.orbital.tolist(),
                                   "spin": sl.spin.tolist(), "zeeman_splitting": sl.zeeman}
+        if pair is not None:
+            doc["two_electron"] = dict(pair.to_dict(), energy_unit=u.energy_unit)
         print(json.dumps(_jsonable(doc), indent=1))
         return 0
     print(f"{project.title}")
@@ -154,6 +162,10 @@ def cmd_solve(args) -> int:
         from core.report import format_spin_table
         print()
         print(format_spin_table(result))
+    if pair is not None:
+        from core.report import format_two_electron_table
+        print()
+        print(format_two_electron_table(pair, u.energy_unit))
     for note in spec.notes:
         print(f"note: {note}")
     if spec.multiplet_cut:
@@ -223,6 +235,10 @@ def cmd_check(args) -> int:
     print(f"  potential: {len(project.potential)} terms, range {v.min():.6g} .. {v.max():.6g} {u.energy_unit}")
     print(f"  scheme: {scheme} ({reason})")
     print(f"  memory for {k} states: about {format_bytes(mem)} of {format_bytes(available_memory_bytes())} available")
+    if project.electrons == 2:
+        from core.coulomb import coulomb_memory_bytes
+        pair_mem = coulomb_memory_bytes(g, k, bool(any(project.magnetic_field)))
+        print(f"  two electrons: Coulomb integrals in {k} orbitals need about {format_bytes(pair_mem)} more")
     if project.warnings:
         print(f"  {len(project.warnings)} warning(s) above")
     return 0

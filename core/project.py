@@ -5,7 +5,9 @@ parameters, an ordered list of potential terms, fields and solver settings.
 Top-level keys of the JSON file (schema version 2):
 
 ``schema_version, title, notes, units, material, grid, parameters,
-parameter_ranges, potential, electric_field, magnetic_field, spin, solver``
+parameter_ranges, potential, electric_field, magnetic_field, spin, solver, electrons``
+(``electrons``: 1, the default, or 2 for two interacting electrons; optional, so files without
+it are unchanged)
 
 Any number inside a term, a gate voltage, a field component or the material
 may be written as a parameter name or a formula of parameters
@@ -51,6 +53,7 @@ __all__ = ["CURRENT_SCHEMA_VERSION", "Project", "MaterialSpec", "GateSpec", "For
            "new_project"]
 
 CURRENT_SCHEMA_VERSION = 2
+ELECTRON_COUNTS = (1, 2)
 MAX_FILE_BYTES = 20 * 2**20
 Value = Union[float, str]
 
@@ -89,6 +92,7 @@ class MaterialSpec:
     name: Optional[str] = None
     mass: Optional[Union[Value, tuple]] = None
     g_factor: Optional[Value] = None
+    permittivity: Optional[Value] = None     # static relative permittivity (two-electron repulsion)
 
 
 @dataclass(frozen=True)
@@ -165,6 +169,7 @@ class Project:
     base_dir: Optional[str] = field(default=None, compare=False)
     warnings: tuple = field(default=(), compare=False)
     migrated_from: Optional[int] = field(default=None, compare=False)
+    electrons: int = 1                       # 1, or 2 for two interacting electrons (core.two_electron)
 
     @property
     def ndim(self) -> int:
@@ -271,7 +276,8 @@ def _extra_keys(data: dict, allowed, path: str, warnings: list):
 
 
 _TOP_KEYS = ("schema_version", "title", "notes", "units", "material", "grid", "parameters",
-             "parameter_ranges", "potential", "electric_field", "magnetic_field", "spin", "solver")
+             "parameter_ranges", "potential", "electric_field", "magnetic_field", "spin", "solver",
+             "electrons")
 _IDENT = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
 
 
@@ -337,6 +343,12 @@ def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
     mf = r.array(data.get("magnetic_field", [0.0, 0.0, 0.0]), "magnetic_field", length=3)
     magnetic = tuple(r.number(v, f"magnetic_field[{i}]") for i, v in enumerate(mf))
     spin = r.boolean(data.get("spin", False), "spin")
+    electrons = r.integer(data.get("electrons", 1), "electrons", minimum=1)
+    if electrons not in ELECTRON_COUNTS:
+        r.fail("electrons", f"expected 1 or 2 (levels are computed for one electron or for two interacting "
+                            f"electrons), got {electrons}")
+    if electrons == 2 and ndim == 1:
+        r.fail("electrons", "two electrons need a 2D or 3D grid (the 1/|x| repulsion is not integrable in 1D)")
 
     s = r.obj(data.get("solver", {}), "solver")
     _extra_keys(s, ("states", "scheme", "tolerance"), "solver", warnings)
@@ -354,7 +366,7 @@ def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
                    potential=tuple(terms), electric_field=electric, magnetic_field=magnetic, spin=spin,
                    solver=SolverSettings(states=states, scheme=scheme, tolerance=float(tol)), notes=notes,
                    parameter_ranges=ranges, base_dir=base_dir, warnings=tuple(warnings),
-                   migrated_from=migrated_from)
+                   migrated_from=migrated_from, electrons=electrons)
 
 
 def _read_material(r: _Reader, raw, warnings) -> MaterialSpec:
@@ -365,7 +377,7 @@ def _read_material(r: _Reader, raw, warnings) -> MaterialSpec:
             r.fail("material", str(exc))
         return MaterialSpec(name=raw)
     raw = r.obj(raw, "material")
-    _extra_keys(raw, ("name", "mass", "g_factor"), "material", warnings)
+    _extra_keys(raw, ("name", "mass", "g_factor", "permittivity"), "material", warnings)
     name = raw.get("name")
     if name is not None:
         r.text(name, "material.name")
@@ -385,7 +397,10 @@ def _read_material(r: _Reader, raw, warnings) -> MaterialSpec:
     g = raw.get("g_factor")
     if g is not None:
         g = r.number(g, "material.g_factor")
-    return MaterialSpec(name=name, mass=mass, g_factor=g)
+    eps = raw.get("permittivity")
+    if eps is not None:
+        eps = r.number(eps, "material.permittivity", positive=True)
+    return MaterialSpec(name=name, mass=mass, g_factor=g, permittivity=eps)
 
 
 def _read_grid(r: _Reader, raw, warnings) -> Grid:
@@ -506,11 +521,11 @@ def _plain(v):
 def project_to_dict(project: Project) -> dict:
     """The JSON document of ``project`` (current schema)."""
     m = project.material
-    if m.mass is None and m.g_factor is None:
+    if m.mass is None and m.g_factor is None and m.permittivity is None:
         material: Any = m.name
     else:
-        material = {k: _plain(v) for k, v in (("name", m.name), ("mass", m.mass), ("g_factor", m.g_factor))
-                    if v is not None}
+        material = {k: _plain(v) for k, v in (("name", m.name), ("mass", m.mass), ("g_factor", m.g_factor),
+                                              ("permittivity", m.permittivity)) if v is not None}
     terms = []
     for t in project.potential:
         d: dict = {"kind": t.kind, "label": t.label, "enabled": t.enabled}
@@ -543,6 +558,8 @@ def project_to_dict(project: Project) -> dict:
                 "magnetic_field": list(project.magnetic_field), "spin": project.spin,
                 "solver": {"states": project.solver.states, "scheme": project.solver.scheme,
                            "tolerance": project.solver.tolerance}})
+    if project.electrons != 1:
+        out["electrons"] = project.electrons
     return out
 
 

@@ -10,7 +10,7 @@ import numpy as np
 from .analysis import mirror_parity, position_expectation
 from .study import StudyResult
 
-__all__ = ["level_rows", "format_level_table", "levels_csv", "multiplet_parity_label"]
+__all__ = ["level_rows", "format_level_table", "levels_csv", "multiplet_parity_label", "format_two_electron_table"]
 
 
 def multiplet_parity_label(parities: list, members) -> str:
@@ -114,3 +114,24 @@ def levels_csv(result: StudyResult) -> str:
         w.writerow([i, f"{e:.12g}", f"{e - spec.energies[0]:.12g}", group_of[i], len(g)]
                    + [f"{p:.6g}" for p in pos[i]] + [f"{spec.residuals[i]:.3g}"])
     return buf.getvalue()
+
+
+def format_two_electron_table(pair, energy_unit: str) -> str:
+    """Two-electron levels (a :class:`core.two_electron.TwoElectronResult`) with spin and J, as plain text."""
+    u = energy_unit
+    e0 = float(pair.energies[0])
+    lines = [f"two electrons: configuration interaction in {pair.orbitals} orbitals, eps_r = {pair.permittivity:g} "
+             f"({pair.permittivity_source})",
+             f"{'level':>6}  {'spin':<8}  {'states':>6}  {'E [' + u + ']':>14}  {'E-E0 [' + u + ']':>14}  "
+             f"{'+- [' + u + ']':>11}"]
+    for i, (e, s, d) in enumerate(zip(pair.energies, pair.spin, pair.energy_uncertainty)):
+        unc = f"{d:>11.2g}" if np.isfinite(d) else f"{'n/a':>11}"
+        lines.append(f"{i:>6}  {s:<8}  {3 if s == 'triplet' else 1:>6}  {e:>14.6f}  {e - e0:>14.6f}  {unc}")
+    unc = (f" +- {pair.exchange_uncertainty:.2g} {u}" if np.isfinite(pair.exchange_uncertainty)
+           else " (no uncertainty estimate)")
+    lines.append(f"exchange J = E(lowest triplet) - E(lowest singlet) = {pair.exchange:.6g} {u}{unc}")
+    lines.append(f"basis: {pair.stop_reason}")
+    if pair.zeeman_splitting is not None:
+        lines.append(f"Zeeman splitting of the triplet (S_z = -1, 0, +1): {pair.zeeman_splitting:.6g} {u} per step")
+    lines.extend(f"note: {n}" for n in pair.notes)
+    return "\n".join(lines)

@@ -307,4 +307,5 @@ def set_gate_polygon(project: Project, term_index: int, gate_index: int, vertice
 
 
 def set_material(project: Project, name: Optional[str], mass=None, g_factor=None) -> Project:
-    return dataclasses.replace(project, material=MaterialSpec(name=name, mass=mass, g_factor=g_factor))
+    return dataclasses.replace(project, material=MaterialSpec(name=name, mass=mass, g_factor=g_factor,
+                                                              permittivity=project.material.permittivity))

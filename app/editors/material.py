@@ -196,7 +196,8 @@ class MaterialPanel(ProjectPanel):
         except WellscapeError as exc:
             self.message.show_error(str(exc))
             return
-        spec = MaterialSpec(name=name, mass=mass, g_factor=g)
+        spec = MaterialSpec(name=name, mass=mass, g_factor=g,
+                            permittivity=self.session.project.material.permittivity)   # no editor yet: kept
         if spec == self.session.project.material:
             return
         if not apply_edit(self.session, lambda p: dataclasses.replace(p, material=spec),
