@@ -69,6 +69,7 @@ def cmd_sweep(args) -> int:
     te = result.track_energies()
     print(f"energy range {te.min():.6g} .. {te.max():.6g} {u.energy_unit}")
     _print_verdicts(result, args.vary, u.energy_unit)
+    _print_exchange(result, args.vary, u.energy_unit)
     _print_completeness(result)
     if args.out:
         print(f"\nwrote {Path(args.out) / 'sweep.npz'} and {Path(args.out) / 'sweep.csv'}")
@@ -96,6 +97,18 @@ def _print_verdicts(result, parameter: str, energy_unit: str) -> None:
         print(f"{result.refinement_solves} extra solve(s) at inserted values settled these")
     for note in result.notes:
         print(f"note: {note}")
+
+
+def _print_exchange(result, parameter: str, energy_unit: str) -> None:
+    """Two electrons: the exchange J = E(lowest triplet) - E(lowest singlet) at each value."""
+    two = getattr(result, "two_electron", None)
+    if not two:
+        return
+    from core.formatting import format_energy
+    print(f"\nexchange J = E(lowest triplet) - E(lowest singlet) against {parameter}:")
+    for v, j, dj in zip(result.values, two["exchange"], two["exchange_uncertainty"]):
+        jtxt = "no triplet among the levels" if j is None else format_energy(float(j), float(dj or 0.0), energy_unit)
+        print(f"  {parameter} = {v:<12.6g} J = {jtxt}")
 
 
 def _print_completeness(result) -> None:

@@ -161,13 +161,17 @@ def _assemble(project, target, values, points, t0, complete, notes=(), *, solver
     approaches.sort(key=lambda a: a.at)
     tracking = time.perf_counter() - t1
     kept = np.array(states) if keep_states else None
+    two = None
+    if points and all(pt.two_electron is not None for pt in points):
+        from ..two_electron import sweep_columns
+        two = sweep_columns([pt.two_electron for pt in points])
     return SweepResult(parameter=target, values=np.asarray(values[:p], dtype=float), energies=e, tracks=tracks,
                        anticrossings=tuple(approaches), observables=obs, project=project, states=kept,
                        wall_time=time.perf_counter() - t0, tracking_time=tracking, complete=complete,
                        notes=tuple(notes) + tuple(n for pt in points for n in pt.notes),
                        checks=tuple(pt.check for pt in points),
                        converged=np.array([pt.converged for pt in points], dtype=bool),
-                       refinement_solves=settler.used)
+                       refinement_solves=settler.used, two_electron=two)
 
 
 def run_sweep(project: Project, parameter: str, values, *, states: Optional[int] = None,

@@ -44,6 +44,7 @@ class PointData:
     start: Optional[np.ndarray] = field(default=None, repr=False)   # warm start for the next point
     probe: Optional[np.ndarray] = field(default=None, repr=False)   # the completeness probe's vectors
     recovered: bool = False        # the first solve here missed a level, and solving again found it
+    two_electron: Optional[object] = None   # core.two_electron.TwoElectronResult for "electrons": 2
 
 
 def _inversion_parity(grid, states, potential, rtol=1e-9):
@@ -158,6 +159,10 @@ class PointSolver:
         if recovered and not chk.missed:
             notes[-1] += " (found it)"
         e, obs, st, res = _spin_resolved(result, self.k)
+        two = None
+        if check and getattr(self.project, "electrons", 1) == 2:
+            from ..two_electron import two_electron_for_study
+            two = two_electron_for_study(result, should_stop=should_stop)
         spec = result.spectrum
         nxt = spec.block()
         if probe is not None and len(probe):
@@ -166,7 +171,7 @@ class PointSolver:
                                   spec.block()[spec.states.shape[0]:]])
         return PointData(value=float(value), energies=e, states=st, residuals=res, observables=obs, check=chk,
                          converged=converged, seconds=time.perf_counter() - t0, notes=tuple(notes), start=nxt,
-                         probe=probe, recovered=recovered)
+                         probe=probe, recovered=recovered, two_electron=two)
 
 
 def _spin_resolved(result: StudyResult, k: int) -> tuple:

@@ -29,6 +29,7 @@ class SweepResult:
     checks: tuple = ()            # per point: CompletenessCheck (how no level was missed), or None
     converged: Optional[np.ndarray] = None   # (P,) bool: False where the solver stopped at its limit
     refinement_solves: int = 0
+    two_electron: Optional[dict] = None   # per point: energies, spin, exchange J (core.two_electron.sweep_columns)
 
     @property
     def units(self):
@@ -67,4 +68,5 @@ class SweepResult:
                 "converged": (self.converged.tolist() if self.converged is not None
                               else [True] * int(self.values.size)),
                 "refinement_solves": int(self.refinement_solves),
+                **({"two_electron": self.two_electron} if self.two_electron is not None else {}),
                 "units": self.units.describe(), "complete": self.complete, "notes": list(self.notes)}

@@ -250,12 +250,14 @@ class Settler:
             if near_x.size < 4:
                 near_x = xs[np.argsort(np.abs(xs - x0))[:4]]
             ys = np.array([pts[x].d for x in near_x])
+            if near_x.size < 3:
+                break                            # too few samples for the three-parameter form
             try:
                 with warnings.catch_warnings():
                     warnings.simplefilter("ignore")
                     popt, pcov = curve_fit(two_level_gap, near_x, ys, p0=[x0, max(s, 1e-300), gap], maxfev=4000)
                 perr = np.sqrt(np.abs(np.diag(pcov))) if np.all(np.isfinite(pcov)) else np.full(3, np.nan)
-            except (RuntimeError, ValueError):
+            except (RuntimeError, ValueError, TypeError):
                 break
             new_x0, new_s, new_gap = float(popt[0]), float(abs(popt[1])), float(abs(popt[2]))
             new_gap = min(new_gap, float(ds.min()))

@@ -187,3 +187,18 @@ def test_bad_sweeps_get_clear_errors():
     bad = dataclasses.replace(p, potential=p.potential + (FormulaTerm("root", "sqrt(4 - Vb)*x"),))
     with pytest.raises(WellscapeError, match=r"at Vb = 5"):
         run_sweep(bad, "Vb", [5.0, 6.0])
+
+
+def test_two_electron_sweep_reports_exchange_per_point():
+    """A sweep of the bundled two-electron double dot in detuning carries J per point; by Lieb & Mattis
+    (Phys. Rev. 125, 164 (1962)) the ground state is a singlet, so J > 0, and J grows as the detuning
+    pulls both electrons towards one dot (the doubly occupied singlet takes over)."""
+    project = load_project(Path(__file__).resolve().parents[2] / "sample_projects"
+                           / "gaas_double_dot_two_electrons.json")
+    r = run_sweep(project, "eps", [0.0, 2.0, 4.0], refine=False)
+    two = r.to_json_dict()["two_electron"]
+    j = np.array(two["exchange"])
+    dj = np.array(two["exchange_uncertainty"])
+    assert j.shape == (3,) and np.all(j > 0)
+    assert np.all(np.diff(j) > dj[1:] + dj[:-1])
+    assert all(s[0] == "singlet" for s in two["spin"])
