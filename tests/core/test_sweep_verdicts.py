@@ -217,3 +217,24 @@ def test_sweep_starting_at_the_symmetric_point():
     assert r.values.size == 4 and r.complete
     if "parity_inversion" in r.observables:
         assert np.isnan(r.observables["parity_inversion"][1:]).all()
+
+
+def test_a_point_that_does_not_converge_is_marked_and_the_sweep_goes_on(monkeypatch):
+    """A solve that stops at its iteration limit raises NotConverged with its partial result; the sweep
+    keeps that partial point, marks it (converged False, a note) and goes on to the other values."""
+    import core.sweep.points as points
+    real = points.lowest_states
+    calls = []
+
+    def limited(h, k, **kw):
+        calls.append(1)
+        if len(calls) == 2:                      # the second value stops after one iteration
+            kw.update(max_iterations=1, tolerance=1e-13)
+        return real(h, k, **kw)
+
+    monkeypatch.setattr(points, "lowest_states", limited)
+    r = run_sweep(coupled_oscillators(), "wx", np.linspace(0.8, 1.2, 4), states=3, refine=False)
+    assert r.values.size == 4 and r.complete
+    assert r.converged.tolist() == [True, False, True, True]
+    assert any("did not converge" in n for n in r.notes)
+    assert r.to_json_dict()["converged"] == [True, False, True, True]
