@@ -1166,13 +1166,23 @@ def _draw_fan(fig, ax, p: dict, t: Template) -> None:
     yspan = (ymax - ymin) or 1.0
     for rank, a in enumerate(anti):
         lo, hi = a["centre"] - a["gap"] / 2, a["centre"] + a["gap"] / 2
-        ax.annotate("", xy=(a["at"], hi), xytext=(a["at"], lo),
-                    arrowprops={"arrowstyle": "<->", "color": "black", "linewidth": 0.8 * t.line_width,
-                                "shrinkA": 0, "shrinkB": 0})
+        if a["gap"] >= 0.02 * yspan:
+            ax.annotate("", xy=(a["at"], hi), xytext=(a["at"], lo),
+                        arrowprops={"arrowstyle": "<->", "color": "black", "linewidth": 0.8 * t.line_width,
+                                    "shrinkA": 0, "shrinkB": 0})
+        else:                        # a gap too small to draw: a short bar, never the crossing's x
+            ax.plot([a["at"]], [a["centre"]], marker="|", markersize=1.4 * t.font_pt * 0.5, color="black",
+                    markeredgewidth=0.8 * t.line_width, linestyle="none")
         if rank < 8:
-            txt = ax.annotate(a.get("text") or f"gap {a['gap']:.3g} {p['energy_unit']}", xy=(a["at"], hi),
-                              xytext=(4, 4 + (rank % 2) * 0.9 * t.font_pt), textcoords="offset points",
-                              fontsize=t.font_pt * 0.72, ha="left", va="bottom")
+            # two short lines on the side with room (a long label ran out of the axes)
+            text = (a.get("text") or f"gap {a['gap']:.3g} {p['energy_unit']}").replace("h*", "h·")
+            text = text.replace(" = ", " =\n", 1)
+            frac = (a["at"] - float(x.min())) / max(float(np.ptp(x)), 1e-300)
+            ha = "left" if frac < 0.3 else "right" if frac > 0.7 else "center"
+            dx = {"left": 4, "right": -4, "center": 0}[ha]
+            txt = ax.annotate(text, xy=(a["at"], hi), xytext=(dx, 4 + (rank % 2) * 1.8 * t.font_pt),
+                              textcoords="offset points", fontsize=t.font_pt * 0.72, ha=ha, va="bottom",
+                              multialignment="center")
             _outline(txt, 2.5, "white")
     ax.set_xlim(x.min(), x.max())
     ax.set_ylim(ymin - 0.04 * yspan, ymax + 0.04 * yspan)
