@@ -238,7 +238,9 @@ def cmd_open(args) -> int:
 
 
 def build_parser() -> argparse.ArgumentParser:
+    from core import __version__
     p = argparse.ArgumentParser(prog="wellscape", description="Bound states of quantum dots and atom traps.")
+    p.add_argument("--version", action="version", version=f"wellscape {__version__}")
     sub = p.add_subparsers(dest="command")
 
     s = sub.add_parser("solve", help="solve a project and print its levels")

@@ -566,7 +566,8 @@ def run_gui(args) -> int:
     ref = [window]
     _install_excepthook(ref)
     target = Path(project) if project else SAMPLES_DIR / DEFAULT_SAMPLE
-    opened = window.open_file(target, ask=False)
+    # an installed wheel ships no sample projects: the window then starts on its new-project template
+    opened = window.open_file(target, ask=False) if project or target.is_file() else True
     if not opened and shot:
         print(f"wellscape: error: {window.strip.message.toolTip()}", file=sys.stderr)
         window.session.shutdown()
