@@ -207,15 +207,18 @@ def cmd_check(args) -> int:
     from core.solve import choose_scheme
     from core.units import get_units
 
+    from core.estimate import estimate_solve
+
     project = _load(args.project)
-    v = evaluate_potential(project)
     g = project.grid
+    k = project.solver.states
+    estimate_solve(project, measure=False).check()      # sizes first: refused before anything is allocated
+    v = evaluate_potential(project)
     u = get_units(project.units)
     scheme = project.solver.scheme
     reason = "set in the project"
     if scheme == "auto":
         scheme, reason = choose_scheme(g, v)
-    k = project.solver.states
     mem = solver_memory_bytes(g.size, k + max(4, k // 2), bool(any(project.magnetic_field)))
     print(f"{args.project}: valid (schema {project.schema_version})")
     print(f"  title: {project.title}")

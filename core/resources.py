@@ -24,6 +24,7 @@ def available_memory_bytes() -> int:
 
 
 def format_bytes(n: float) -> str:
+    n = float(min(n, 2**1000))          # an exact integer of any size prints
     for unit in ("B", "KiB", "MiB", "GiB", "TiB"):
         if abs(n) < 1024 or unit == "TiB":
             return f"{n:.3g} {unit}" if unit != "B" else f"{int(n)} B"
@@ -31,11 +32,14 @@ def format_bytes(n: float) -> str:
     return f"{n:.3g} TiB"
 
 
-def check_memory(needed_bytes: int, *, what: str = "this request", fraction: float = 0.8) -> None:
-    """Raise MemoryLimitError if ``needed_bytes`` exceeds ``fraction`` of the available memory."""
+_SOLVE_HINT = ("Use a coarser grid, the spectral scheme (accurate on far fewer points for smooth potentials), "
+               "or fewer states.")
+
+
+def check_memory(needed_bytes: int, *, what: str = "this request", fraction: float = 0.8,
+                 hint: str = _SOLVE_HINT) -> None:
+    """Raise MemoryLimitError if ``needed_bytes`` (an exact integer) exceeds ``fraction`` of the available memory."""
     avail = available_memory_bytes()
     if needed_bytes > fraction * avail:
         raise MemoryLimitError(
-            f"{what} needs about {format_bytes(needed_bytes)}, but only {format_bytes(avail)} is available. "
-            "Use a coarser grid, the spectral scheme (accurate on far fewer points for smooth potentials), "
-            "or fewer states.")
+            f"{what} needs about {format_bytes(needed_bytes)}, but only {format_bytes(avail)} is available. {hint}")
