@@ -244,6 +244,9 @@ def build_parser() -> argparse.ArgumentParser:
     from core import __version__
     p = argparse.ArgumentParser(prog="wellscape", description="Bound states of quantum dots and atom traps.")
     p.add_argument("--version", action="version", version=f"wellscape {__version__}")
+    p.add_argument("--map-folder", action="append", metavar="DIR", default=[],
+                   help="also read potential maps from DIR (by default only from the project's own folder); "
+                        "repeatable")
     sub = p.add_subparsers(dest="command")
 
     s = sub.add_parser("solve", help="solve a project and print its levels")
@@ -297,6 +300,10 @@ def main(argv: Optional[Sequence[str]] = None) -> int:
             return 0
         args = parser.parse_args(["open"])
     try:
+        if args.map_folder:
+            from core.maps import allow_map_folder
+            for folder in args.map_folder:
+                allow_map_folder(folder)
         return int(args.func(args) or 0)
     except (WellscapeError, _UsageError) as exc:
         print(f"wellscape: error: {exc}", file=sys.stderr)

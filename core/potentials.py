@@ -18,7 +18,7 @@ from .formula import nonfinite_report, parse_formula
 from .gates import Gate, gates_potential
 from .grid import Grid
 from .limits import MASS_RANGE, MAX_ENERGY, MAX_MAGNETIC_FIELD, POTENTIAL_WORK_ARRAYS
-from .maps import interpolate_map, load_map_file
+from .maps import confined_map_path, interpolate_map, load_map_file
 from .materials import get_material
 from .resources import check_memory
 from .project import FieldTerm, FormulaTerm, GatesTerm, MapTerm, Project
@@ -151,9 +151,10 @@ _MAP_CACHE: "OrderedDict[tuple, np.ndarray]" = OrderedDict()
 
 
 def _map_values(term: MapTerm, base_dir: Optional[str], path: str) -> np.ndarray:
-    p = Path(term.file)
-    if not p.is_absolute():
-        p = Path(base_dir or ".") / p
+    try:
+        p = confined_map_path(term.file, base_dir)
+    except InputError as exc:
+        raise ProjectError(str(exc), path=f"{path}.file") from None
     try:
         st = os.stat(p)
         key = (str(p.resolve()), st.st_mtime_ns, st.st_size, term.array)
