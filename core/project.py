@@ -40,7 +40,7 @@ from .atomic import atomic_write
 from .errors import FormulaError, InputError, ProjectError
 from .formula import RESERVED_NAMES, parse_formula
 from .grid import BOUNDARIES, Grid
-from .jsonfile import parse_json, read_text_file
+from .jsonfile import parse_json, read_text_file, repair_text
 from .kinetic import SCHEMES
 from .limits import MASS_RANGE, MAX_COORDINATE, MAX_MAGNETIC_FIELD, MAX_PATH_CHARS, MAX_POINTS_PER_AXIS
 from .materials import get_material, material_names
@@ -590,7 +590,9 @@ def _dump(value, indent: int = 0) -> str:
 
 
 def project_to_json(project: Project) -> str:
-    return _dump(project_to_dict(project)) + "\n"
+    """The project's JSON text; a lone surrogate in any text (which no UTF-8 file can hold, and which a
+    window's text field can produce) is written as U+FFFD, so that saving always succeeds."""
+    return repair_text(_dump(project_to_dict(project)) + "\n")
 
 
 def project_from_json(text: str, *, base_dir: Optional[str] = None, source: str = "project") -> Project:
