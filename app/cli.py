@@ -316,4 +316,7 @@ def main(argv: Optional[Sequence[str]] = None) -> int:
 
 
 if __name__ == "__main__":
-    sys.exit(main())
+    # run as ``python -m app.cli``: use the imported module's main, so that its error classes are the
+    # ones the subcommand modules (which import app.cli) raise
+    from app.cli import main as _main
+    sys.exit(_main())
