@@ -341,7 +341,14 @@ class MainWindow(QMainWindow):
         try:
             self.session.open(path)
         except WellscapeError as exc:
-            self.strip.show_message(f"Could not open {Path(path).name}: {exc}", "error")
+            text = f"Could not open {Path(path).name}: {exc}"
+            self.strip.show_message(text, "error")
+            if not ask:        # at start (no file dialog was seen): say it in a dialog, the window lives on
+                box = QMessageBox(QMessageBox.Icon.Warning, "Could not open the project", text,
+                                  QMessageBox.StandardButton.Ok, self)
+                box.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+                box.open()                      # not modal to the program: tests and scripts go on
+                self.open_error_box = box
             return False
         self.strip.show_message(f"Opened {Path(path).name}. Press Solve (F5) to find its states.")
         return True

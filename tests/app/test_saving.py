@@ -81,3 +81,20 @@ def test_window_session_cleans_stale_recovery_temporaries(qapp, settings, tmp_pa
         assert not stale.exists()
     finally:
         s.shutdown()
+
+
+def test_window_shows_a_dialog_for_a_malformed_file_at_start(session, qtbot, tmp_path):
+    """A file whose term kind is a list (it once raised TypeError and the window died at start)."""
+    from app.main import MainWindow
+    bad = tmp_path / "bad.json"
+    bad.write_text('{"schema_version": 2, "units": "semiconductor", "material": "GaAs", "grid": {"lower": [-50, -50],'
+                   ' "upper": [50, 50], "points": [16, 16]}, "potential": [{"kind": ["formula"]}]}', encoding="utf-8")
+    w = MainWindow(session=session, confirm_close=lambda: "discard")
+    qtbot.addWidget(w)
+    w.show()
+    assert w.open_file(bad, ask=False) is False
+    box = w.open_error_box
+    assert box.isVisible() and "potential[0].kind: expected one of formula" in box.text()
+    assert w.isVisible() and session.project.title != ""
+    box.close()
+    w.close()
