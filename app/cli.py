@@ -213,6 +213,10 @@ def cmd_check(args) -> int:
     g = project.grid
     k = project.solver.states
     estimate_solve(project, measure=False).check()      # sizes first: refused before anything is allocated
+    from core.potentials import magnetic_field, project_masses, resolve_parameters
+    params = resolve_parameters(project)
+    project_masses(project, params)                      # formulas of parameters: their values are checked too
+    magnetic_field(project, params)
     v = evaluate_potential(project)
     u = get_units(project.units)
     scheme = project.solver.scheme

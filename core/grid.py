@@ -20,7 +20,7 @@ from typing import Sequence
 import numpy as np
 
 from .errors import InputError
-from .limits import MAX_COORDINATE, MAX_POINTS_PER_AXIS
+from .limits import MAX_COORDINATE, MAX_POINTS_PER_AXIS, MIN_VOLUME_ELEMENT
 
 __all__ = ["Grid", "HARD_WALL", "PERIODIC", "BOUNDARIES"]
 
@@ -110,6 +110,10 @@ class Grid:
         object.__setattr__(self, "upper", hi)
         object.__setattr__(self, "points", pts)
         object.__setattr__(self, "boundary", bnd)
+        dv = self.volume_element
+        if not (math.isfinite(dv) and dv >= MIN_VOLUME_ELEMENT):
+            raise InputError(f"grid: the spacing ({', '.join(f'{h:.3g}' for h in self.spacing)}) is too small "
+                             f"for floating-point arithmetic; use a larger box or fewer points")
 
     # -- geometry -------------------------------------------------------------------------
     @property

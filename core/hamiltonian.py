@@ -338,7 +338,7 @@ def build_hamiltonian(grid: Grid, potential, *, mass=1.0, units="dimensionless",
                              f"{MASS_RANGE[0]:g} .. {MASS_RANGE[1]:g} {u.mass_unit}")
     prefactors = tuple(u.kinetic_prefactor(mv) for mv in masses)
     for a, (c, h) in enumerate(zip(prefactors, grid.spacing)):
-        scale = c / h**2 if h > 0 else math.inf
+        scale = c / (h * h) if h * h > 0 else math.inf
         if not scale <= MAX_ENERGY:
             raise InputError(f"the kinetic energy scale along {'xyz'[a]} (hbar^2/2m over the spacing squared) is "
                              f"{scale:.3g} {u.energy_unit}, beyond {MAX_ENERGY:g}: the spacing is too fine for "

@@ -16,12 +16,15 @@ def read_text_file(path: Union[str, os.PathLike], *, kind: str, max_bytes: int, 
                    too_big_hint: str = "") -> str:
     """The UTF-8 text of a small file, or ``error`` naming the problem (missing, folder, too big, not UTF-8)."""
     p = Path(path)
+    shown = str(p) if len(str(p)) <= 200 else str(p)[:197] + "..."
+    if "\0" in str(p):
+        raise error(f"the {kind} path holds a NUL character, which no file name can contain")
     try:
         size = p.stat().st_size
     except FileNotFoundError:
-        raise error(f"no such {kind}: {p}") from None
+        raise error(f"no such {kind}: {shown}") from None
     except OSError as exc:
-        raise error(f"cannot read {p}: {exc.strerror or exc}") from None
+        raise error(f"cannot read {shown}: {exc.strerror or exc}") from None
     if p.is_dir():
         raise error(f"{p} is a folder, not a {kind}")
     if size > max_bytes:

@@ -7,7 +7,7 @@ each error names the bound it broke.
 """
 from __future__ import annotations
 
-__all__ = ["MAX_POINTS_PER_AXIS", "MAX_COORDINATE", "MASS_RANGE", "MAX_ENERGY", "MAX_MAGNETIC_FIELD",
+__all__ = ["MAX_POINTS_PER_AXIS", "MAX_COORDINATE", "MIN_VOLUME_ELEMENT", "MASS_RANGE", "MAX_ENERGY", "MAX_MAGNETIC_FIELD",
            "MAX_MAP_BYTES", "MAX_POLYGON_VERTICES", "MAX_WORKERS", "MAX_PATH_CHARS",
            "POTENTIAL_WORK_ARRAYS"]
 
@@ -15,6 +15,8 @@ __all__ = ["MAX_POINTS_PER_AXIS", "MAX_COORDINATE", "MASS_RANGE", "MAX_ENERGY", 
 MAX_POINTS_PER_AXIS = 100_000_000
 #: |lower|, |upper| of a grid or a map, in the length unit
 MAX_COORDINATE = 1e12
+#: the product of a grid's spacings, in the length unit ** ndim (a state's norm sums |psi|^2 times it)
+MIN_VOLUME_ELEMENT = 1e-250
 #: effective mass, in the unit system's mass unit (m0, u, m_e or 1)
 MASS_RANGE = (1e-6, 1e9)
 #: |V| anywhere on the grid, and the kinetic energy scale hbar^2 / (2 m h^2), in the energy unit;

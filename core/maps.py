@@ -32,7 +32,7 @@ from .grid import AXIS_NAMES, Grid
 from .limits import MAX_MAP_BYTES, MAX_PATH_CHARS
 from .resources import format_bytes
 
-__all__ = ["load_map_file", "interpolate_map", "MAP_SUFFIXES", "INTERPOLATION_METHODS", "allow_map_folder",
+__all__ = ["load_map_file", "interpolate_map", "MAP_SUFFIXES", "INTERPOLATION_METHODS", "allow_map_folder", "npz_headers",
            "confined_map_path", "MAP_FOLDERS_VARIABLE"]
 
 MAP_SUFFIXES = (".npy", ".npz", ".csv", ".txt")
@@ -50,8 +50,40 @@ _PICKLE_MESSAGE = "it contains pickled Python objects, which are refused (only p
 
 
 # -- loading ----------------------------------------------------------------------------------
-def _npy_header(fp, source: str) -> tuple:
-    """(shape, fortran_order, dtype) from an .npy stream's header, read without reading the data."""
+def npz_headers(path, *, source: str, max_bytes: int) -> dict:
+    """``{name: (shape, dtype)}`` of every array in an ``.npz`` archive, read from the members' headers
+    only (nothing is inflated beyond them); raises InputError for a damaged archive, pickled members
+    or an array declared larger than ``max_bytes``."""
+    try:
+        archive = zipfile.ZipFile(path)
+    except (zipfile.BadZipFile, OSError, EOFError, ValueError):
+        raise InputError(f"{source}: not a readable .npz archive") from None
+    out = {}
+    with archive:
+        infos = [i for i in archive.infolist() if not i.is_dir()]
+        if len(infos) > _MAX_MEMBERS:
+            raise InputError(f"{source}: the archive holds {len(infos):,} members; at most {_MAX_MEMBERS}")
+        for info in infos:
+            name = info.filename[:-4] if info.filename.endswith(".npy") else info.filename
+            member = f"{source}: array {name[:40]!r}"
+            try:
+                with archive.open(info) as fh:
+                    shape, _fortran, dtype = _npy_header(fh, member, real=False)
+            except InputError:
+                raise
+            except (OSError, EOFError, zipfile.BadZipFile, ValueError, RuntimeError, NotImplementedError):
+                raise InputError(f"{member} cannot be read (damaged or truncated)") from None
+            nbytes = math.prod(int(n) for n in shape) * max(dtype.itemsize, 1)
+            if nbytes > max_bytes:
+                raise InputError(f"{member} declares {format_bytes(nbytes)}, more than the {format_bytes(max_bytes)} "
+                                 f"such a file may hold")
+            out[name] = (tuple(int(n) for n in shape), dtype)
+    return out
+
+
+def _npy_header(fp, source: str, real: bool = True) -> tuple:
+    """(shape, fortran_order, dtype) from an .npy stream's header, read without reading the data;
+    ``real``: also require a real map array of an accepted size."""
     fmt = np.lib.format
     try:
         version = fmt.read_magic(fp)
@@ -68,7 +100,8 @@ def _npy_header(fp, source: str) -> tuple:
         raise InputError(f"{source}: not a readable .npy array (the header is damaged)") from None
     if dtype.hasobject:
         raise InputError(f"{source}: {_PICKLE_MESSAGE}")
-    _check_declared(shape, dtype, source)
+    if real:
+        _check_declared(shape, dtype, source)
     return shape, fortran, dtype
 
 
@@ -284,7 +317,8 @@ def confined_map_path(file: str, base_dir) -> Path:
     except (OSError, RuntimeError):
         raise InputError(f"map file {file}: cannot be resolved (a loop of links?)") from None
     if not any(target == r or r in target.parents for r in roots):
-        raise InputError(f"map file {file} is outside the project's folder {roots[0]}; maps are read only from "
+        link = f" (it resolves to {target})" if target != Path(os.path.abspath(p)) else ""
+        raise InputError(f"map file {file}{link} is outside the project's folder {roots[0]}; maps are read only from "
                          f"there unless you allow another folder (wellscape --map-folder DIR, or the "
                          f"{MAP_FOLDERS_VARIABLE} environment variable)")
     return p
