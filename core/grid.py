@@ -57,8 +57,12 @@ def _as_tuple(values, ndim: int | None, what: str, kind=float) -> tuple:
                 if abs(fv) > MAX_COORDINATE:
                     raise InputError(f"grid {what}[{i}]: at most {MAX_COORDINATE:g} in size (length unit), got {fv:g}")
                 out.append(fv)
+        except InputError:
+            raise
         except (TypeError, ValueError, OverflowError):
-            raise InputError(f"grid {what}[{i}]: expected {'an integer' if kind is int else 'a finite number'}, got {v!r}") from None
+            shown = repr(v) if len(repr(v)) <= 60 else repr(v)[:57] + "..."
+            raise InputError(f"grid {what}[{i}]: expected {'an integer' if kind is int else 'a finite number'}, "
+                             f"got {shown}") from None
     return tuple(out)
 
 
