@@ -89,6 +89,10 @@ def _rebased(project: Project, folder: Path) -> Project:
             target = Path(t.file)
             if not target.is_absolute():
                 target = (Path(project.base_dir or ".") / target).resolve()
+            if folder not in target.resolve().parents:
+                # the map stays where it was: reading it from outside the new folder is allowed here
+                from core.maps import allow_map_folder
+                allow_map_folder(target.resolve().parent)
             try:
                 new = os.path.relpath(target, folder)
             except ValueError:          # another drive (Windows): keep it absolute

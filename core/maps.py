@@ -272,7 +272,7 @@ def load_map_file(path, *, array_name: str | None = None) -> np.ndarray:
         raise InputError(f"map file {given}: cannot be opened ({getattr(error, 'strerror', None) or error})") from None
     if not p.is_file():
         raise InputError(f"map file {given}: is not a regular file")
-    shown = given if p == given else f"{given} (a link to {p})"
+    shown = given if str(p) == os.path.abspath(given) else f"{given} (it resolves to {p})"
     suffix = p.suffix.lower()
     if suffix not in MAP_SUFFIXES:
         raise InputError(f"map file {shown}: unsupported file type {suffix or '(none)'!r}; "

@@ -36,6 +36,7 @@ def _limited(limit: int):
 
 def _child_env() -> dict:
     env = dict(os.environ)
+    env.pop("WELLSCAPE_MAP_FOLDERS", None)       # only the project's own folder: what a fresh shell allows
     env.update(OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", NUMBA_NUM_THREADS="1", MPLBACKEND="Agg",
                PYTHONPATH=str(ROOT))
     return env
@@ -106,12 +107,22 @@ def test_every_hostile_input_ends_in_success_or_one_line(tmp_path, references):
 def test_a_1000_cubed_grid_is_refused_small_and_fast(tmp_path, command):
     """The documented estimate-only command, and the potential writer, refuse before allocating:
     the child runs under an address-space limit of 300 MiB (importing numpy and scipy maps about
-    250 MiB) and its peak resident memory must stay under 200 MiB."""
+    250 MiB) and its peak resident memory (VmHWM) must stay under 200 MiB."""
     doc = dict(BASE, grid={"lower": [-50] * 3, "upper": [50] * 3, "points": [1000] * 3},
                potential=[{"kind": "formula", "label": "bowl", "formula": "0.01*r**2"}])
     project = tmp_path / "big.json"
     project.write_text(json.dumps(doc), encoding="utf-8")
-    argv = [sys.executable, "-m", "app.cli", command, str(project)]
+    hwm = tmp_path / "hwm.txt"
+    # VmHWM of the process after exec: ru_maxrss would also count the forked copy of this test process
+    code = ("import atexit, sys\n"
+            "def report():\n"
+            "    for line in open('/proc/self/status'):\n"
+            "        if line.startswith('VmHWM:'):\n"
+            f"            open({str(hwm)!r}, 'w').write(line.split()[1])\n"
+            "atexit.register(report)\n"
+            "from app.cli import main\n"
+            "sys.exit(main(sys.argv[1:]))\n")
+    argv = [sys.executable, "-c", code, command, str(project)]
     if command == "potential":
         argv += ["-o", str(tmp_path / "v.npy")]
     err_path = tmp_path / "stderr.txt"
@@ -120,13 +131,13 @@ def test_a_1000_cubed_grid_is_refused_small_and_fast(tmp_path, command):
         proc = subprocess.Popen(argv, cwd=ROOT, env=_child_env(), preexec_fn=_limited(300 * 2**20),
                                 stdout=subprocess.DEVNULL, stderr=err)
         try:
-            _pid, status, usage = os.wait4(proc.pid, 0)    # this child's own peak memory
+            _pid, status, _usage = os.wait4(proc.pid, 0)
         finally:
             proc.returncode = 0
     elapsed = time.perf_counter() - t0
     code = os.waitstatus_to_exitcode(status)
     text = err_path.read_text(encoding="utf-8")
-    peak_mib = usage.ru_maxrss / 1024
+    peak_mib = int(hwm.read_text()) / 1024
     print(f"\n{command} on 1000^3: exit {code} in {elapsed:.2f} s, peak resident memory {peak_mib:.0f} MiB")
     assert code == 2, text
     lines = text.strip().splitlines()

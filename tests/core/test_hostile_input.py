@@ -133,7 +133,7 @@ def test_links_are_resolved_before_the_suffix_and_content_is_never_quoted(tmp_pa
     link.symlink_to(secret)
     with pytest.raises(InputError) as info:
         load_map_file(link)
-    assert "unsupported file type" in str(info.value) and "a link to" in str(info.value)
+    assert "unsupported file type" in str(info.value) and f"resolves to {secret}" in str(info.value)
     words = tmp_path / "words.csv"
     words.write_text("1,2\nswordfish,3\n", encoding="utf-8")
     with pytest.raises(InputError, match="line 2 holds something that is not a number") as info:
