@@ -105,3 +105,13 @@ def test_installed_window_imports_from_the_venv(installed):
     lines = r.stdout.split()
     assert len(lines) == 3 and all(str(Path(line).resolve()).startswith(venv) for line in lines), lines
     assert not any(str(ROOT) in line for line in lines)
+
+
+def test_installed_window_opens_and_draws(installed, tmp_path):
+    """The installed ``wellscape open`` builds the whole window (every editor and view) and saves a
+    screenshot, offscreen."""
+    shot = tmp_path / "window.png"
+    r = _run(installed, str(installed["venv"] / "bin" / "wellscape"), "open", str(SAMPLE), "--screenshot", str(shot),
+             timeout=300)
+    assert r.returncode == 0, r.stderr[-2000:]
+    assert shot.is_file() and shot.stat().st_size > 10_000
