@@ -254,11 +254,16 @@ class _Reader:
             self.fail(path, f"expected an integer of at most {maximum:,}, got {self.show(n)}")
         return n
 
-    def text(self, value, path: str, *, allow_empty=True) -> str:
+    def text(self, value, path: str, *, allow_empty=True, lines=False) -> str:
         if not isinstance(value, str):
             self.fail(path, f"expected text, got {self.show(value)}")
         if not allow_empty and not value.strip():
             self.fail(path, "must not be empty")
+        bad = _CONTROL_IN_TEXT if lines else _CONTROL_IN_LINE
+        m = bad.search(value)
+        if m:           # a terminal escape in a title would be obeyed by the terminal that prints it
+            self.fail(path, f"holds the control character U+{ord(m.group()):04X}; text holds printable "
+                            f"characters{' and line breaks' if lines else ''} only")
         return value
 
     def boolean(self, value, path: str) -> bool:
@@ -292,6 +297,8 @@ def _extra_keys(data: dict, allowed, path: str, warnings: list):
 _TOP_KEYS = ("schema_version", "title", "notes", "units", "material", "grid", "parameters",
              "parameter_ranges", "potential", "electric_field", "magnetic_field", "spin", "solver")
 _IDENT = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
+_CONTROL_IN_LINE = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029]")
+_CONTROL_IN_TEXT = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f]")
 
 
 def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
@@ -316,7 +323,7 @@ def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
             r.fail(key, "missing (required)")
 
     title = r.text(data.get("title", "Untitled"), "title")
-    notes = r.text(data.get("notes", ""), "notes")
+    notes = r.text(data.get("notes", ""), "notes", lines=True)
     units = r.text(data["units"], "units")
     if units not in UNIT_SYSTEMS:
         r.fail("units", f"unknown unit system {units!r}; choose one of {', '.join(UNIT_SYSTEMS)}")
@@ -445,7 +452,7 @@ def _read_term(r: _Reader, raw, path: str, ndim: int, warnings):
     common = ("kind", "label", "enabled")
     if kind == "formula":
         _extra_keys(raw, common + ("formula",), path, warnings)
-        text = r.text(raw.get("formula", ""), f"{path}.formula", allow_empty=False)
+        text = r.text(raw.get("formula", ""), f"{path}.formula", allow_empty=False, lines=True)
         try:
             parse_formula(text, parameters=r.parameters)
         except FormulaError as exc:

@@ -104,6 +104,7 @@ def project_texts(folder: Path) -> dict:
         "grid_box_tiny": _with(grid={"lower": [0, 0], "upper": [1e-300, 1e-300], "points": [12, 12]}),
         "tolerance_tiny": _with(solver={"states": 2, "tolerance": 1e-300}),
         "title_lone_surrogate": _with(title="\ud800"),
+        "title_terminal_escape": _with(title="\x1b]0;owned\x07\x1b[2J"),
         "label_lone_surrogate": _with(potential=[{"kind": "formula", "label": "\udfff", "formula": "x**2"}]),
         "parameter_name_surrogate": _with(parameters={"\ud800": 1.0}),
         "map_path_nul": _map_term("a\u0000b.npy"),

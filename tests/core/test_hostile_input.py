@@ -75,6 +75,12 @@ def test_duplicate_keys_and_lone_surrogates_are_reported():
     assert parse_json('{"t": "\\ud83d\\ude00"}', source="f") == {"t": "\U0001F600"}   # a proper pair
 
 
+def test_terminal_control_characters_in_texts_are_refused():
+    with pytest.raises(ProjectError, match=r"title: holds the control character U\+001B"):
+        project_from_dict(doc(title="dot \x1b]0;owned\x07"))
+    assert project_from_dict(doc(notes="two\nlines\tand a tab")).notes == "two\nlines\tand a tab"
+
+
 def test_a_term_kind_of_the_wrong_type_is_named():
     with pytest.raises(ProjectError, match=r"potential\[0\].kind: expected one of"):
         project_from_dict(doc(potential=[{"kind": ["formula"]}]))
