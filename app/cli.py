@@ -312,6 +312,16 @@ def main(argv: Optional[Sequence[str]] = None) -> int:
     except (WellscapeError, _UsageError) as exc:
         print(f"wellscape: error: {exc}", file=sys.stderr)
         return EXIT_USER_ERROR
+    except MemoryError:            # the estimates refuse what will not fit; this is the last line of defence
+        print("wellscape: error: ran out of memory (more than the estimate allowed for); use a coarser grid or "
+              "fewer states", file=sys.stderr)
+        return EXIT_USER_ERROR
+    except OSError as exc:         # a file named on the command line cannot be read or written
+        if isinstance(exc, BrokenPipeError):
+            return 0
+        where = f" {exc.filename}" if getattr(exc, "filename", None) else ""
+        print(f"wellscape: error: cannot use{where}: {exc.strerror or type(exc).__name__}", file=sys.stderr)
+        return EXIT_USER_ERROR
     except KeyboardInterrupt:
         print("wellscape: interrupted", file=sys.stderr)
         return 130

@@ -323,6 +323,19 @@ def build_cases(folder: Path, good_sweep: Path, good_sheet: Path) -> list:
         cases.append({"name": f"figure --from:{name}",
                       "argv": ["figure", "--from", str(path), "-o", str(out_dir / f"sh_{name}.png"), "--dpi", "40"],
                       "cwd": str(folder)})
+    missing = folder / "no_such_folder"
+    for name, argv in (("solve:states_negative", ["solve", str(sample), "--states", "-5"]),
+                       ("solve:set_nan", ["solve", str(sample), "--set", "hw=nan"]),
+                       ("solve:set_1e400", ["solve", str(sample), "--set", "hw=1e400"]),
+                       ("solve:out_is_a_file", ["solve", str(sample), "--out", str(sample)]),
+                       ("potential:output_folder_missing", ["potential", str(sample), "-o", str(missing / "v.npy")]),
+                       ("potential:output_type_unknown", ["potential", str(sample), "-o", str(out_dir / "v.xyz")]),
+                       ("figure:dpi_huge", ["figure", str(sample), "-o", str(out_dir / "d.png"), "--dpi", "1e9"]),
+                       ("figure:layout_many_states", ["figure", str(sample), "-o", str(out_dir / "l.png"),
+                                                      "--layout", "states100000"]),
+                       ("figure:output_folder_missing", ["figure", str(sample), "-o", str(missing / "f.png"),
+                                                         "--layout", "levels", "--dpi", "40"])):
+        cases.append({"name": name, "argv": argv, "cwd": str(folder)})
     for name, extra in (("workers_huge", ["--workers", "100000"]), ("steps_huge", ["--steps", "10000000"]),
                         ("from_nan", ["--from", "nan"]), ("cluster_bad", ["--cluster", "udp://x"])):
         argv = ["sweep", str(sample), "--vary", "hw", "--from", "2", "--to", "3", "--steps", "2"]
