@@ -219,15 +219,22 @@ def cmd_check(args) -> int:
     from core.solve import choose_scheme
     from core.units import get_units
 
+    from core.estimate import estimate_solve
+
     project = _load(args.project)
-    v = evaluate_potential(project)
     g = project.grid
+    k = project.solver.states
+    estimate_solve(project, measure=False).check()      # sizes first: refused before anything is allocated
+    from core.potentials import magnetic_field, project_masses, resolve_parameters
+    params = resolve_parameters(project)
+    project_masses(project, params)                      # formulas of parameters: their values are checked too
+    magnetic_field(project, params)
+    v = evaluate_potential(project)
     u = get_units(project.units)
     scheme = project.solver.scheme
     reason = "set in the project"
     if scheme == "auto":
         scheme, reason = choose_scheme(g, v)
-    k = project.solver.states
     mem = solver_memory_bytes(g.size, k + max(4, k // 2), bool(any(project.magnetic_field)))
     print(f"{args.project}: valid (schema {project.schema_version})")
     print(f"  title: {project.title}")
@@ -254,7 +261,12 @@ def cmd_open(args) -> int:
 
 
 def build_parser() -> argparse.ArgumentParser:
+    from core import __version__
     p = argparse.ArgumentParser(prog="wellscape", description="Bound states of quantum dots and atom traps.")
+    p.add_argument("--version", action="version", version=f"wellscape {__version__}")
+    p.add_argument("--map-folder", action="append", metavar="DIR", default=[],
+                   help="also read potential maps from DIR (by default only from the project's own folder); "
+                        "repeatable")
     sub = p.add_subparsers(dest="command")
 
     s = sub.add_parser("solve", help="solve a project and print its levels")
@@ -308,9 +320,23 @@ def main(argv: Optional[Sequence[str]] = None) -> int:
             return 0
         args = parser.parse_args(["open"])
     try:
+        if args.map_folder:
+            from core.maps import allow_map_folder
+            for folder in args.map_folder:
+                allow_map_folder(folder)
         return int(args.func(args) or 0)
     except (WellscapeError, _UsageError) as exc:
         print(f"wellscape: error: {exc}", file=sys.stderr)
+        return EXIT_USER_ERROR
+    except MemoryError:            # the estimates refuse what will not fit; this is the last line of defence
+        print("wellscape: error: ran out of memory (more than the estimate allowed for); use a coarser grid or "
+              "fewer states", file=sys.stderr)
+        return EXIT_USER_ERROR
+    except OSError as exc:         # a file named on the command line cannot be read or written
+        if isinstance(exc, BrokenPipeError):
+            return 0
+        where = f" {exc.filename}" if getattr(exc, "filename", None) else ""
+        print(f"wellscape: error: cannot use{where}: {exc.strerror or type(exc).__name__}", file=sys.stderr)
         return EXIT_USER_ERROR
     except KeyboardInterrupt:
         print("wellscape: interrupted", file=sys.stderr)
@@ -320,4 +346,7 @@ def main(argv: Optional[Sequence[str]] = None) -> int:
 
 
 if __name__ == "__main__":
-    sys.exit(main())
+    # run as ``python -m app.cli``: use the imported module's main, so that its error classes are the
+    # ones the subcommand modules (which import app.cli) raise
+    from app.cli import main as _main
+    sys.exit(_main())

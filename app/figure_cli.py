@@ -178,7 +178,9 @@ def cmd_figure(args) -> int:
             from core.sweep import load_sweep
         except ImportError:
             _fail("this Wellscape has no sweep support (core.sweep is missing)")
-        sweep = load_sweep(args.sweep)
+        from core.sweepfile import check_sweep_archive, validate_sweep
+        check_sweep_archive(args.sweep)                  # headers and sizes before anything is loaded
+        sweep = validate_sweep(load_sweep(args.sweep), f"sweep file {args.sweep}")
         _warn_if_other_project(project, sweep, args.sweep)
     layout = args.layout
     tokens = parse_layout(layout) if layout else None

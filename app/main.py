@@ -341,7 +341,14 @@ class MainWindow(QMainWindow):
         try:
             self.session.open(path)
         except WellscapeError as exc:
-            self.strip.show_message(f"Could not open {Path(path).name}: {exc}", "error")
+            text = f"Could not open {Path(path).name}: {exc}"
+            self.strip.show_message(text, "error")
+            if not ask:        # at start (no file dialog was seen): say it in a dialog, the window lives on
+                box = QMessageBox(QMessageBox.Icon.Warning, "Could not open the project", text,
+                                  QMessageBox.StandardButton.Ok, self)
+                box.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+                box.open()                      # not modal to the program: tests and scripts go on
+                self.open_error_box = box
             return False
         self.strip.show_message(f"Opened {Path(path).name}. Press Solve (F5) to find its states.")
         return True
@@ -565,7 +572,8 @@ def run_gui(args) -> int:
     ref = [window]
     _install_excepthook(ref)
     target = Path(project) if project else SAMPLES_DIR / DEFAULT_SAMPLE
-    opened = window.open_file(target, ask=False)
+    # an installed wheel ships no sample projects: the window then starts on its new-project template
+    opened = window.open_file(target, ask=False) if project or target.is_file() else True
     if not opened and shot:
         print(f"wellscape: error: {window.strip.message.toolTip()}", file=sys.stderr)
         window.session.shutdown()

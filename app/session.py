@@ -37,6 +37,7 @@ import numpy as np
 from PySide6.QtCore import QObject, QSettings, QStandardPaths, QTimer, Signal
 from PySide6.QtGui import QUndoCommand, QUndoStack
 
+from core.atomic import clean_stale_temporaries
 from core.errors import InputError, WellscapeError
 from core.project import (MapTerm, Project, load_project, new_project as core_new_project, project_from_dict,
                           project_to_dict, save_project)
@@ -88,6 +89,10 @@ def _rebased(project: Project, folder: Path) -> Project:
             target = Path(t.file)
             if not target.is_absolute():
                 target = (Path(project.base_dir or ".") / target).resolve()
+            if folder not in target.resolve().parents:
+                # the map stays where it was: reading it from outside the new folder is allowed here
+                from core.maps import allow_map_folder
+                allow_map_folder(target.resolve().parent)
             try:
                 new = os.path.relpath(target, folder)
             except ValueError:          # another drive (Windows): keep it absolute
@@ -112,6 +117,41 @@ def _pid_alive(pid: int) -> bool:
     except OSError:
         return False
     return True
+
+
+def _start_time(pid: int) -> Optional[str]:
+    """The start time of process ``pid`` (clock ticks since boot, /proc), or None where unknown."""
+    try:
+        with open(f"/proc/{int(pid)}/stat", encoding="ascii", errors="replace") as fh:
+            fields = fh.read().rsplit(")", 1)[1].split()
+        return fields[19]                  # field 22 of stat(5); fields[0] is field 3
+    except (OSError, IndexError, ValueError):
+        return None
+
+
+def _process_key(pid: int) -> str:
+    """A recovery key unique to this process even after its id is reused: ``PID-STARTTIME``
+    (``PID-RANDOM`` where the start time is unknown)."""
+    tag = _start_time(pid)
+    if tag is None:
+        import uuid
+        tag = "u" + uuid.uuid4().hex[:12]
+    return f"{pid}-{tag}"
+
+
+def _key_alive(key: str) -> bool:
+    """True when the process that wrote recovery entry ``key`` is still running (the same process, not one
+    that was given its id later). Entries keyed by the bare id (older versions) are judged by the id."""
+    pid_text, _, tag = key.partition("-")
+    try:
+        pid = int(pid_text)
+    except ValueError:
+        return False
+    if not _pid_alive(pid):
+        return False
+    if not tag or tag.startswith("u"):
+        return True
+    return _start_time(pid) in (tag, None)
 
 
 @dataclass(frozen=True)
@@ -225,8 +265,9 @@ class Session(QObject):
             base = QStandardPaths.writableLocation(QStandardPaths.StandardLocation.AppDataLocation)
             recovery_dir = Path(base or Path.home() / ".wellscape") / "recovery"
         self._recovery_dir = Path(recovery_dir)
-        self._recovery_key = str(os.getpid())
-        self._recovery_file = self._recovery_dir / f"unsaved-{os.getpid()}.json"
+        self._recovery_key = _process_key(os.getpid())
+        self._recovery_file = self._recovery_dir / f"unsaved-{self._recovery_key}.json"
+        clean_stale_temporaries(self._recovery_dir, any_name=True)   # left by a window killed mid-write
         self._autosaved: Optional[Project] = None
         self._autosave_error_shown = False
         self._autosave_timer = QTimer(self)
@@ -544,11 +585,7 @@ class Session(QObject):
         for key, value in values.items():
             if key == self._recovery_key:
                 continue
-            try:
-                pid = int(key)
-            except ValueError:
-                pid = -1
-            if _pid_alive(pid):
+            if _key_alive(key):
                 continue            # another window is running and owns it
             if not isinstance(value, (list, tuple)) or len(value) < 4 or not Path(str(value[0])).is_file():
                 self._settings.remove(f"recovery/{key}")

@@ -7,6 +7,11 @@ from pathlib import Path
 
 import numpy as np
 
+from core.limits import MAX_WORKERS
+
+#: values of one sweep (each is a solve)
+MAX_STEPS = 100_000
+
 
 def add_sweep_parser(sub) -> None:
     s = sub.add_parser("sweep", help="vary a parameter, track levels, find anticrossings")
@@ -17,8 +22,15 @@ def add_sweep_parser(sub) -> None:
     s.add_argument("--to", dest="stop", type=float, required=True)
     s.add_argument("--steps", type=int, required=True, help="number of values, including both ends")
     s.add_argument("--states", type=int)
-    s.add_argument("--workers", type=int, default=1, help="local processes (chunks with warm starts)")
-    s.add_argument("--cluster", metavar="ADDRESS", help="a running dask.distributed scheduler, tcp://host:port")
+    s.add_argument("--workers", type=int, default=1,
+                   help=f"local processes (chunks with warm starts); at most the machine's processors "
+                        f"(and {MAX_WORKERS})")
+    s.add_argument("--cluster", metavar="ADDRESS",
+                   help="a running dask.distributed scheduler, tcp://host:port. The scheduler and its workers "
+                        "exchange pickled Python objects with this process, which can run code: connect only "
+                        "to a scheduler you trust")
+    s.add_argument("--cluster-timeout", type=float, default=10.0, metavar="SECONDS",
+                   help="give up when the scheduler has not connected and answered within this time (default 10)")
     s.add_argument("--out", metavar="DIR", help="write sweep.npz and sweep.csv into DIR")
     s.add_argument("--json", action="store_true", help="print machine-readable JSON")
     s.add_argument("--refine-budget", type=int, metavar="N",
@@ -27,12 +39,86 @@ def add_sweep_parser(sub) -> None:
     s.set_defaults(func=cmd_sweep)
 
 
+def _check_arguments(args, error) -> None:
+    """Refuse or cap the sweep's arguments before the project is read (one-line messages)."""
+    import math
+    import os
+
+    from core.project import MAX_STATES
+    for name, value in (("--from", args.start), ("--to", args.stop)):
+        if not math.isfinite(value):
+            raise error(f"{name} must be a finite number, got {value}")
+    if not 1 <= args.steps <= MAX_STEPS:
+        raise error(f"--steps must be between 1 and {MAX_STEPS:,}, got {args.steps}")
+    if args.states is not None and not 1 <= args.states <= MAX_STATES:
+        raise error(f"--states must be between 1 and {MAX_STATES:,}, got {args.states}")
+    if args.workers < 1:
+        raise error(f"--workers must be at least 1, got {args.workers}")
+    cap = max(1, min(MAX_WORKERS, os.cpu_count() or 1))
+    if args.workers > cap and not args.cluster:
+        print(f"wellscape: note: --workers {args.workers} is more than this machine's {cap} processors; "
+              f"using {cap}", file=sys.stderr)
+        args.workers = cap
+    elif args.workers > MAX_WORKERS:
+        print(f"wellscape: note: --workers {args.workers} capped at {MAX_WORKERS} chunks", file=sys.stderr)
+        args.workers = MAX_WORKERS
+    if not (math.isfinite(args.cluster_timeout) and 0 < args.cluster_timeout <= 3600):
+        raise error(f"--cluster-timeout must be between 0 and 3600 s, got {args.cluster_timeout}")
+    if args.cluster is not None:
+        _check_address(args.cluster, error)
+
+
+def _check_address(address: str, error) -> None:
+    from urllib.parse import urlsplit
+    if len(address) > 300 or "\0" in address:
+        raise error("--cluster: expected an address like tcp://host:8786")
+    parts = urlsplit(address if "://" in address else "tcp://" + address)
+    try:
+        port = parts.port
+    except ValueError:
+        port = None
+    if parts.scheme not in ("tcp", "tls") or not parts.hostname or port is None or not 0 < port < 65536:
+        raise error(f"--cluster: expected an address like tcp://host:8786, got {address[:60]!r}")
+
+
+def probe_scheduler(address: str, timeout: float, error) -> None:
+    """Connect to a dask scheduler and ask it who it is, all within ``timeout`` seconds (the TCP connect,
+    the comm handshake and the reply); raise ``error`` with a one-line reason otherwise."""
+    import asyncio
+    try:
+        from distributed.comm import connect
+    except ImportError:
+        raise error("--cluster needs dask.distributed: pip install 'wellscape[cluster]'; or drop --cluster "
+                    "and use --workers N") from None
+
+    async def ask():
+        comm = await connect(address if "://" in address else "tcp://" + address, timeout=timeout)
+        try:
+            await comm.write({"op": "identity", "reply": True})
+            reply = await comm.read()
+        finally:
+            comm.abort()
+        if not isinstance(reply, dict) or "type" not in reply:
+            raise ValueError("an unexpected reply")
+        return reply
+
+    try:
+        asyncio.run(asyncio.wait_for(ask(), timeout))
+    except (asyncio.TimeoutError, TimeoutError):
+        raise error(f"--cluster: the scheduler at {address} did not connect and answer within {timeout:g} s; "
+                    f"check the address, or drop --cluster and use --workers N") from None
+    except Exception as exc:        # refused, reset, not a scheduler: the reason, never a traceback
+        reason = (getattr(exc, "strerror", None) or str(exc).splitlines()[0] if str(exc) else type(exc).__name__)
+        reason = reason if len(reason) <= 160 else reason[:157] + "..."
+        raise error(f"--cluster: cannot use the scheduler at {address} ({reason}); check the address, or drop "
+                    f"--cluster and use --workers N") from None
+
+
 def cmd_sweep(args) -> int:
     from app.cli import _Progress, _UsageError, _load
     from core.sweep import run_sweep, save_sweep
 
-    if args.steps < 1:
-        raise _UsageError(f"--steps must be at least 1, got {args.steps}")
+    _check_arguments(args, _UsageError)
     project = _load(args.project)
     values = np.linspace(args.start, args.stop, args.steps)
     from core.estimate import estimate_sweep
@@ -41,11 +127,13 @@ def cmd_sweep(args) -> int:
         print(f"wellscape: {est.describe()}", file=sys.stderr)
     from core.errors import Cancelled
     bar = _Progress("sweep", enabled=None if not args.json else False)
+    if args.cluster:
+        probe_scheduler(args.cluster, args.cluster_timeout, _UsageError)
     interrupted = None
     try:
         result = run_sweep(project, args.vary, values, states=args.states, workers=args.workers,
-                           cluster=args.cluster, progress=bar, refine=not args.no_refine,
-                           refine_budget=args.refine_budget)
+                           cluster=args.cluster, cluster_timeout=args.cluster_timeout, progress=bar,
+                           refine=not args.no_refine, refine_budget=args.refine_budget)
     except Cancelled as exc:              # Ctrl-C: keep what was solved
         bar.done()
         if exc.partial is None:

@@ -23,7 +23,19 @@ from .errors import (Cancelled, FormulaError, InputError, MemoryLimitError, NotC
 from .grid import Grid  # noqa: E402
 from .units import UNIT_SYSTEMS, UnitSystem, get_units  # noqa: E402
 
-__version__ = "0.1.0"
+#: the version of the source tree; an installed copy reports its own metadata's version
+_SOURCE_VERSION = "0.1.0"
+
+
+def _installed_version() -> str:
+    from importlib.metadata import PackageNotFoundError, version
+    try:
+        return version("wellscape")
+    except PackageNotFoundError:            # run from a source tree that was never installed
+        return _SOURCE_VERSION
+
+
+__version__ = _installed_version()
 
 #: names served on first use (PEP 562), so that ``import core`` does not load the solver's
 #: compiled kernels until a Hamiltonian is applied (the window opens faster)

@@ -178,7 +178,7 @@ def _suggestion(grid: Grid, states: int, complex_: bool, scheme: str, budget: fl
     scale = max(largest_factor, 1e-300)
 
     def fits(points, k) -> bool:
-        return _memory(int(np.prod(points)), k, complex_) * scale <= budget
+        return _memory(math.prod(points), k, complex_) * scale <= budget     # exact: no int64 wrap
 
     def shrunk(f):
         return [max(8, int(p * f)) for p in grid.points]

@@ -1727,7 +1727,7 @@ _PANEL_KEYS = {
 def _read_panel(r: _Reader, raw, path: str) -> dict:
     d = r.obj(raw, path)
     kind = d.get("kind")
-    if kind not in _PANEL_KEYS:
+    if not isinstance(kind, str) or kind not in _PANEL_KEYS:
         r.fail(f"{path}.kind", f"expected one of {', '.join(_PANEL_KEYS)}, got {kind!r}"[:200])
     extra = set(d) - _PANEL_KEYS[kind]
     if extra:

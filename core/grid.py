@@ -13,12 +13,14 @@ Conventions (stable; other tools rely on them):
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Sequence
 
 import numpy as np
 
 from .errors import InputError
+from .limits import MAX_COORDINATE, MAX_POINTS_PER_AXIS, MIN_VOLUME_ELEMENT
 
 __all__ = ["Grid", "HARD_WALL", "PERIODIC", "BOUNDARIES"]
 
@@ -37,16 +39,30 @@ def _as_tuple(values, ndim: int | None, what: str, kind=float) -> tuple:
     for i, v in enumerate(values):
         try:
             if kind is int:
-                if isinstance(v, bool) or float(v) != int(v):
+                if isinstance(v, bool):
                     raise ValueError
-                out.append(int(v))
+                if not isinstance(v, (int, np.integer)):
+                    fv = float(v)                       # 64.0 is accepted, 64.5 and inf are not
+                    if not math.isfinite(fv) or fv != int(fv):
+                        raise ValueError
+                iv = int(v)
+                if iv > MAX_POINTS_PER_AXIS:
+                    raise InputError(f"grid {what}[{i}]: at most {MAX_POINTS_PER_AXIS:,} points per axis, "
+                                     f"got {'a ' + str(len(str(iv))) + '-digit number' if iv > 10**15 else iv}")
+                out.append(iv)
             else:
                 fv = float(v)
                 if not np.isfinite(fv):
                     raise ValueError
+                if abs(fv) > MAX_COORDINATE:
+                    raise InputError(f"grid {what}[{i}]: at most {MAX_COORDINATE:g} in size (length unit), got {fv:g}")
                 out.append(fv)
-        except (TypeError, ValueError):
-            raise InputError(f"grid {what}[{i}]: expected {'an integer' if kind is int else 'a finite number'}, got {v!r}") from None
+        except InputError:
+            raise
+        except (TypeError, ValueError, OverflowError):
+            shown = repr(v) if len(repr(v)) <= 60 else repr(v)[:57] + "..."
+            raise InputError(f"grid {what}[{i}]: expected {'an integer' if kind is int else 'a finite number'}, "
+                             f"got {shown}") from None
     return tuple(out)
 
 
@@ -98,6 +114,10 @@ class Grid:
         object.__setattr__(self, "upper", hi)
         object.__setattr__(self, "points", pts)
         object.__setattr__(self, "boundary", bnd)
+        dv = self.volume_element
+        if not (math.isfinite(dv) and dv >= MIN_VOLUME_ELEMENT):
+            raise InputError(f"grid: the spacing ({', '.join(f'{h:.3g}' for h in self.spacing)}) is too small "
+                             f"for floating-point arithmetic; use a larger box or fewer points")
 
     # -- geometry -------------------------------------------------------------------------
     @property
@@ -110,7 +130,8 @@ class Grid:
 
     @property
     def size(self) -> int:
-        return int(np.prod(self.points, dtype=np.int64))
+        """Number of grid points, an exact Python integer (never a wrapped 64-bit one)."""
+        return math.prod(self.points)
 
     @property
     def periodic(self) -> tuple:
@@ -146,15 +167,22 @@ class Grid:
         """Broadcastable coordinate arrays (``sparse=True``), cheap in memory."""
         return tuple(np.meshgrid(*self.axes, indexing="ij", sparse=True))
 
-    def coordinates(self) -> dict:
-        """Broadcastable ``x, y, z, r`` arrays (missing axes are 0) for evaluating formulas."""
+    def coordinates(self, names=("x", "y", "z", "r")) -> dict:
+        """Broadcastable coordinate arrays for evaluating formulas (missing axes are 0).
+
+        Only the ``names`` asked for are built: ``x, y, z`` are sparse (one axis each, cheap);
+        ``r`` is a full grid-sized array, so it is made only when a formula uses it.
+        """
+        wanted = set(names)
         mesh = self.mesh_sparse()
         zero = np.zeros((1,) * self.ndim)
         env = {}
         for a, name in enumerate(AXIS_NAMES):
-            env[name] = mesh[a] if a < self.ndim else zero
-        r2 = sum(m * m for m in mesh)
-        env["r"] = np.sqrt(r2)
+            if name in wanted:
+                env[name] = mesh[a] if a < self.ndim else zero
+        if "r" in wanted:
+            r2 = sum(m * m for m in mesh)
+            env["r"] = np.sqrt(r2)
         return env
 
     def refined(self, factor: float) -> "Grid":

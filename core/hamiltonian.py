@@ -18,6 +18,7 @@ Gauges (about a centre c):
 from __future__ import annotations
 
 import hashlib
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -26,6 +27,7 @@ import scipy.sparse as sp
 from .errors import InputError
 from .grid import Grid
 from .kinetic import check_scheme, kinetic_matrix_1d, stencil
+from .limits import MASS_RANGE, MAX_ENERGY, MAX_MAGNETIC_FIELD
 from .units import get_units
 
 
@@ -69,6 +71,10 @@ def check_potential(grid: Grid, potential) -> np.ndarray:
         first = tuple(int(i) for i in np.argwhere(bad)[0])
         coords = ", ".join(f"{n}={ax[i]:.4g}" for n, ax, i in zip("xyz", grid.axes, first))
         raise InputError(f"potential has {int(bad.sum())} NaN/Inf values, first at index {first} ({coords})")
+    peak = float(np.max(np.abs(v))) if v.size else 0.0
+    if peak > MAX_ENERGY:
+        raise InputError(f"the potential reaches {peak:.3g} in the energy unit, beyond the {MAX_ENERGY:g} a "
+                         f"potential may reach (the low levels would drown in rounding)")
     return np.ascontiguousarray(v)
 
 
@@ -326,7 +332,17 @@ def build_hamiltonian(grid: Grid, potential, *, mass=1.0, units="dimensionless",
     check_scheme(scheme)
     v = check_potential(grid, potential)
     masses = as_masses(mass, grid.ndim)
+    for mv in masses:
+        if not MASS_RANGE[0] <= mv <= MASS_RANGE[1]:
+            raise InputError(f"mass {mv:g} {u.mass_unit} is outside the accepted range "
+                             f"{MASS_RANGE[0]:g} .. {MASS_RANGE[1]:g} {u.mass_unit}")
     prefactors = tuple(u.kinetic_prefactor(mv) for mv in masses)
+    for a, (c, h) in enumerate(zip(prefactors, grid.spacing)):
+        scale = c / (h * h) if h * h > 0 else math.inf
+        if not scale <= MAX_ENERGY:
+            raise InputError(f"the kinetic energy scale along {'xyz'[a]} (hbar^2/2m over the spacing squared) is "
+                             f"{scale:.3g} {u.energy_unit}, beyond {MAX_ENERGY:g}: the spacing is too fine for "
+                             f"this mass; use fewer points or a larger box")
     kin = tuple(kinetic_matrix_1d(scheme, grid.shape[a], grid.spacing[a], grid.periodic[a])
                 for a in range(grid.ndim))
     b = np.zeros(3)
@@ -334,6 +350,9 @@ def build_hamiltonian(grid: Grid, potential, *, mass=1.0, units="dimensionless",
         bf = np.atleast_1d(np.asarray(magnetic_field, dtype=float))
         if bf.size > 3 or not np.all(np.isfinite(bf)):
             raise InputError(f"magnetic field must be up to 3 finite numbers, got {magnetic_field!r}")
+        if np.max(np.abs(bf), initial=0.0) > MAX_MAGNETIC_FIELD:
+            raise InputError(f"magnetic field {bf.tolist()} {u.magnetic_unit}: each component may reach at most "
+                             f"{MAX_MAGNETIC_FIELD:g} {u.magnetic_unit}")
         b[: bf.size] = bf
     phases = None
     if grid.ndim == 2:

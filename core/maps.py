@@ -7,7 +7,11 @@ A map is a 1D, 2D or 3D array of real numbers read from a file:
 * ``.csv`` / ``.txt`` -- a numeric table, comma- or whitespace-delimited (``#`` starts a
   comment).  A table gives a 2D array ``[row, column]``; a single row or column gives a 1D array.
 
-Files are treated as data only: pickled content is refused and never unpickled.
+Files are treated as data only: pickled content is refused and never unpickled.  Sizes are
+checked before data is read: the header of an ``.npy`` file (or of an archive member) declares
+the array, which must hold at most :data:`core.limits.MAX_MAP_BYTES`; a text table at most
+:data:`MAX_TEXT_MAP_BYTES`.  Links are resolved before the file type is judged, and no error
+quotes the file's content.
 
 Sample positions (convention used by :func:`interpolate_map`): along each axis the
 ``m`` samples of the map sit at evenly spaced nodes from ``lower`` to ``upper``
@@ -18,7 +22,6 @@ from __future__ import annotations
 
 import math
 import os
-import warnings
 import zipfile
 from pathlib import Path
 
@@ -26,8 +29,11 @@ import numpy as np
 
 from .errors import InputError
 from .grid import AXIS_NAMES, Grid
+from .limits import MAX_MAP_BYTES, MAX_PATH_CHARS
+from .resources import format_bytes
 
-__all__ = ["load_map_file", "interpolate_map", "MAP_SUFFIXES", "INTERPOLATION_METHODS"]
+__all__ = ["load_map_file", "interpolate_map", "MAP_SUFFIXES", "INTERPOLATION_METHODS", "allow_map_folder", "npz_headers",
+           "confined_map_path", "MAP_FOLDERS_VARIABLE"]
 
 MAP_SUFFIXES = (".npy", ".npz", ".csv", ".txt")
 
@@ -37,83 +43,182 @@ INTERPOLATION_METHODS = {"nearest": 2, "linear": 2, "slinear": 2, "cubic": 4, "p
 # Grid points may stick out of the map by this fraction of the map's extent (rounding).
 COVER_TOLERANCE = 1e-9
 
+#: a text table is parsed in Python lists, several times its size in memory
+MAX_TEXT_MAP_BYTES = 64 * 2**20
+
 _PICKLE_MESSAGE = "it contains pickled Python objects, which are refused (only plain numeric arrays are read)"
 
 
-# -- loading ---------------------------------------------------------------------------------
-def _is_pickle_refusal(error: ValueError) -> bool:
-    text = str(error).lower()
-    return "pickle" in text or "object arrays" in text
+# -- loading ----------------------------------------------------------------------------------
+def npz_headers(path, *, source: str, max_bytes: int) -> dict:
+    """``{name: (shape, dtype)}`` of every array in an ``.npz`` archive, read from the members' headers
+    only (nothing is inflated beyond them); raises InputError for a damaged archive, pickled members
+    or an array declared larger than ``max_bytes``."""
+    try:
+        archive = zipfile.ZipFile(path)
+    except (zipfile.BadZipFile, OSError, EOFError, ValueError):
+        raise InputError(f"{source}: not a readable .npz archive") from None
+    out = {}
+    with archive:
+        infos = [i for i in archive.infolist() if not i.is_dir()]
+        if len(infos) > _MAX_MEMBERS:
+            raise InputError(f"{source}: the archive holds {len(infos):,} members; at most {_MAX_MEMBERS}")
+        for info in infos:
+            name = info.filename[:-4] if info.filename.endswith(".npy") else info.filename
+            member = f"{source}: array {name[:40]!r}"
+            try:
+                with archive.open(info) as fh:
+                    shape, _fortran, dtype = _npy_header(fh, member, real=False)
+            except InputError:
+                raise
+            except (OSError, EOFError, zipfile.BadZipFile, ValueError, RuntimeError, NotImplementedError):
+                raise InputError(f"{member} cannot be read (damaged or truncated)") from None
+            nbytes = math.prod(int(n) for n in shape) * max(dtype.itemsize, 1)
+            if nbytes > max_bytes:
+                raise InputError(f"{member} declares {format_bytes(nbytes)}, more than the {format_bytes(max_bytes)} "
+                                 f"such a file may hold")
+            out[name] = (tuple(int(n) for n in shape), dtype)
+    return out
+
+
+def _npy_header(fp, source: str, real: bool = True) -> tuple:
+    """(shape, fortran_order, dtype) from an .npy stream's header, read without reading the data;
+    ``real``: also require a real map array of an accepted size."""
+    fmt = np.lib.format
+    try:
+        version = fmt.read_magic(fp)
+        if version == (1, 0):
+            shape, fortran, dtype = fmt.read_array_header_1_0(fp)
+        elif version == (2, 0):
+            shape, fortran, dtype = fmt.read_array_header_2_0(fp)
+        else:
+            raise InputError(f"{source}: .npy format version {version[0]}.{version[1]} is not read "
+                             f"(plain numeric arrays are written as 1.0 or 2.0)")
+    except InputError:
+        raise
+    except Exception:        # a damaged header; its text is file content, never quoted
+        raise InputError(f"{source}: not a readable .npy array (the header is damaged)") from None
+    if dtype.hasobject:
+        raise InputError(f"{source}: {_PICKLE_MESSAGE}")
+    if real:
+        _check_declared(shape, dtype, source)
+    return shape, fortran, dtype
+
+
+def _check_declared(shape: tuple, dtype: np.dtype, source: str) -> int:
+    """Refuse a declared array that is not a real map or is larger than ``limits.MAX_MAP_BYTES``."""
+    if dtype.names is not None or dtype.kind not in "iuf":
+        kind = "complex values" if dtype.kind == "c" else f"data of type {dtype}"
+        raise InputError(f"{source}: expected an array of real numbers, got {kind}")
+    if not shape:
+        raise InputError(f"{source}: holds a single number; a map needs 1, 2 or 3 axes")
+    if len(shape) > 3:
+        raise InputError(f"{source}: has {len(shape)} axes; a map needs 1, 2 or 3")
+    nbytes = math.prod(int(n) for n in shape) * dtype.itemsize       # exact integer
+    if nbytes > MAX_MAP_BYTES or math.prod(int(n) for n in shape) * 8 > MAX_MAP_BYTES:
+        raise InputError(f"{source}: declares an array of {' x '.join(str(int(n)) for n in shape)} values "
+                         f"({format_bytes(max(nbytes, 8 * math.prod(shape)))} as float64), more than the "
+                         f"{format_bytes(MAX_MAP_BYTES)} a map may hold")
+    return nbytes
 
 
 def _load_npy(path: Path) -> np.ndarray:
+    source = f"map file {path}"
     try:
-        data = np.load(path, allow_pickle=False)
-    except ValueError as error:
-        if _is_pickle_refusal(error):
-            raise InputError(f"map file {path}: {_PICKLE_MESSAGE}") from None
-        raise InputError(f"map file {path}: not a readable .npy array ({error})") from None
+        with open(path, "rb") as fh:
+            shape, _fortran, dtype = _npy_header(fh, source)
+            offset = fh.tell()
+            size = os.fstat(fh.fileno()).st_size
+            if offset + math.prod(shape) * dtype.itemsize > size:
+                raise InputError(f"{source}: is truncated (the header declares more values than the file holds)")
+            fh.seek(0)
+            return np.load(fh, allow_pickle=False)
+    except InputError:
+        raise
     except (OSError, EOFError) as error:
-        raise InputError(f"map file {path}: cannot be read ({error})") from None
-    if isinstance(data, np.lib.npyio.NpzFile):
-        data.close()
-        raise InputError(f"map file {path}: is a NumPy archive (.npz), not a single .npy array; "
-                         f"rename it to .npz")
-    return data
+        raise InputError(f"{source}: cannot be read ({getattr(error, 'strerror', None) or 'read error'})") from None
+    except ValueError:
+        raise InputError(f"{source}: not a readable .npy array") from None
+
+
+_MAX_MEMBERS = 1000
 
 
 def _load_npz(path: Path, array_name) -> np.ndarray:
+    source = f"map file {path}"
     try:
-        archive = np.load(path, allow_pickle=False)
-    except ValueError as error:
-        if _is_pickle_refusal(error):
-            raise InputError(f"map file {path}: {_PICKLE_MESSAGE}") from None
-        raise InputError(f"map file {path}: not a readable .npz archive ({error})") from None
-    except (OSError, EOFError, zipfile.BadZipFile) as error:
-        raise InputError(f"map file {path}: cannot be read ({error})") from None
-    if not isinstance(archive, np.lib.npyio.NpzFile):
-        raise InputError(f"map file {path}: is a single .npy array, not a .npz archive; rename it to .npy")
+        archive = zipfile.ZipFile(path)
+    except (zipfile.BadZipFile, OSError, EOFError, ValueError):
+        raise InputError(f"{source}: not a readable .npz archive") from None
     with archive:
-        names = list(archive.files)
+        infos = [i for i in archive.infolist() if not i.is_dir()]
+        if len(infos) > _MAX_MEMBERS:
+            raise InputError(f"{source}: the archive holds {len(infos):,} members; a map archive holds at most "
+                             f"{_MAX_MEMBERS}")
+        by_name = {(i.filename[:-4] if i.filename.endswith(".npy") else i.filename): i for i in infos}
+        names = list(by_name)
         if not names:
-            raise InputError(f"map file {path}: the archive holds no arrays")
-        listing = ", ".join(repr(n) for n in names)
+            raise InputError(f"{source}: the archive holds no arrays")
+        listing = ", ".join(repr(n if len(n) <= 40 else n[:37] + "...") for n in names[:20])
         if array_name is None:
             if len(names) > 1:
-                raise InputError(f"map file {path}: the archive holds {len(names)} arrays; "
-                                 f"choose one by name: {listing}")
+                raise InputError(f"{source}: the archive holds {len(names)} arrays; choose one by name: {listing}")
             name = names[0]
         else:
             name = str(array_name)
-            if name not in names:
-                raise InputError(f"map file {path}: no array named {name!r}; available: {listing}")
+            if name not in by_name:
+                raise InputError(f"{source}: no array named {name!r}; available: {listing}")
+        info = by_name[name]
+        member = f"{source}: array {name!r}"
+        if info.file_size > MAX_MAP_BYTES + 65536:
+            raise InputError(f"{member} inflates to {format_bytes(info.file_size)}, more than the "
+                             f"{format_bytes(MAX_MAP_BYTES)} a map may hold")
         try:
-            return archive[name]
-        except ValueError as error:
-            if _is_pickle_refusal(error):
-                raise InputError(f"map file {path}: array {name!r}: {_PICKLE_MESSAGE}") from None
-            raise InputError(f"map file {path}: array {name!r} cannot be read ({error})") from None
-        except (OSError, EOFError, zipfile.BadZipFile) as error:
-            raise InputError(f"map file {path}: array {name!r} cannot be read ({error})") from None
+            with archive.open(info) as fh:
+                _npy_header(fh, member)              # checked before a byte of data is inflated
+            with archive.open(info) as fh:           # reads the declared (checked) number of bytes only
+                return np.lib.format.read_array(fh, allow_pickle=False)
+        except InputError:
+            raise
+        except (OSError, EOFError, zipfile.BadZipFile, ValueError, RuntimeError, NotImplementedError):
+            raise InputError(f"{member} cannot be read (damaged or truncated)") from None
 
 
 def _load_text(path: Path) -> np.ndarray:
+    source = f"map file {path}"
     try:
-        text = path.read_text(encoding="utf-8")
+        with open(path, "rb") as fh:
+            raw = fh.read(MAX_TEXT_MAP_BYTES + 1)
+    except OSError as error:
+        raise InputError(f"{source}: cannot be read ({error.strerror or 'read error'})") from None
+    if len(raw) > MAX_TEXT_MAP_BYTES:
+        raise InputError(f"{source}: is larger than the {format_bytes(MAX_TEXT_MAP_BYTES)} a text map may hold; "
+                         f"write large maps as .npy")
+    try:
+        text = raw.decode("utf-8")
     except UnicodeDecodeError:
-        raise InputError(f"map file {path}: not a text table (it is not UTF-8 text)") from None
-    except OSError as error:
-        raise InputError(f"map file {path}: cannot be read ({error})") from None
-    body = [line.split("#", 1)[0] for line in text.splitlines()]
-    delimiter = "," if any("," in line for line in body) else None
-    try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", UserWarning)     # empty file: reported below
-            data = np.loadtxt(path, delimiter=delimiter, dtype=float, comments="#", encoding="utf-8")
-    except ValueError as error:
-        raise InputError(f"map file {path}: not a numeric table ({error})") from None
-    except OSError as error:
-        raise InputError(f"map file {path}: cannot be read ({error})") from None
+        raise InputError(f"{source}: not a text table (it is not UTF-8 text)") from None
+    lines = [line.split("#", 1)[0] for line in text.splitlines()]
+    delimiter = "," if any("," in line for line in lines) else None
+    rows = []
+    for number, line in enumerate(lines, start=1):
+        if not line.strip():
+            continue
+        cells = line.split(delimiter)
+        try:
+            rows.append([float(c) for c in cells])
+        except ValueError:
+            # the offending text is file content: it is never quoted in the message
+            raise InputError(f"{source}: not a numeric table (line {number} holds something that is not a "
+                             f"number)") from None
+        if len(rows[-1]) != len(rows[0]):
+            raise InputError(f"{source}: not a numeric table (line {number} has {len(rows[-1])} values, the "
+                             f"first row {len(rows[0])})")
+    if not rows:
+        return np.empty((0,))
+    data = np.array(rows, dtype=float)
+    if data.shape[0] == 1 or data.shape[1] == 1:
+        data = data.ravel()
     return data
 
 
@@ -152,19 +257,28 @@ def load_map_file(path, *, array_name: str | None = None) -> np.ndarray:
     array with 0 or more than 3 axes.
     """
     try:
-        p = Path(os.fspath(path))
+        given = Path(os.fspath(path))
     except TypeError:
-        raise InputError(f"map file: expected a file path, got {path!r}") from None
-    if not p.exists():
-        raise InputError(f"map file {p}: no such file")
+        raise InputError(f"map file: expected a file path, got {type(path).__name__}") from None
+    text = str(given)
+    if "\0" in text or len(text) > MAX_PATH_CHARS:
+        raise InputError("map file: the path holds a NUL character or is longer than "
+                         f"{MAX_PATH_CHARS:,} characters")
+    try:
+        p = given.resolve(strict=True)          # links first: the suffix and the checks are the target's
+    except FileNotFoundError:
+        raise InputError(f"map file {given}: no such file") from None
+    except (OSError, RuntimeError) as error:    # a loop of links, a name too long, no permission
+        raise InputError(f"map file {given}: cannot be opened ({getattr(error, 'strerror', None) or error})") from None
     if not p.is_file():
-        raise InputError(f"map file {p}: is not a regular file")
+        raise InputError(f"map file {given}: is not a regular file")
+    shown = given if str(p) == os.path.abspath(given) else f"{given} (it resolves to {p})"
     suffix = p.suffix.lower()
     if suffix not in MAP_SUFFIXES:
-        raise InputError(f"map file {p}: unsupported file type {suffix or '(none)'!r}; "
+        raise InputError(f"map file {shown}: unsupported file type {suffix or '(none)'!r}; "
                          f"expected one of {', '.join(MAP_SUFFIXES)}")
     if array_name is not None and suffix != ".npz":
-        raise InputError(f"map file {p}: an array name ({array_name!r}) applies only to .npz archives")
+        raise InputError(f"map file {given}: an array name ({array_name!r}) applies only to .npz archives")
     if suffix == ".npy":
         data = _load_npy(p)
     elif suffix == ".npz":
@@ -172,6 +286,42 @@ def load_map_file(path, *, array_name: str | None = None) -> np.ndarray:
     else:
         data = _load_text(p)
     return _check_values(np.asarray(data), f"map file {p}")
+
+
+# -- where maps may live ----------------------------------------------------------------------
+#: folders (os.pathsep-separated) from which maps may be read besides the project's own folder
+MAP_FOLDERS_VARIABLE = "WELLSCAPE_MAP_FOLDERS"
+
+
+def allow_map_folder(folder) -> None:
+    """Let maps be read from ``folder`` too (``wellscape --map-folder DIR``; inherited by worker processes)."""
+    resolved = str(Path(os.fspath(folder)).resolve())
+    current = [f for f in os.environ.get(MAP_FOLDERS_VARIABLE, "").split(os.pathsep) if f]
+    if resolved not in current:
+        os.environ[MAP_FOLDERS_VARIABLE] = os.pathsep.join(current + [resolved])
+
+
+def confined_map_path(file: str, base_dir) -> Path:
+    """The map ``file`` (relative to the project's folder ``base_dir``) with links resolved; refused unless
+    it lies inside that folder or a folder allowed by :func:`allow_map_folder`."""
+    if "\0" in file or len(file) > MAX_PATH_CHARS:
+        raise InputError("the path holds a NUL character or is longer than "
+                         f"{MAX_PATH_CHARS:,} characters")
+    root = Path(base_dir or os.getcwd())
+    p = Path(file)
+    if not p.is_absolute():
+        p = root / p
+    try:
+        target = p.resolve()
+        roots = [root.resolve()] + [Path(f) for f in os.environ.get(MAP_FOLDERS_VARIABLE, "").split(os.pathsep) if f]
+    except (OSError, RuntimeError):
+        raise InputError(f"map file {file}: cannot be resolved (a loop of links?)") from None
+    if not any(target == r or r in target.parents for r in roots):
+        link = f" (it resolves to {target})" if target != Path(os.path.abspath(p)) else ""
+        raise InputError(f"map file {file}{link} is outside the project's folder {roots[0]}; maps are read only from "
+                         f"there unless you allow another folder (wellscape --map-folder DIR, or the "
+                         f"{MAP_FOLDERS_VARIABLE} environment variable)")
+    return p
 
 
 # -- interpolation ---------------------------------------------------------------------------

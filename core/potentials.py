@@ -17,13 +17,16 @@ from .errors import FormulaError, InputError, ProjectError
 from .formula import nonfinite_report, parse_formula
 from .gates import Gate, gates_potential
 from .grid import Grid
-from .maps import interpolate_map, load_map_file
+from .limits import MASS_RANGE, MAX_ENERGY, MAX_MAGNETIC_FIELD, POTENTIAL_WORK_ARRAYS
+from .maps import confined_map_path, interpolate_map, load_map_file
 from .materials import get_material
+from .resources import check_memory
 from .project import FieldTerm, FormulaTerm, GatesTerm, MapTerm, Project
 from .units import get_units
 
 __all__ = ["resolve_parameters", "resolve_value", "evaluate_potential", "evaluate_terms", "gate_list",
-           "project_masses", "project_g_factor", "electric_field", "magnetic_field", "default_lever"]
+           "project_masses", "project_g_factor", "electric_field", "magnetic_field", "default_lever",
+           "potential_memory_bytes", "check_potential_memory"]
 
 
 def resolve_parameters(project: Project, overrides: Optional[Mapping[str, float]] = None) -> dict:
@@ -54,14 +57,27 @@ def resolve_value(value, params: Mapping[str, float], what: str = "value") -> fl
     return out
 
 
+def _in_span(value: float, span: tuple, path: str, unit: str) -> float:
+    if not span[0] <= abs(value) <= span[1]:
+        raise ProjectError(f"{value:g} {unit} is outside the accepted range {span[0]:g} .. {span[1]:g} {unit}",
+                           path=path)
+    return value
+
+
 def project_masses(project: Project, params: Mapping[str, float]) -> tuple:
-    """Effective mass per axis (x, y, z) in the unit system's mass unit."""
+    """Effective mass per axis (x, y, z) in the unit system's mass unit (within ``limits.MASS_RANGE``)."""
     m = project.material
     if m.mass is not None:
-        if isinstance(m.mass, tuple):
-            return tuple(resolve_value(v, params, f"material.mass[{i}]") for i, v in enumerate(m.mass))
-        v = resolve_value(m.mass, params, "material.mass")
-        return (v, v, v)
+        unit = get_units(project.units).mass_unit
+        values = m.mass if isinstance(m.mass, tuple) else (m.mass,) * 3
+        out = []
+        for i, v in enumerate(values):
+            where = f"material.mass[{i}]" if isinstance(m.mass, tuple) else "material.mass"
+            mv = resolve_value(v, params, where)
+            if mv <= 0:
+                raise ProjectError(f"must be positive, got {mv:g} {unit}", path=where)
+            out.append(_in_span(mv, MASS_RANGE, where, unit))
+        return tuple(out)
     return tuple(get_material(m.name).masses)
 
 
@@ -82,8 +98,22 @@ def electric_field(project: Project, params: Mapping[str, float]) -> np.ndarray:
 
 
 def magnetic_field(project: Project, params: Mapping[str, float]) -> np.ndarray:
-    return np.array([resolve_value(v, params, f"magnetic_field[{i}]")
+    unit = get_units(project.units).magnetic_unit
+    return np.array([_in_span(resolve_value(v, params, f"magnetic_field[{i}]"), (0.0, MAX_MAGNETIC_FIELD),
+                              f"magnetic_field[{i}]", unit)
                      for i, v in enumerate(project.magnetic_field)])
+
+
+def potential_memory_bytes(grid: Grid, terms: int = 1) -> int:
+    """Peak memory of evaluating ``terms`` potential terms on ``grid``, an exact integer: one float64
+    array per term plus ``limits.POTENTIAL_WORK_ARRAYS - 1`` (the sum and a formula's temporaries)."""
+    return (max(int(terms), 1) + POTENTIAL_WORK_ARRAYS - 1) * 8 * grid.size
+
+
+def check_potential_memory(grid: Grid, terms: int = 1) -> None:
+    """Refuse (MemoryLimitError) before allocating a potential that will not fit in memory."""
+    check_memory(potential_memory_bytes(grid, terms), what=f"evaluating the potential on a {grid.describe()}",
+                 hint="Use a coarser grid.")
 
 
 def default_lever(project: Project) -> float:
@@ -121,9 +151,10 @@ _MAP_CACHE: "OrderedDict[tuple, np.ndarray]" = OrderedDict()
 
 
 def _map_values(term: MapTerm, base_dir: Optional[str], path: str) -> np.ndarray:
-    p = Path(term.file)
-    if not p.is_absolute():
-        p = Path(base_dir or ".") / p
+    try:
+        p = confined_map_path(term.file, base_dir)
+    except InputError as exc:
+        raise ProjectError(str(exc), path=f"{path}.file") from None
     try:
         st = os.stat(p)
         key = (str(p.resolve()), st.st_mtime_ns, st.st_size, term.array)
@@ -147,11 +178,11 @@ def evaluate_terms(project: Project, *, grid: Optional[Grid] = None,
                    parameters: Optional[Mapping[str, float]] = None, include_disabled: bool = False) -> list:
     """``[(index, term, array or None)]`` for every term (None for disabled ones unless asked)."""
     grid = grid or project.grid
+    check_potential_memory(grid, sum(1 for t in project.potential if t.enabled or include_disabled))
     params = resolve_parameters(project, parameters)
-    env = dict(grid.coordinates())
-    env.update(params)
     u = get_units(project.units)
     out = []
+    coords: dict = {}
     for i, term in enumerate(project.potential):
         path = f"potential[{i}]"
         if not term.enabled and not include_disabled:
@@ -160,11 +191,13 @@ def evaluate_terms(project: Project, *, grid: Optional[Grid] = None,
         if isinstance(term, FormulaTerm):
             try:
                 f = parse_formula(term.formula, parameters=tuple(params))
-                val = f.evaluate(env)
+                wanted = {"x", "y", "z"} | (set(f.names) & {"r"})
+                coords.update(grid.coordinates(wanted - set(coords)))   # r only if a formula uses it
+                val = f.evaluate({**coords, **params})
             except FormulaError as exc:
                 raise ProjectError(str(exc), path=f"{path}.formula ({term.label})") from None
             arr = np.broadcast_to(np.asarray(val, dtype=float), grid.shape).astype(float, copy=True)
-            report = nonfinite_report(arr, {k: env[k] for k in ("x", "y", "z")[: grid.ndim]})
+            report = nonfinite_report(arr, {k: coords[k] for k in ("x", "y", "z")[: grid.ndim]})
             if report:
                 raise ProjectError(f"the formula {report}", path=f"{path}.formula ({term.label})")
         elif isinstance(term, GatesTerm):
@@ -195,14 +228,27 @@ def evaluate_terms(project: Project, *, grid: Optional[Grid] = None,
                 arr = arr - q * f[a] * mesh[a]
         else:  # pragma: no cover - the loader only makes the kinds above
             raise ProjectError(f"unknown term kind {term.kind!r}", path=path)
+        _check_magnitude(arr, f"{path} ({term.label})", u.energy_unit)
         out.append((i, term, arr))
     return out
+
+
+def _check_magnitude(arr: np.ndarray, path: str, unit: str) -> None:
+    """Refuse a term whose values reach beyond ``limits.MAX_ENERGY`` (before the solver meets them)."""
+    if arr.size == 0:
+        return
+    with np.errstate(all="ignore"):
+        peak = float(np.max(np.abs(arr)))
+    if not peak <= MAX_ENERGY:       # also NaN
+        raise ProjectError(f"reaches {peak:.3g} {unit}, beyond the {MAX_ENERGY:g} {unit} a potential may "
+                           f"reach (the low levels would drown in rounding); check its units and size", path=path)
 
 
 def evaluate_potential(project: Project, *, grid: Optional[Grid] = None,
                        parameters: Optional[Mapping[str, float]] = None) -> np.ndarray:
     """Sum of the enabled terms on ``grid`` (default: the project's grid), energy unit."""
     grid = grid or project.grid
+    check_potential_memory(grid, sum(1 for t in project.potential if t.enabled))
     total = np.zeros(grid.shape)
     for _i, _t, arr in evaluate_terms(project, grid=grid, parameters=parameters):
         if arr is not None:

@@ -42,8 +42,9 @@ from .atomic import atomic_write
 from .errors import FormulaError, InputError, ProjectError
 from .formula import RESERVED_NAMES, parse_formula
 from .grid import BOUNDARIES, Grid
-from .jsonfile import parse_json, read_text_file
+from .jsonfile import parse_json, read_text_file, repair_text
 from .kinetic import SCHEMES
+from .limits import MASS_RANGE, MAX_COORDINATE, MAX_MAGNETIC_FIELD, MAX_PATH_CHARS, MAX_POINTS_PER_AXIS
 from .materials import get_material, material_names
 from .units import UNIT_SYSTEMS
 
@@ -55,6 +56,8 @@ __all__ = ["CURRENT_SCHEMA_VERSION", "Project", "MaterialSpec", "GateSpec", "For
 CURRENT_SCHEMA_VERSION = 2
 ELECTRON_COUNTS = (1, 2)
 MAX_FILE_BYTES = 20 * 2**20
+#: states one solve may ask for (each is a grid-sized vector, and the dense steps grow as its cube)
+MAX_STATES = 10_000
 Value = Union[float, str]
 
 # --- migrations ---------------------------------------------------------------------------------
@@ -209,42 +212,63 @@ class _Reader:
 
     @staticmethod
     def show(value) -> str:
-        text = json.dumps(value) if not isinstance(value, float) else repr(value)
+        if isinstance(value, int) and not isinstance(value, bool) and abs(value) > 10**15:
+            return f"a {len(str(abs(value)))}-digit integer"
+        try:
+            text = json.dumps(value) if not isinstance(value, float) else repr(value)
+        except (TypeError, ValueError):
+            text = repr(value)
         return text if len(text) < 60 else text[:57] + "..."
 
-    def number(self, value, path: str, *, positive=False, allow_formula=True) -> Value:
+    def number(self, value, path: str, *, positive=False, allow_formula=True, span=None) -> Value:
+        """A finite number (or a formula of parameters); ``span=(lo, hi)`` bounds its magnitude."""
         if isinstance(value, bool) or value is None:
             self.fail(path, f"expected a number{' or a formula of parameters' if allow_formula else ''}, "
                             f"got {self.show(value)}")
-        if isinstance(value, (int, float)):
-            v = float(value)
-            if not math.isfinite(v):
-                self.fail(path, f"expected a finite number, got {value!r}")
-            if positive and v <= 0:
-                self.fail(path, f"expected a positive number, got {value!r}")
-            return v
         if isinstance(value, str) and allow_formula:
             try:
                 f = parse_formula(value, parameters=self.parameters, coordinates=())
             except FormulaError as exc:
                 self.fail(path, str(exc))
-            return value if not f.is_constant else float(f.evaluate({}))
+            if not f.is_constant:
+                return value                     # checked when the parameters are known
+            value = f.evaluate({})
+        if isinstance(value, (int, float)):
+            try:
+                v = float(value)
+            except OverflowError:
+                v = math.inf
+            if not math.isfinite(v):
+                self.fail(path, f"expected a finite number, got {self.show(value)}")
+            if positive and v <= 0:
+                self.fail(path, f"expected a positive number, got {value!r}")
+            if span is not None and v != 0 and not span[0] <= abs(v) <= span[1]:
+                self.fail(path, f"{v:g} is outside the accepted range {span[0]:g} .. {span[1]:g}")
+            return v
         self.fail(path, f"expected a number{' or a formula of parameters' if allow_formula else ''}, "
                         f"got {self.show(value)}")
 
-    def integer(self, value, path: str, *, minimum: int) -> int:
+    def integer(self, value, path: str, *, minimum: int, maximum: Optional[int] = None) -> int:
         if (isinstance(value, bool) or not isinstance(value, (int, float))
-                or not math.isfinite(float(value)) or float(value) != int(value)):
+                or (isinstance(value, float) and (not math.isfinite(value) or value != int(value)))):
             self.fail(path, f"expected an integer >= {minimum}, got {self.show(value)}")
-        if int(value) < minimum:
-            self.fail(path, f"expected an integer >= {minimum}, got {int(value)}")
-        return int(value)
+        n = int(value)                        # exact, however many digits
+        if n < minimum:
+            self.fail(path, f"expected an integer >= {minimum}, got {self.show(n)}")
+        if maximum is not None and n > maximum:
+            self.fail(path, f"expected an integer of at most {maximum:,}, got {self.show(n)}")
+        return n
 
-    def text(self, value, path: str, *, allow_empty=True) -> str:
+    def text(self, value, path: str, *, allow_empty=True, lines=False) -> str:
         if not isinstance(value, str):
             self.fail(path, f"expected text, got {self.show(value)}")
         if not allow_empty and not value.strip():
             self.fail(path, "must not be empty")
+        bad = _CONTROL_IN_TEXT if lines else _CONTROL_IN_LINE
+        m = bad.search(value)
+        if m:           # a terminal escape in a title would be obeyed by the terminal that prints it
+            self.fail(path, f"holds the control character U+{ord(m.group()):04X}; text holds printable "
+                            f"characters{' and line breaks' if lines else ''} only")
         return value
 
     def boolean(self, value, path: str) -> bool:
@@ -279,6 +303,8 @@ _TOP_KEYS = ("schema_version", "title", "notes", "units", "material", "grid", "p
              "parameter_ranges", "potential", "electric_field", "magnetic_field", "spin", "solver",
              "electrons")
 _IDENT = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
+_CONTROL_IN_LINE = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029]")
+_CONTROL_IN_TEXT = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f]")
 
 
 def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
@@ -303,7 +329,7 @@ def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
             r.fail(key, "missing (required)")
 
     title = r.text(data.get("title", "Untitled"), "title")
-    notes = r.text(data.get("notes", ""), "notes")
+    notes = r.text(data.get("notes", ""), "notes", lines=True)
     units = r.text(data["units"], "units")
     if units not in UNIT_SYSTEMS:
         r.fail("units", f"unknown unit system {units!r}; choose one of {', '.join(UNIT_SYSTEMS)}")
@@ -341,7 +367,7 @@ def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
     ef = r.array(ef, "electric_field", length=(ndim, 3))
     electric = tuple(r.number(v, f"electric_field[{i}]") for i, v in enumerate(ef))
     mf = r.array(data.get("magnetic_field", [0.0, 0.0, 0.0]), "magnetic_field", length=3)
-    magnetic = tuple(r.number(v, f"magnetic_field[{i}]") for i, v in enumerate(mf))
+    magnetic = tuple(r.number(v, f"magnetic_field[{i}]", span=(0, MAX_MAGNETIC_FIELD)) for i, v in enumerate(mf))
     spin = r.boolean(data.get("spin", False), "spin")
     electrons = r.integer(data.get("electrons", 1), "electrons", minimum=1)
     if electrons not in ELECTRON_COUNTS:
@@ -352,7 +378,7 @@ def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
 
     s = r.obj(data.get("solver", {}), "solver")
     _extra_keys(s, ("states", "scheme", "tolerance"), "solver", warnings)
-    states = r.integer(s.get("states", 10), "solver.states", minimum=1)
+    states = r.integer(s.get("states", 10), "solver.states", minimum=1, maximum=MAX_STATES)
     scheme = r.text(s.get("scheme", "auto"), "solver.scheme")
     if scheme != "auto" and scheme not in SCHEMES:
         r.fail("solver.scheme", f"unknown scheme {scheme!r}; choose auto, {', '.join(SCHEMES)}")
@@ -391,9 +417,10 @@ def _read_material(r: _Reader, raw, warnings) -> MaterialSpec:
     if mass is not None:
         if isinstance(mass, list):
             r.array(mass, "material.mass", length=3)
-            mass = tuple(r.number(v, f"material.mass[{i}]", positive=True) for i, v in enumerate(mass))
+            mass = tuple(r.number(v, f"material.mass[{i}]", positive=True, span=MASS_RANGE)
+                         for i, v in enumerate(mass))
         else:
-            mass = r.number(mass, "material.mass", positive=True)
+            mass = r.number(mass, "material.mass", positive=True, span=MASS_RANGE)
     g = raw.get("g_factor")
     if g is not None:
         g = r.number(g, "material.g_factor")
@@ -411,10 +438,10 @@ def _read_grid(r: _Reader, raw, warnings) -> Grid:
             r.fail(f"grid.{key}", "missing (required)")
     pts = r.array(raw["points"], "grid.points", length=(1, 2, 3))
     ndim = len(pts)
-    points = [r.integer(v, f"grid.points[{i}]", minimum=3) for i, v in enumerate(pts)]
-    lower = [r.number(v, f"grid.lower[{i}]", allow_formula=False)
+    points = [r.integer(v, f"grid.points[{i}]", minimum=3, maximum=MAX_POINTS_PER_AXIS) for i, v in enumerate(pts)]
+    lower = [r.number(v, f"grid.lower[{i}]", allow_formula=False, span=(0, MAX_COORDINATE))
              for i, v in enumerate(r.array(raw["lower"], "grid.lower", length=ndim))]
-    upper = [r.number(v, f"grid.upper[{i}]", allow_formula=False)
+    upper = [r.number(v, f"grid.upper[{i}]", allow_formula=False, span=(0, MAX_COORDINATE))
              for i, v in enumerate(r.array(raw["upper"], "grid.upper", length=ndim))]
     for i in range(ndim):
         if not upper[i] > lower[i]:
@@ -433,14 +460,14 @@ def _read_grid(r: _Reader, raw, warnings) -> Grid:
 def _read_term(r: _Reader, raw, path: str, ndim: int, warnings):
     raw = r.obj(raw, path)
     kind = raw.get("kind")
-    if kind not in TERM_KINDS:
+    if not isinstance(kind, str) or kind not in TERM_KINDS:
         r.fail(f"{path}.kind", f"expected one of {', '.join(TERM_KINDS)}, got {r.show(kind)}")
     label = r.text(raw.get("label", kind), f"{path}.label")
     enabled = r.boolean(raw.get("enabled", True), f"{path}.enabled")
     common = ("kind", "label", "enabled")
     if kind == "formula":
         _extra_keys(raw, common + ("formula",), path, warnings)
-        text = r.text(raw.get("formula", ""), f"{path}.formula", allow_empty=False)
+        text = r.text(raw.get("formula", ""), f"{path}.formula", allow_empty=False, lines=True)
         try:
             parse_formula(text, parameters=r.parameters)
         except FormulaError as exc:
@@ -489,6 +516,10 @@ def _read_term(r: _Reader, raw, path: str, ndim: int, warnings):
     if kind == "map":
         _extra_keys(raw, common + ("file", "array", "lower", "upper", "scale", "method"), path, warnings)
         f = r.text(raw.get("file", ""), f"{path}.file", allow_empty=False)
+        if "\0" in f:
+            r.fail(f"{path}.file", "holds a NUL character, which no file name can contain")
+        if len(f) > MAX_PATH_CHARS:
+            r.fail(f"{path}.file", f"is {len(f):,} characters long; a path has at most {MAX_PATH_CHARS:,}")
         arr = raw.get("array")
         if arr is not None:
             r.text(arr, f"{path}.array")
@@ -583,7 +614,9 @@ def _dump(value, indent: int = 0) -> str:
 
 
 def project_to_json(project: Project) -> str:
-    return _dump(project_to_dict(project)) + "\n"
+    """The project's JSON text; a lone surrogate in any text (which no UTF-8 file can hold, and which a
+    window's text field can produce) is written as U+FFFD, so that saving always succeeds."""
+    return repair_text(_dump(project_to_dict(project)) + "\n")
 
 
 def project_from_json(text: str, *, base_dir: Optional[str] = None, source: str = "project") -> Project:

@@ -119,6 +119,8 @@ class MapEditor(QWidget):
         name, _ = QFileDialog.getOpenFileName(self, "Potential map", base,
                                               "Arrays (*.npy *.npz *.csv *.txt);;All files (*)")
         if name:
+            from core.maps import allow_map_folder
+            allow_map_folder(Path(name).parent)     # chosen here by the user: an explicit permission
             try:
                 rel = os.path.relpath(name, base)
             except ValueError:

@@ -227,7 +227,7 @@ def test_autosave_and_restore_after_a_crash(session, settings, qtbot, tmp_path):
     # pretend the window that wrote it crashed: its entry now belongs to a dead process
     dead = "999999999"
     assert not _alive(int(dead))
-    value = list(settings.value(f"recovery/{os.getpid()}"))
+    value = list(settings.value(f"recovery/{session._recovery_key}"))
     crashed = tmp_path / "left-behind.json"
     crashed.write_bytes(session.recovery_file.read_bytes())
     settings.setValue(f"recovery/{dead}", [str(crashed)] + value[1:])

@@ -292,3 +292,54 @@ def test_cached_unit_potentials_follow_voltage_outline_and_depth():
     deeper = gates_potential([plunger], gx, gy, depth=2 * DEPTH)[7, 6]
     rd, _ = _quad_rectangle(x, y, 30.0, 150.0, -40.0, 60.0, d=2 * DEPTH)
     assert abs(deeper - 0.1 * rd) < TOL_QUAD
+
+
+# -- self-crossing outlines: the sweep line against every pair -----------------------------------
+def _any_pair_crosses(v) -> bool:
+    """Reference: every pair of non-adjacent edges, strict orientation signs (common practice)."""
+    v = np.asarray(v, dtype=float)
+    n = len(v)
+    for i in range(n):
+        for j in range(i + 2, n):
+            if i == 0 and j == n - 1:
+                continue
+            p1, p2, q1, q2 = v[i], v[(i + 1) % n], v[j], v[(j + 1) % n]
+
+            def o(a, b, c):
+                return (b[0] - a[0]) * (c[1] - a[1]) - (b[1] - a[1]) * (c[0] - a[0])
+            if o(p1, p2, q1) * o(p1, p2, q2) < 0 and o(q1, q2, p1) * o(q1, q2, p2) < 0:
+                return True
+    return False
+
+
+def test_sweep_line_agrees_with_every_pair_on_degenerate_outlines():
+    """Random outlines on a 5 x 5 lattice (collinear edges, vertical edges, repeated vertices and
+    touching vertices are frequent): the sweep finds a crossing exactly when some pair crosses,
+    and the pair it names does cross."""
+    from core.gates import _crossing_edges, _edges_cross
+    rng = np.random.default_rng(7)
+    crossing = 0
+    for trial in range(3000):
+        n = int(rng.integers(3, 11))
+        v = rng.integers(0, 5, size=(n, 2)).astype(float)
+        found = _crossing_edges(v)
+        expected = _any_pair_crosses(v)
+        assert bool(found) == expected, v.tolist()
+        if found:
+            crossing += 1
+            assert _edges_cross([tuple(p) for p in v], n, *found[0])
+    assert 300 < crossing < 2900            # both outcomes were exercised
+
+
+def test_ten_thousand_vertex_outline_and_vertex_limit():
+    from core.limits import MAX_POLYGON_VERTICES
+    t = np.linspace(0, 2 * np.pi, 10_000, endpoint=False)
+    star = np.column_stack([(100 + 30 * np.sin(7 * t)) * np.cos(t), (100 + 30 * np.sin(7 * t)) * np.sin(t)])
+    assert validate_polygon(star).shape == (10_000, 2)
+    bent = star.copy()
+    bent[5000] = (300.0, 0.0)               # a spike across the outline
+    with pytest.raises(InputError, match="intersects itself"):
+        validate_polygon(bent)
+    t = np.linspace(0, 2 * np.pi, MAX_POLYGON_VERTICES + 1, endpoint=False)
+    with pytest.raises(InputError, match=f"at most {MAX_POLYGON_VERTICES:,}"):
+        validate_polygon(np.column_stack([np.cos(t), np.sin(t)]))
