@@ -43,10 +43,14 @@ def save_sweep(result: SweepResult, path) -> tuple:
 
 
 def load_sweep(path) -> SweepResult:
-    """Read a sweep written by :func:`save_sweep` (no pickles)."""
+    """Read a sweep written by :func:`save_sweep` (no pickles; members checked before they are read,
+    arrays checked to fit together after, by :mod:`core.sweepfile`)."""
+    from ..sweepfile import check_sweep_archive, validate_sweep
     p = Path(path)
     if p.suffix != ".npz":
         p = p.with_suffix(".npz")
+    if p.exists():
+        check_sweep_archive(p)                 # member headers and sizes before anything is inflated
     try:
         with np.load(p, allow_pickle=False) as z:
             data = {k: z[k] for k in z.files}
@@ -58,9 +62,10 @@ def load_sweep(path) -> SweepResult:
         project = project_from_dict(json.loads(str(data["project"])))
         approaches = tuple(Anticrossing.from_dict(a) for a in json.loads(str(data["approaches"])))
         obs = {k[4:]: v for k, v in data.items() if k.startswith("obs_")}
-        return SweepResult(parameter=str(data["parameter"]), values=data["values"], energies=data["energies"],
-                           tracks=data["tracks"], anticrossings=approaches, observables=obs, project=project,
-                           states=data.get("states"), complete=bool(data.get("complete", True)),
-                           notes=tuple(json.loads(str(data["notes"]))) if "notes" in data else ())
-    except (KeyError, ValueError, TypeError) as exc:
+        notes = tuple(json.loads(str(data["notes"]))) if "notes" in data else ()
+        result = SweepResult(parameter=str(data["parameter"]), values=data["values"], energies=data["energies"],
+                             tracks=data["tracks"], anticrossings=approaches, observables=obs, project=project,
+                             states=data.get("states"), complete=bool(data.get("complete", True)), notes=notes)
+        return validate_sweep(result, f"sweep file {p}")
+    except (KeyError, ValueError, TypeError, AttributeError) as exc:
         raise InputError(f"{p} is not a complete sweep file ({exc})") from None
