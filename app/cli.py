@@ -280,7 +280,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     from app.sweep_cli import add_sweep_parser
     add_sweep_parser(sub)
-    for module, name in (("app.converge_cli", "add_converge_parser"), ("app.figure_cli", "add_figure_parser")):
+    for module, name in (("app.converge_cli", "add_converge_parser"), ("app.figure_cli", "add_figure_parser"),
+                         ("app.layout_cli", "add_import_layout_parser")):
         try:
             adder = getattr(__import__(module, fromlist=[name]), name)
         except (ImportError, AttributeError):
