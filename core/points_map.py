@@ -14,7 +14,8 @@ The number of coordinate columns must equal the grid's dimension.  V is interpol
 piecewise-linearly on the Delaunay triangulation of the points
 (:class:`scipy.interpolate.LinearNDInterpolator`; :func:`numpy.interp` in 1D), which is
 exact for a potential linear in x, y, z and has an error of order ``h**2 * |V''| / 8`` for
-points ``h`` apart.  Grid points outside the convex hull of the data get ``fill`` when one
+points ``h`` apart.  The cells of a mesh are not used: its nodes are triangulated anew, so the
+hull of a non-convex mesh is filled too.  Grid points outside the convex hull of the data get ``fill`` when one
 is given; otherwise evaluation fails with one line saying how many grid points lie outside.
 
 Paths are relative to the project's folder and must stay inside it.  Files are size-checked
