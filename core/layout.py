@@ -88,10 +88,24 @@ def _read_library(path: Path):
         raise InputError(f"layout {path}: cannot be read ({exc.strerror or exc})") from None
     if head != _GDS_HEADER:
         raise InputError(f"layout {path}: not a GDSII stream file (it does not start with a GDSII header)")
+    if not _ends_with_endlib(path, size):
+        raise InputError(f"layout {path}: the GDSII stream is cut short (no end-of-library record)")
     try:
         return gdstk.read_gds(str(path))
     except (OSError, RuntimeError, ValueError):
         raise InputError(f"layout {path}: the GDSII stream is damaged or cut short") from None
+
+
+def _ends_with_endlib(path: Path, size: int) -> bool:
+    """True when the last record (before any zero padding to a block) is ENDLIB: length 4, type 0x04."""
+    try:
+        with open(path, "rb") as fh:
+            fh.seek(max(0, size - 8192))
+            tail = fh.read()
+    except OSError:
+        return False
+    # ENDLIB is 00 04 04 00; its last byte is stripped with the padding
+    return tail.rstrip(b"\x00").endswith(b"\x00\x04\x04")
 
 
 def layout_unit_scale(path, length_si: float) -> float:
@@ -150,11 +164,15 @@ def read_layout_gates(path, layers: Sequence[LayerChoice], *, scale: float, orig
     if not everything:
         raise InputError(f"layout {p}: cell {top.name[:40]!r} holds no polygons (an empty layout)")
     present = sorted({(q.layer, q.datatype) for q in everything})
-    gates = []
+    gates, taken = [], set()
     for choice in layers:
-        chosen = [q for q in everything if q.layer == choice.layer
-                  and (choice.datatype is None or q.datatype == choice.datatype)]
-        if not chosen:
+        matching = [k for k, q in enumerate(everything) if q.layer == choice.layer
+                    and (choice.datatype is None or q.datatype == choice.datatype)]
+        chosen = [everything[k] for k in matching if k not in taken]      # a layer named twice: once
+        taken.update(matching)
+        if matching and not chosen:
+            continue
+        if not matching:
             listing = ", ".join(f"{a}/{b}" for a, b in present[:20]) + (" ..." if len(present) > 20 else "")
             raise InputError(f"layout {p}: layer {choice} has no polygons; the layout's layers are {listing}")
         for n, q in enumerate(chosen, start=1):

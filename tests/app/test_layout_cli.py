@@ -80,3 +80,11 @@ def test_not_a_layout(capsys, tmp_path):
     bad.write_text("plain text\n", encoding="utf-8")
     code, _, err = run(capsys, "import-layout", bad, "--layer", "1", "--depth", "5", "-o", tmp_path / "x.json")
     assert code == 2 and "not a GDSII stream file" in err
+
+
+def test_cut_layout_is_one_line(capfd, tmp_path, layout):
+    """capfd also catches what the C++ reader would print on the process's own stderr."""
+    cut = tmp_path / "cut.gds"
+    cut.write_bytes(layout.read_bytes()[:100])
+    code, _, err = run(capfd, "import-layout", cut, "--layer", "3", "--depth", "5", "-o", tmp_path / "x.json")
+    assert code == 2 and "cut short" in err and err.count("\n") == 1

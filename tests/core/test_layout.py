@@ -89,6 +89,12 @@ def test_imported_potential_equals_hand_typed_gates(tmp_path):
     np.testing.assert_allclose(centre, default_lever(only_a) * -0.4 / 3.0, rtol=1e-12)
 
 
+def test_a_layer_named_twice_gives_its_gates_once(tmp_path):
+    path = write_layout(tmp_path / "dot.gds")
+    gates = read_layout_gates(path, [LayerChoice(1), LayerChoice(1, 0), LayerChoice(2)], scale=1.0)
+    assert [g.label for g in gates] == ["L1/0 #1", "L1/0 #2", "L2/5 #1"]
+
+
 def test_new_project_and_into_project(tmp_path):
     path = write_layout(tmp_path / "dot.gds")
     gates = read_layout_gates(path, [LayerChoice(1)], scale=SCALE, origin=ORIGIN)
@@ -126,7 +132,7 @@ def test_one_line_errors(tmp_path, monkeypatch):
     assert "WREN" not in str(info.value)
     cases.append(info)
     (tmp_path / "cut.gds").write_bytes(path.read_bytes()[:80])
-    with pytest.raises(InputError, match="damaged or cut short") as info:
+    with pytest.raises(InputError, match="cut short") as info:
         read_layout_gates(tmp_path / "cut.gds", [LayerChoice(1)], scale=1.0)
     cases.append(info)
     with pytest.raises(InputError, match="positive number") as info:
