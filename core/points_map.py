@@ -42,7 +42,7 @@ TEXT_SUFFIXES = (".csv", ".txt", ".dat")
 # Mesh formats that keep everything in one file (formats that point to other files are left out).
 MESH_SUFFIXES = (".vtu", ".vtk", ".msh", ".med")
 POINTS_SUFFIXES = TEXT_SUFFIXES + MESH_SUFFIXES
-MAX_FILE_BYTES = 256 * 2**20
+MAX_FILE_BYTES = 128 * 2**20
 MAX_POINTS = 1_000_000
 
 
@@ -204,14 +204,19 @@ def interpolate_points(points, values, grid: Grid, *, fill: Optional[float] = No
     grid points lie outside.  ``points`` is ``(n, grid.ndim)``; ``values`` has ``n`` entries.
     """
     points = np.asarray(points, dtype=float)
-    values = np.asarray(values, dtype=float)
-    out = _linear(points, values, grid)
+    return _fill_outside(_linear(points, np.asarray(values, dtype=float), grid), fill, points.shape[0], "data")
+
+
+def _fill_outside(out: np.ndarray, fill: Optional[float], n: int, source: str) -> np.ndarray:
+    """``out`` with its NaNs (grid points outside the hull) set to ``fill``, or the one-line error."""
     outside = np.isnan(out)
     count = int(np.count_nonzero(outside))
     if count:
         if fill is None:
-            raise InputError(f"{count} of {grid.size} grid points lie outside the convex hull of the "
-                             f"{points.shape[0]} data points; give the term a \"fill\" value or shrink the grid")
+            raise InputError(f"{source}: {count} of {out.size} grid points lie outside the convex hull of its "
+                             f"{n} points; give the term a \"fill\" value or shrink the grid")
+        if not math.isfinite(fill):
+            raise InputError(f"{source}: the fill value must be finite, got {fill!r}")
         out[outside] = float(fill)
     return out
 
@@ -270,14 +275,4 @@ def points_on_grid(file: str, base_dir: Optional[str], grid: Grid, *, array_name
             _CACHE[key] = (raw, n)
             while len(_CACHE) > 4:
                 _CACHE.popitem(last=False)
-    out = np.array(raw)
-    outside = np.isnan(out)
-    count = int(np.count_nonzero(outside))
-    if count:
-        if fill is None:
-            raise InputError(f"points file {file}: {count} of {grid.size} grid points lie outside the convex "
-                             f"hull of its {n} points; give the term a \"fill\" value or shrink the grid")
-        if not math.isfinite(fill):
-            raise InputError(f"points file {file}: the fill value must be finite, got {fill!r}")
-        out[outside] = float(fill)
-    return out
+    return _fill_outside(np.array(raw), fill, n, f"points file {file}")

@@ -139,6 +139,10 @@ def test_outside_hull_error_counts_grid_points_and_fill_value_is_used(tmp_path):
     np.testing.assert_array_equal(got[~inside], -2.0 * 7.5)
     np.testing.assert_allclose(got[inside], -2.0 * (2.0 + 0.1 * x[inside] - 0.05 * y[inside]),
                                rtol=0, atol=1e-12)
+    direct = pm.interpolate_points(pts, values, grid, fill=7.5)           # the same policy for notebooks
+    np.testing.assert_allclose(-2.0 * direct, got, rtol=0, atol=1e-12)
+    with pytest.raises(InputError, match="lie outside the convex hull"):
+        pm.interpolate_points(pts, values, grid)
 
 
 def test_mesh_file_with_point_data_read_by_meshio(tmp_path):
