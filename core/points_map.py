@@ -5,8 +5,8 @@ Two kinds of file are read, as data only (nothing is unpickled or executed):
 * a text table (``.csv``, ``.txt``, ``.dat``) of rows ``x, V`` / ``x, y, V`` / ``x, y, z, V``,
   comma- or whitespace-separated; ``#`` starts a comment and one header line (the first
   non-comment line, if it is not numbers) is skipped;
-* an unstructured mesh read with `meshio <https://github.com/nschloe/meshio>`_ (optional
-  dependency, ``pip install wellscape[mesh]``): its nodes are the points and one of its
+* an unstructured VTK mesh (``.vtu``, ``.vtk``) read with `meshio <https://github.com/nschloe/meshio>`_
+  (optional dependency, ``pip install wellscape[mesh]``): its nodes are the points and one of its
   point-data arrays gives V (``array`` chooses it when there are several).  A 2D grid takes
   the x, y of the nodes; their z must then be one constant (a mesh of a plane).
 
@@ -26,6 +26,7 @@ from __future__ import annotations
 
 import math
 import os
+import re
 from collections import OrderedDict
 from pathlib import Path
 from typing import Optional
@@ -39,8 +40,10 @@ __all__ = ["TEXT_SUFFIXES", "MESH_SUFFIXES", "POINTS_SUFFIXES", "MAX_FILE_BYTES"
            "resolve_data_path", "load_points_file", "interpolate_points", "points_on_grid"]
 
 TEXT_SUFFIXES = (".csv", ".txt", ".dat")
-# Mesh formats that keep everything in one file (formats that point to other files are left out).
-MESH_SUFFIXES = (".vtu", ".vtk", ".msh", ".med")
+# VTK meshes (XML .vtu and legacy .vtk) keep everything in one file and state their number of points
+# in a text header, which is checked before the mesh is read.
+MESH_SUFFIXES = (".vtu", ".vtk")
+_POINT_COUNTS = {".vtu": re.compile(rb'NumberOfPoints\s*=\s*"(\d+)"'), ".vtk": re.compile(rb"POINTS\s+(\d+)")}
 POINTS_SUFFIXES = TEXT_SUFFIXES + MESH_SUFFIXES
 MAX_FILE_BYTES = 128 * 2**20
 MAX_POINTS = 1_000_000
@@ -126,12 +129,25 @@ def _load_text(p: Path, what: str) -> np.ndarray:
     return data
 
 
+def _declared_points(p: Path) -> int:
+    """The number of points a VTK file's header declares (0 when the header does not say)."""
+    try:
+        with open(p, "rb") as fh:
+            head = fh.read(1 << 20)
+    except OSError:
+        return 0
+    return sum(int(m) for m in _POINT_COUNTS[p.suffix.lower()].findall(head))
+
+
 def _load_mesh(p: Path, what: str, array_name: Optional[str]) -> tuple:
     try:
         import meshio
     except ImportError:
         raise InputError(f"{what} {p}: reading meshes needs the optional package meshio "
                          f"(pip install 'wellscape[mesh]')") from None
+    declared = _declared_points(p)
+    if declared > MAX_POINTS:
+        raise InputError(f"{what} {p}: {declared} nodes, more than the {MAX_POINTS} points allowed")
     try:
         mesh = meshio.read(p)
     except Exception as exc:      # meshio raises many types for a malformed file

@@ -145,7 +145,9 @@ def test_outside_hull_error_counts_grid_points_and_fill_value_is_used(tmp_path):
         pm.interpolate_points(pts, values, grid)
 
 
-def test_mesh_file_with_point_data_read_by_meshio(tmp_path):
+@pytest.mark.parametrize("name, binary", [("gate_field.vtu", True), ("gate_field.vtk", True),
+                                          ("gate_field.vtk", False)])
+def test_mesh_file_with_point_data_read_by_meshio(tmp_path, monkeypatch, name, binary):
     # a structured triangulation of [-60, 60]^2 in the plane z = 0, V linear in x and y
     u = np.linspace(-60.0, 60.0, 13)
     gx, gy = np.meshgrid(u, u, indexing="ij")
@@ -157,15 +159,23 @@ def test_mesh_file_with_point_data_read_by_meshio(tmp_path):
             a, b, c, d = i * n + j, (i + 1) * n + j, (i + 1) * n + j + 1, i * n + j + 1
             cells += [[a, b, c], [a, c, d]]
     v = 1.5 - 0.02 * nodes[:, 0] + 0.03 * nodes[:, 1]
-    meshio.write(tmp_path / "gate_field.vtu",
-                 meshio.Mesh(nodes, [("triangle", np.array(cells))], point_data={"V": v, "other": 2 * v}))
+    meshio.write(tmp_path / name, meshio.Mesh(nodes, [("triangle", np.array(cells))],
+                                              point_data={"V": v, "other": 2 * v}), binary=binary)
     grid = Grid([-55.0, -55.0], [55.0, 55.0], [16, 16])
     x, y = grid.mesh()
     with pytest.raises(ProjectError, match="2 point-data arrays"):
-        evaluate_potential(make_project(PointsTerm("fem", "gate_field.vtu"), grid=grid, tmp_path=tmp_path))
-    term = PointsTerm("fem", "gate_field.vtu", scale=-1000.0, array="V")
+        evaluate_potential(make_project(PointsTerm("fem", name), grid=grid, tmp_path=tmp_path))
+    term = PointsTerm("fem", name, scale=-1000.0, array="V")
     got = evaluate_potential(make_project(term, grid=grid, tmp_path=tmp_path))
+    # ASCII VTK keeps about 16 significant digits: ~1e-15 relative of V ~ 3 V, times 1000
     np.testing.assert_allclose(got, -1000.0 * (1.5 - 0.02 * x + 0.03 * y), rtol=0, atol=1e-9)
+    # the point count in the header is checked before the mesh is read
+    monkeypatch.setattr(pm, "MAX_POINTS", 100)
+    monkeypatch.setattr(meshio, "read", lambda *a, **k: pytest.fail("the mesh was read"))
+    copy = "copy_" + name                              # a file not read before (results are cached)
+    (tmp_path / copy).write_bytes((tmp_path / name).read_bytes())
+    with pytest.raises(ProjectError, match="169 nodes, more than the 100 points allowed"):
+        evaluate_potential(make_project(PointsTerm("other", copy, array="V"), grid=grid, tmp_path=tmp_path))
 
 
 def test_three_dimensional_table_and_one_dimensional_table(tmp_path):
