@@ -33,7 +33,7 @@ from core.units import get_units
 import core.points_map as pm
 
 meshio = pytest.importorskip("meshio")
-from scipy.spatial import Delaunay  # noqa: E402
+from scipy.spatial import Delaunay
 
 HW = 3.0                                                   # meV
 L0 = get_units("semiconductor").oscillator_length(0.067, HW)   # nm, GaAs m* = 0.067 (core.materials)
