@@ -67,6 +67,25 @@ class _UsageError(Exception):
     pass
 
 
+def _apply_sets(project, items: Sequence[str]):
+    """``(project, parameter overrides)`` for ``--set`` items: parameters become overrides; a field
+    component (``magnetic_field[2]``) or a gate voltage (``gate:P1``) is fixed in the project."""
+    from core.errors import InputError
+    from core.sweep.targets import set_target, sweep_targets
+    overrides = {}
+    for name, value in _parse_sets(items).items():
+        if name in project.parameters:
+            overrides[name] = value
+            continue
+        try:
+            project = set_target(project, name, value)
+        except InputError:
+            known = ", ".join(sweep_targets(project)) or "none"
+            raise _UsageError(f"--set {name}: unknown parameter, field component or gate; this project's "
+                              f"settable names are: {known}") from None
+    return project, overrides
+
+
 def _load(path: str):
     from core.project import load_project
     project = load_project(path)
@@ -100,15 +119,15 @@ def cmd_solve(args) -> int:
     from core.study import solve_project
     from core import __version__
 
-    project = _load(args.project)
+    project, overrides = _apply_sets(_load(args.project), args.set)
     bar = _Progress("solving", enabled=None if not args.json else False)
     pair = None
     if project.electrons == 2:
         from core.two_electron import solve_two_electron
-        result, pair = solve_two_electron(project, parameters=_parse_sets(args.set), orbitals=args.states,
+        result, pair = solve_two_electron(project, parameters=overrides, orbitals=args.states,
                                           progress=bar)
     else:
-        result = solve_project(project, parameters=_parse_sets(args.set), states=args.states, progress=bar)
+        result = solve_project(project, parameters=overrides, states=args.states, progress=bar)
     bar.done()
     spec = result.spectrum
     u = result.units
@@ -182,8 +201,8 @@ def cmd_potential(args) -> int:
     from core.potentials import evaluate_potential
     from core.units import get_units
 
-    project = _load(args.project)
-    v = evaluate_potential(project, parameters=_parse_sets(args.set))
+    project, overrides = _apply_sets(_load(args.project), args.set)
+    v = evaluate_potential(project, parameters=overrides)
     u = get_units(project.units)
     out = Path(args.output)
     axes = project.grid.axes
@@ -260,6 +279,11 @@ def cmd_open(args) -> int:
     return run_gui(args)
 
 
+_PROJECT_HELP = "the project file (JSON)"
+_SET_HELP = ("fix a parameter (NAME=VALUE), a field component (magnetic_field[2]=1, in the project's field "
+             "units) or a gate voltage (gate:P1=-0.3, volts); repeatable")
+
+
 def build_parser() -> argparse.ArgumentParser:
     from core import __version__
     p = argparse.ArgumentParser(prog="wellscape", description="Bound states of quantum dots and atom traps.")
@@ -269,10 +293,13 @@ def build_parser() -> argparse.ArgumentParser:
                         "repeatable")
     sub = p.add_subparsers(dest="command")
 
-    s = sub.add_parser("solve", help="solve a project and print its levels")
-    s.add_argument("project")
-    s.add_argument("--states", type=int, help="number of states (default: the project's)")
-    s.add_argument("--set", action="append", metavar="NAME=VALUE", help="override a parameter (repeatable)")
+    s = sub.add_parser("solve", help="solve a project and print its levels",
+                       description="Solve a project for its lowest bound states and print the level table "
+                                   "(energies in the project's energy unit, positions in its length unit).")
+    s.add_argument("project", help=_PROJECT_HELP)
+    s.add_argument("--states", type=int, metavar="K",
+                   help="number of states to compute, a count (default: the project's solver.states)")
+    s.add_argument("--set", action="append", metavar="NAME=VALUE", help=_SET_HELP)
     s.add_argument("--json", action="store_true", help="print machine-readable JSON")
     s.add_argument("--out", metavar="DIR", help="write levels.csv and states.npz into DIR")
     s.add_argument("--count", action="store_true",
@@ -280,27 +307,33 @@ def build_parser() -> argparse.ArgumentParser:
                         "inertia) to confirm that no level was missed")
     s.set_defaults(func=cmd_solve)
 
-    s = sub.add_parser("potential", help="write the evaluated potential on the grid")
-    s.add_argument("project")
+    s = sub.add_parser("potential", help="write the evaluated potential on the grid",
+                       description="Evaluate the project's potential on its grid and write it with the grid "
+                                   "axes (energy unit and length unit of the project).")
+    s.add_argument("project", help=_PROJECT_HELP)
     s.add_argument("-o", "--output", required=True, help="FILE.npy, FILE.npz or FILE.csv (1D/2D)")
-    s.add_argument("--set", action="append", metavar="NAME=VALUE")
+    s.add_argument("--set", action="append", metavar="NAME=VALUE", help=_SET_HELP)
     s.set_defaults(func=cmd_potential)
 
-    s = sub.add_parser("check", help="validate a project without solving")
-    s.add_argument("project")
+    s = sub.add_parser("check", help="validate a project without solving",
+                       description="Read and validate a project, evaluate its potential and estimate the "
+                                   "memory a solve needs, without solving.")
+    s.add_argument("project", help=_PROJECT_HELP)
     s.set_defaults(func=cmd_check)
 
     from app.sweep_cli import add_sweep_parser
     add_sweep_parser(sub)
-    for module, name in (("app.converge_cli", "add_converge_parser"), ("app.figure_cli", "add_figure_parser")):
+    for module, name in (("app.converge_cli", "add_converge_parser"), ("app.figure_cli", "add_figure_parser"),
+                         ("app.layout_cli", "add_import_layout_parser")):
         try:
             adder = getattr(__import__(module, fromlist=[name]), name)
         except (ImportError, AttributeError):
             continue
         adder(sub)
 
-    s = sub.add_parser("open", help="open a project in the desktop window")
-    s.add_argument("project", nargs="?")
+    s = sub.add_parser("open", help="open a project in the desktop window",
+                       description="Open the desktop window, with a project if one is given.")
+    s.add_argument("project", nargs="?", help=_PROJECT_HELP + " (default: a new project)")
     s.add_argument("--solve", action="store_true", help="solve once the window is open")
     s.add_argument("--screenshot", metavar="PNG", help="save a screenshot of the window and exit")
     s.set_defaults(func=cmd_open)

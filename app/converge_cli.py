@@ -63,7 +63,7 @@ def format_report(report, *, marks=None, title: str = "", certificate=None, timi
 
 
 def cmd_converge(args) -> int:
-    from app.cli import _UsageError, _jsonable, _load, _parse_sets, _Progress
+    from app.cli import _UsageError, _apply_sets, _jsonable, _load, _Progress
     from core.convergence import convergence_study
     from core.estimate import estimate_convergence
 
@@ -73,8 +73,7 @@ def cmd_converge(args) -> int:
         raise _UsageError(f"--factor must be a number above 1, got {args.factor}")
     if args.levels is not None and args.levels < 1:
         raise _UsageError(f"--levels must be a positive integer, got {args.levels}")
-    project = _load(args.project)
-    params = _parse_sets(args.set)
+    project, params = _apply_sets(_load(args.project), args.set)
     refine = "finer" if args.finer else "coarser"
     t_est = time.perf_counter()
     est = estimate_convergence(project, factor=args.factor, grids=args.grids, levels=args.levels,
@@ -115,12 +114,13 @@ def add_converge_parser(subparsers) -> None:
     s = subparsers.add_parser("converge", help="check that levels and splittings are converged on the grid",
                               description="Solve the project on its grid and on coarser ones, extrapolate each "
                                           "level to zero spacing, and say which splittings the grid resolves.")
-    s.add_argument("project")
+    s.add_argument("project", help="the project file (JSON)")
     s.add_argument("--factor", type=float, default=1.5, help="spacing ratio between grids (default 1.5)")
     s.add_argument("--levels", type=int, help="levels to report (default: the project's number of states)")
     s.add_argument("--grids", type=int, default=3, help="number of grids, 2 to 5 (default 3)")
     s.add_argument("--finer", action="store_true", help="use finer grids than the project's instead of coarser")
-    s.add_argument("--set", action="append", metavar="NAME=VALUE", help="override a parameter (repeatable)")
+    s.add_argument("--set", action="append", metavar="NAME=VALUE",
+                   help="fix a parameter, field component or gate voltage (repeatable)")
     s.add_argument("--count", action="store_true",
                    help="also verify the number of levels on the project grid by an independent count")
     s.add_argument("--json", action="store_true", help="print machine-readable JSON")

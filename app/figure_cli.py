@@ -40,7 +40,8 @@ def add_figure_parser(sub) -> None:
                    help="draw |psi|^2 (density, the default) or the signed wavefunction with its nodal lines")
     s.add_argument("--slice", action="store_true", help="3D: a slice through each state instead of the "
                                                          "density projected along z")
-    s.add_argument("--set", action="append", metavar="NAME=VALUE", help="override a parameter (repeatable)")
+    s.add_argument("--set", action="append", metavar="NAME=VALUE",
+                   help="fix a parameter, field component or gate voltage (repeatable)")
     s.add_argument("--converge", action="store_true",
                    help="check convergence first (solves on coarser grids too) and mark every splitting of the "
                         "level diagram as resolved or not resolved, with grid-error bars")
@@ -168,9 +169,9 @@ def cmd_figure(args) -> int:
 
     if not args.project:
         _fail("give a PROJECT file to draw, or --from SHEET.json to redraw a sheet")
-    from app.cli import _Progress, _load, _parse_sets
+    from app.cli import _Progress, _apply_sets, _load
 
-    project = _load(args.project)
+    project, overrides = _apply_sets(_load(args.project), args.set)
     states = _parse_states(args.states)
     sweep = None
     if args.sweep:
@@ -194,7 +195,7 @@ def cmd_figure(args) -> int:
         if tokens:
             wanted = max([wanted] + [n for name, n in tokens if name == "states"])
         bar = _Progress("solving")
-        result = solve_project(project, parameters=_parse_sets(args.set), states=wanted, progress=bar)
+        result = solve_project(project, parameters=overrides, states=wanted, progress=bar)
         bar.done()
     elif args.set:
         _fail("--set changes the solved project, but this layout only draws the sweep")
@@ -207,11 +208,11 @@ def cmd_figure(args) -> int:
         from core.convergence import convergence_study
         from core.estimate import estimate_convergence
         est = estimate_convergence(project, factor=args.factor, levels=project.solver.states,
-                                   parameters=_parse_sets(args.set)).check()
+                                   parameters=overrides).check()
         print(f"wellscape: {est.describe()}", file=sys.stderr)
         bar = _Progress("converging")
         report = convergence_study(project, factor=args.factor, levels=project.solver.states,
-                                   parameters=_parse_sets(args.set), progress=bar)
+                                   parameters=overrides, progress=bar)
         bar.done()
     sheet = build_sheet(result, sweep=sweep, layout=layout, template=args.template or "slide", states=states,
                         wavefunction=args.psi or "density", three_d="slice" if args.slice else "projection",

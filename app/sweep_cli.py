@@ -14,14 +14,24 @@ MAX_STEPS = 100_000
 
 
 def add_sweep_parser(sub) -> None:
-    s = sub.add_parser("sweep", help="vary a parameter, track levels, find anticrossings")
-    s.add_argument("project")
+    s = sub.add_parser("sweep", help="vary a parameter, track levels, find anticrossings",
+                       description="Vary one quantity over evenly spaced values, solve at each, track every level "
+                                   "by wavefunction overlap and decide each close approach (crossing or "
+                                   "anticrossing, with its gap in the project's energy unit).")
+    s.add_argument("project", help="the project file (JSON)")
     s.add_argument("--vary", required=True, metavar="NAME",
                    help="a parameter, a field component (magnetic_field[2]) or a gate (gate:P1)")
-    s.add_argument("--from", dest="start", type=float, required=True)
-    s.add_argument("--to", dest="stop", type=float, required=True)
+    s.add_argument("--from", dest="start", type=float, required=True, metavar="A",
+                   help="first value of the varied quantity: for a parameter, in the unit its formulas assume; "
+                        "for magnetic_field[i], tesla (atomic units in atomic projects); for electric_field[i], "
+                        "the project's field unit (mV/nm for semiconductor projects); for gate:NAME, volts")
+    s.add_argument("--to", dest="stop", type=float, required=True, metavar="B",
+                   help="last value, in the same unit as --from")
     s.add_argument("--steps", type=int, required=True, help="number of values, including both ends")
-    s.add_argument("--states", type=int)
+    s.add_argument("--states", type=int, metavar="K",
+                   help="number of levels to solve and track, a count (default: the project's solver.states)")
+    s.add_argument("--set", action="append", metavar="NAME=VALUE",
+                   help="fix a parameter, field component or gate voltage for the whole sweep (repeatable)")
     s.add_argument("--workers", type=int, default=1,
                    help=f"local processes (chunks with warm starts); at most the machine's processors "
                         f"(and {MAX_WORKERS})")
@@ -115,11 +125,15 @@ def probe_scheduler(address: str, timeout: float, error) -> None:
 
 
 def cmd_sweep(args) -> int:
-    from app.cli import _Progress, _UsageError, _load
+    from app.cli import _Progress, _UsageError, _apply_sets, _load, _parse_sets
     from core.sweep import run_sweep, save_sweep
 
     _check_arguments(args, _UsageError)
-    project = _load(args.project)
+    if args.vary in _parse_sets(args.set):
+        raise _UsageError(f"--set {args.vary}: this is the swept quantity (--vary)")
+    project, overrides = _apply_sets(_load(args.project), args.set)
+    if overrides:
+        project = project.with_parameters(**overrides)
     values = np.linspace(args.start, args.stop, args.steps)
     from core.estimate import estimate_sweep
     est = estimate_sweep(project, values.size, states=args.states).check()   # refused with a suggestion

@@ -264,10 +264,10 @@ def _project_doc(project, parameters: Optional[dict] = None) -> dict:
 
 def _map_file_hashes(project) -> dict:
     """SHA-256 of every map file the project reads, so the hash covers imported data too."""
-    from .project import MapTerm
+    from .project import MapTerm, PointsTerm
     out = {}
     for term in project.potential:
-        if isinstance(term, MapTerm):
+        if isinstance(term, (MapTerm, PointsTerm)):
             p = Path(term.file)
             if not p.is_absolute():
                 p = Path(project.base_dir or ".") / p

@@ -21,7 +21,7 @@ from .limits import MASS_RANGE, MAX_ENERGY, MAX_MAGNETIC_FIELD, POTENTIAL_WORK_A
 from .maps import confined_map_path, interpolate_map, load_map_file
 from .materials import get_material
 from .resources import check_memory
-from .project import FieldTerm, FormulaTerm, GatesTerm, MapTerm, Project
+from .project import FieldTerm, FormulaTerm, GatesTerm, MapTerm, PointsTerm, Project
 from .units import get_units
 
 __all__ = ["resolve_parameters", "resolve_value", "evaluate_potential", "evaluate_terms", "gate_list",
@@ -174,6 +174,19 @@ def _map_values(term: MapTerm, base_dir: Optional[str], path: str) -> np.ndarray
     return values
 
 
+def _points_values(term: PointsTerm, base_dir: Optional[str], grid: Grid, params, path: str) -> np.ndarray:
+    """Energy of a points term on the grid: scale * V, with V interpolated (core.points_map)."""
+    from .points_map import points_on_grid
+    scale = resolve_value(term.scale, params, f"{path}.scale")
+    fill = None if term.fill is None else resolve_value(term.fill, params, f"{path}.fill")
+    try:
+        values = points_on_grid(term.file, base_dir, grid, array_name=term.array, fill=fill)
+    except InputError as exc:
+        raise ProjectError(str(exc), path=f"{path}.file ({term.label})") from None
+    values *= scale
+    return values
+
+
 def evaluate_terms(project: Project, *, grid: Optional[Grid] = None,
                    parameters: Optional[Mapping[str, float]] = None, include_disabled: bool = False) -> list:
     """``[(index, term, array or None)]`` for every term (None for disabled ones unless asked)."""
@@ -219,6 +232,8 @@ def evaluate_terms(project: Project, *, grid: Optional[Grid] = None,
                                       method=term.method)
             except InputError as exc:
                 raise ProjectError(str(exc), path=f"{path} ({term.label})") from None
+        elif isinstance(term, PointsTerm):
+            arr = _points_values(term, project.base_dir, grid, params, path)
         elif isinstance(term, FieldTerm):
             f = electric_field(project, params)
             q = u.charge if u.charged else 1.0

@@ -49,7 +49,7 @@ from .materials import get_material, material_names
 from .units import UNIT_SYSTEMS
 
 __all__ = ["CURRENT_SCHEMA_VERSION", "Project", "MaterialSpec", "GateSpec", "FormulaTerm", "GatesTerm",
-           "MapTerm", "FieldTerm", "SolverSettings", "load_project", "save_project", "project_from_dict",
+           "MapTerm", "PointsTerm", "FieldTerm", "SolverSettings", "load_project", "save_project", "project_from_dict",
            "project_to_dict", "project_from_json", "project_to_json", "MIGRATIONS", "TERM_KINDS",
            "new_project"]
 
@@ -138,13 +138,31 @@ class MapTerm:
 
 
 @dataclass(frozen=True)
+class PointsTerm:
+    """V given at scattered points (text table or mesh file, see :mod:`core.points_map`).
+
+    Energy on the grid = ``scale`` * V, linear inside the points' convex hull; outside it
+    ``fill`` (a value of V, scaled like the data) or, when None, an error.
+    """
+
+    label: str
+    file: str
+    scale: Value = 1.0
+    fill: Optional[Value] = None
+    array: Optional[str] = None
+    enabled: bool = True
+    kind: str = field(default="points", init=False)
+
+
+@dataclass(frozen=True)
 class FieldTerm:
     label: str = "electric field"
     enabled: bool = True
     kind: str = field(default="uniform_field", init=False)
 
 
-TERM_KINDS = {"formula": FormulaTerm, "gates": GatesTerm, "map": MapTerm, "uniform_field": FieldTerm}
+TERM_KINDS = {"formula": FormulaTerm, "gates": GatesTerm, "map": MapTerm, "points": PointsTerm,
+              "uniform_field": FieldTerm}
 
 
 @dataclass(frozen=True)
@@ -537,8 +555,32 @@ def _read_term(r: _Reader, raw, path: str, ndim: int, warnings):
             r.fail(f"{path}.method", f"expected one of {', '.join(INTERPOLATION_METHODS)}, got {method!r}")
         return MapTerm(label=label, file=f, lower=lower, upper=upper, scale=scale, array=arr, method=method,
                        enabled=enabled)
+    if kind == "points":
+        return _read_points_term(r, raw, path, label, enabled, warnings)
     _extra_keys(raw, common, path, warnings)
     return FieldTerm(label=label, enabled=enabled)
+
+
+def _read_points_term(r: _Reader, raw: dict, path: str, label: str, enabled: bool, warnings) -> PointsTerm:
+    from .points_map import MESH_SUFFIXES, POINTS_SUFFIXES
+    _extra_keys(raw, ("kind", "label", "enabled", "file", "array", "scale", "fill"), path, warnings)
+    f = r.text(raw.get("file", ""), f"{path}.file", allow_empty=False)
+    suffix = Path(f).suffix.lower()
+    if suffix not in POINTS_SUFFIXES:
+        r.fail(f"{path}.file", f"unsupported file type {suffix or '(none)'!r}; expected one of "
+                               f"{', '.join(POINTS_SUFFIXES)}")
+    if Path(f).is_absolute():
+        r.fail(f"{path}.file", "give a path relative to the project's folder, not an absolute one")
+    arr = raw.get("array")
+    if arr is not None:
+        r.text(arr, f"{path}.array", allow_empty=False)
+        if suffix not in MESH_SUFFIXES:
+            r.fail(f"{path}.array", "an array name applies only to mesh files")
+    scale = r.number(raw.get("scale", 1.0), f"{path}.scale")
+    fill = raw.get("fill")
+    if fill is not None:
+        fill = r.number(fill, f"{path}.fill")
+    return PointsTerm(label=label, file=f, scale=scale, fill=fill, array=arr, enabled=enabled)
 
 
 # --- writing ---------------------------------------------------------------------------------------
@@ -579,6 +621,11 @@ def project_to_dict(project: Project) -> dict:
                       "method": t.method})
             if t.array is not None:
                 d["array"] = t.array
+        elif isinstance(t, PointsTerm):
+            d.update({"file": t.file, "scale": t.scale})
+            for key in ("fill", "array"):
+                if getattr(t, key) is not None:
+                    d[key] = getattr(t, key)
         terms.append(d)
     out = {"schema_version": CURRENT_SCHEMA_VERSION, "title": project.title, "notes": project.notes,
            "units": project.units, "material": material, "grid": project.grid.to_dict(),

@@ -14,7 +14,7 @@ from typing import Optional
 
 from core.errors import InputError
 from core.formula import RESERVED_NAMES
-from core.project import FieldTerm, FormulaTerm, GateSpec, GatesTerm, MapTerm, MaterialSpec, Project
+from core.project import FieldTerm, FormulaTerm, GateSpec, GatesTerm, MapTerm, MaterialSpec, PointsTerm, Project
 
 __all__ = ["IDENTIFIER", "check_parameter_name", "parameter_uses", "add_parameter", "remove_parameter",
            "rename_parameter", "set_parameter_range", "default_range", "slider_range", "add_term",
@@ -64,6 +64,8 @@ def _map_values(project: Project, fn):
                                     gates=gates)
         elif isinstance(t, MapTerm):
             t = dataclasses.replace(t, scale=fn(t.scale))
+        elif isinstance(t, PointsTerm):
+            t = dataclasses.replace(t, scale=fn(t.scale), fill=None if t.fill is None else fn(t.fill))
         terms.append(t)
     m = project.material
     material = dataclasses.replace(m, mass=None if m.mass is None else fn(m.mass),
@@ -86,6 +88,8 @@ def parameter_uses(project: Project, name: str) -> list:
                 if _uses((g.voltage, g.polygon or (), g.rectangle or ()), name):
                     out.append(f"gate '{g.label}' of term '{t.label}'")
         elif isinstance(t, MapTerm) and _uses(t.scale, name):
+            out.append(f"term '{t.label}'")
+        elif isinstance(t, PointsTerm) and _uses((t.scale, t.fill), name):
             out.append(f"term '{t.label}'")
     m = project.material
     if (m.mass is not None and _uses(m.mass, name)) or (m.g_factor is not None and _uses(m.g_factor, name)):

@@ -24,6 +24,7 @@ __all__ = ["TermsPanel", "MapEditor", "KIND_NAMES"]
 
 KIND_NAMES = {"formula": "formula", "gates": "surface gates", "map": "imported map",
               "uniform_field": "uniform field"}
+SHOWN_KIND_NAMES = dict(KIND_NAMES, points="scattered points")    # kinds shown but not offered in "add"
 
 
 class MapEditor(QWidget):
@@ -178,8 +179,10 @@ class TermsPanel(QWidget):
                                  "such as gravity) set under Fields: V = -q F.r.")
         self.field_note.setWordWrap(True)
         self.nothing = QLabel("Select a term to edit it.")
+        self.other_note = QLabel("This term has no editor here yet; change it in the project file.")
+        self.other_note.setWordWrap(True)
         self.detail = QStackedWidget()
-        for w in (self.nothing, self.formula, self.gates, self.map, self.field_note):
+        for w in (self.nothing, self.formula, self.gates, self.map, self.field_note, self.other_note):
             self.detail.addWidget(w)
         self.detail_title = QLabel()
         self.detail_title.setWordWrap(True)
@@ -215,7 +218,7 @@ class TermsPanel(QWidget):
                 if item.text(0) != t.label:
                     item.setText(0, t.label)
                 item.setCheckState(0, Qt.CheckState.Checked if t.enabled else Qt.CheckState.Unchecked)
-                item.setText(1, KIND_NAMES.get(t.kind, t.kind))
+                item.setText(1, SHOWN_KIND_NAMES.get(t.kind, t.kind))
                 item.setToolTip(0, "Double-click to rename; untick to leave this term out of the potential")
             if p.potential:
                 sel = keep if keep is not None and keep < len(p.potential) else 0
@@ -239,7 +242,7 @@ class TermsPanel(QWidget):
             self.detail_title.setText("")
             return
         t = p.potential[i]
-        self.detail_title.setText(f"<b>{t.label}</b> ({KIND_NAMES.get(t.kind, t.kind)}, "
+        self.detail_title.setText(f"<b>{t.label}</b> ({SHOWN_KIND_NAMES.get(t.kind, t.kind)}, "
                                   f"energy in {self.session.units.energy_unit})")
         if isinstance(t, FormulaTerm):
             self.formula.set_parameters(p.parameters)
@@ -257,6 +260,8 @@ class TermsPanel(QWidget):
             self.detail.setCurrentWidget(self.map)
         elif isinstance(t, FieldTerm):
             self.detail.setCurrentWidget(self.field_note)
+        else:                       # e.g. a "points" term (scattered potential samples)
+            self.detail.setCurrentWidget(self.other_note)
 
     # -- widgets -> session ----------------------------------------------------------------------
     def _apply(self, make, text) -> bool:

@@ -6,7 +6,7 @@ from dataclasses import replace
 from ..errors import InputError
 from ..project import GatesTerm, Project
 
-__all__ = ["SWEEP_PARAMETER", "sweep_targets", "prepare_target"]
+__all__ = ["SWEEP_PARAMETER", "sweep_targets", "prepare_target", "set_target"]
 
 SWEEP_PARAMETER = "sweep_value"
 
@@ -58,3 +58,26 @@ def prepare_target(project: Project, target: str) -> tuple:
     known = ", ".join(sweep_targets(project))
     raise InputError(f"cannot sweep {target!r}: not a parameter, field component or gate of this project. "
                      f"Sweepable: {known}")
+
+
+def set_target(project: Project, target: str, value: float) -> Project:
+    """The project with ``target`` (any name :func:`sweep_targets` lists) fixed at ``value``.
+
+    A parameter gets the value; a field component or gate voltage is replaced by the number
+    (so several targets can be set one after the other).
+    """
+    if target in project.parameters:
+        return project.with_parameters(**{target: value})
+    if SWEEP_PARAMETER in project.parameters:
+        raise InputError(f"cannot set {target!r}: the project has a parameter called {SWEEP_PARAMETER!r}")
+    driven, _name, _current = prepare_target(project, target)
+    v = float(value)
+
+    def bake(x):
+        return v if x == SWEEP_PARAMETER else x
+
+    terms = tuple(replace(t, gates=tuple(replace(g, voltage=bake(g.voltage)) for g in t.gates))
+                  if isinstance(t, GatesTerm) else t for t in driven.potential)
+    return replace(driven, parameters=dict(project.parameters), potential=terms,
+                   electric_field=tuple(bake(x) for x in driven.electric_field),
+                   magnetic_field=tuple(bake(x) for x in driven.magnetic_field))
