@@ -323,13 +323,11 @@ def build_parser() -> argparse.ArgumentParser:
 
     from app.sweep_cli import add_sweep_parser
     add_sweep_parser(sub)
-    for module, name in (("app.converge_cli", "add_converge_parser"), ("app.figure_cli", "add_figure_parser"),
-                         ("app.layout_cli", "add_import_layout_parser")):
-        try:
-            adder = getattr(__import__(module, fromlist=[name]), name)
-        except (ImportError, AttributeError):
-            continue
-        adder(sub)
+    from app.converge_cli import add_converge_parser
+    from app.figure_cli import add_figure_parser
+    from app.layout_cli import add_import_layout_parser
+    for adder in (add_converge_parser, add_figure_parser, add_import_layout_parser):
+        adder(sub)             # our own modules: an import error must show, not hide a subcommand
 
     s = sub.add_parser("open", help="open a project in the desktop window",
                        description="Open the desktop window, with a project if one is given.")

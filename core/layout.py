@@ -31,10 +31,10 @@ from .project import GateSpec
 __all__ = ["LayerChoice", "parse_layer", "read_layout_gates", "layout_unit_scale", "project_with_gates", "MAX_FILE_BYTES",
            "MAX_GATE_VERTICES", "MAX_GATES"]
 
+from .limits import MAX_IMPORTED_GATE_VERTICES  # noqa: E402
+
 MAX_FILE_BYTES = 64 * 2**20
-# The gate potential costs one atan2 per vertex and grid point: an outline of more vertices than
-# this is refused (simplify it in the layout tool).
-MAX_GATE_VERTICES = 1000
+MAX_GATE_VERTICES = MAX_IMPORTED_GATE_VERTICES      # core.limits: one place for every bound
 MAX_GATES = 500
 _GDS_HEADER = b"\x00\x06\x00\x02"      # the HEADER record: length 6, record type 0x00, data type 0x02
 

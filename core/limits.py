@@ -8,7 +8,7 @@ each error names the bound it broke.
 from __future__ import annotations
 
 __all__ = ["MAX_POINTS_PER_AXIS", "MAX_COORDINATE", "MIN_VOLUME_ELEMENT", "MASS_RANGE", "MAX_ENERGY", "MAX_MAGNETIC_FIELD",
-           "MAX_MAP_BYTES", "MAX_POLYGON_VERTICES", "MAX_WORKERS", "MAX_PATH_CHARS",
+           "MAX_MAP_BYTES", "MAX_POLYGON_VERTICES", "MAX_IMPORTED_GATE_VERTICES", "MAX_WORKERS", "MAX_PATH_CHARS",
            "POTENTIAL_WORK_ARRAYS"]
 
 #: grid points along one axis (a 1D grid this long already needs gigabytes per state)
@@ -28,6 +28,9 @@ MAX_MAGNETIC_FIELD = 1e6
 MAX_MAP_BYTES = 2 * 2**30
 #: vertices of one polygon gate
 MAX_POLYGON_VERTICES = 100_000
+#: vertices of one gate imported from a layout: the gate potential costs one atan2 per vertex and
+#: grid point, so a larger outline is refused (simplify it in the layout tool)
+MAX_IMPORTED_GATE_VERTICES = 1000
 #: local worker processes of a sweep
 MAX_WORKERS = 64
 #: characters of a file path written in a project
