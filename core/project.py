@@ -2,10 +2,10 @@
 
 A project holds a title, notes, a unit system, a material, a grid, named
 parameters, an ordered list of potential terms, fields and solver settings.
-Top-level keys of the JSON file (schema version 2):
+Top-level keys of the JSON file (schema version 3):
 
 ``schema_version, title, notes, units, material, grid, parameters,
-parameter_ranges, potential, electric_field, magnetic_field, spin, solver``
+parameter_ranges, potential, regions, electric_field, magnetic_field, spin, solver``
 
 Any number inside a term, a gate voltage, a field component or the material
 may be written as a parameter name or a formula of parameters
@@ -24,6 +24,10 @@ Schema history:
 * version 1: the development draft. ``magnetic_field`` was a single number
   (B along z, tesla) and the number of states was ``solver.levels``.
 * version 2: ``magnetic_field`` is a vector ``[Bx, By, Bz]``; ``solver.states``.
+* version 3: optional ``regions`` (material regions with their own mass and band
+  offset).  A version-2 file is a version-3 file without regions; the bump makes
+  an older Wellscape refuse a file with regions instead of solving it with one
+  mass everywhere.
 """
 from __future__ import annotations
 
@@ -45,12 +49,12 @@ from .kinetic import SCHEMES
 from .materials import get_material, material_names
 from .units import UNIT_SYSTEMS
 
-__all__ = ["CURRENT_SCHEMA_VERSION", "Project", "MaterialSpec", "GateSpec", "FormulaTerm", "GatesTerm",
+__all__ = ["CURRENT_SCHEMA_VERSION", "Project", "MaterialSpec", "RegionSpec", "GateSpec", "FormulaTerm", "GatesTerm",
            "MapTerm", "FieldTerm", "SolverSettings", "load_project", "save_project", "project_from_dict",
            "project_to_dict", "project_from_json", "project_to_json", "MIGRATIONS", "TERM_KINDS",
            "new_project"]
 
-CURRENT_SCHEMA_VERSION = 2
+CURRENT_SCHEMA_VERSION = 3
 MAX_FILE_BYTES = 20 * 2**20
 Value = Union[float, str]
 
@@ -80,6 +84,13 @@ def _v1_to_v2(data: dict) -> dict:
     return out
 
 
+@migration(2)
+def _v2_to_v3(data: dict) -> dict:
+    out = copy.deepcopy(data)
+    out["schema_version"] = 3           # version 3 only adds the optional "regions"
+    return out
+
+
 # --- data classes ---------------------------------------------------------------------------------
 
 @dataclass(frozen=True)
@@ -89,6 +100,19 @@ class MaterialSpec:
     name: Optional[str] = None
     mass: Optional[Union[Value, tuple]] = None
     g_factor: Optional[Value] = None
+
+
+@dataclass(frozen=True)
+class RegionSpec:
+    """A material region: where ``inside`` (a formula of coordinates and parameters) is nonzero,
+    ``material`` holds, with an optional band ``offset`` (energy unit; a number, a formula of
+    parameters, or ``"table"`` for the materials table's conduction-band offset)."""
+
+    label: str
+    inside: str
+    material: MaterialSpec
+    offset: Optional[Value] = None
+    permittivity: Optional[Value] = None
 
 
 @dataclass(frozen=True)
@@ -161,6 +185,7 @@ class Project:
     solver: SolverSettings = SolverSettings()
     notes: str = ""
     parameter_ranges: dict = field(default_factory=dict)
+    regions: tuple = ()
     schema_version: int = CURRENT_SCHEMA_VERSION
     base_dir: Optional[str] = field(default=None, compare=False)
     warnings: tuple = field(default=(), compare=False)
@@ -271,7 +296,7 @@ def _extra_keys(data: dict, allowed, path: str, warnings: list):
 
 
 _TOP_KEYS = ("schema_version", "title", "notes", "units", "material", "grid", "parameters",
-             "parameter_ranges", "potential", "electric_field", "magnetic_field", "spin", "solver")
+             "parameter_ranges", "potential", "regions", "electric_field", "magnetic_field", "spin", "solver")
 _IDENT = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
 
 
@@ -331,6 +356,8 @@ def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
     for i, raw in enumerate(r.array(data["potential"], "potential")):
         terms.append(_read_term(r, raw, f"potential[{i}]", ndim, warnings))
 
+    regions = _read_regions(r, data.get("regions", []), material, units, warnings)
+
     ef = data.get("electric_field", [0.0] * ndim)
     ef = r.array(ef, "electric_field", length=(ndim, 3))
     electric = tuple(r.number(v, f"electric_field[{i}]") for i, v in enumerate(ef))
@@ -353,7 +380,7 @@ def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
     return Project(title=title, units=units, material=material, grid=grid, parameters=params,
                    potential=tuple(terms), electric_field=electric, magnetic_field=magnetic, spin=spin,
                    solver=SolverSettings(states=states, scheme=scheme, tolerance=float(tol)), notes=notes,
-                   parameter_ranges=ranges, base_dir=base_dir, warnings=tuple(warnings),
+                   parameter_ranges=ranges, regions=regions, base_dir=base_dir, warnings=tuple(warnings),
                    migrated_from=migrated_from)
 
 
@@ -386,6 +413,72 @@ def _read_material(r: _Reader, raw, warnings) -> MaterialSpec:
     if g is not None:
         g = r.number(g, "material.g_factor")
     return MaterialSpec(name=name, mass=mass, g_factor=g)
+
+
+def _read_regions(r: _Reader, raw, project_material: MaterialSpec, units: str, warnings) -> tuple:
+    """The ``regions`` list: label, inside (formula), material (name or object), offset."""
+    out = []
+    for i, reg in enumerate(r.array(raw, "regions")):
+        path = f"regions[{i}]"
+        reg = r.obj(reg, path)
+        _extra_keys(reg, ("label", "inside", "material", "offset"), path, warnings)
+        label = r.text(reg.get("label", f"region {i + 1}"), f"{path}.label")
+        if "inside" not in reg:
+            r.fail(f"{path}.inside", "missing: a formula of the coordinates, nonzero inside the region")
+        inside = r.text(reg["inside"], f"{path}.inside", allow_empty=False)
+        try:
+            parse_formula(inside, parameters=r.parameters)
+        except FormulaError as exc:
+            r.fail(f"{path}.inside", str(exc))
+        if "material" not in reg:
+            r.fail(f"{path}.material", "missing: a material name or {\"mass\": ...}")
+        mat, eps = _read_region_material(r, reg["material"], f"{path}.material", warnings)
+        offset = reg.get("offset")
+        if isinstance(offset, str) and offset == "table":
+            from .materials import band_offset
+            try:
+                if mat.name is None or project_material.name is None:
+                    raise InputError("\"table\" needs a material name both here and for the project")
+                band_offset(mat.name, project_material.name)
+            except InputError as exc:
+                r.fail(f"{path}.offset", str(exc))
+            if units not in ("semiconductor", "atomic"):
+                r.fail(f"{path}.offset", f"table offsets are for semiconductor units, not {units!r}")
+        elif offset is not None:
+            offset = r.number(offset, f"{path}.offset")
+        out.append(RegionSpec(label=label, inside=inside, material=mat, offset=offset, permittivity=eps))
+    return tuple(out)
+
+
+def _read_region_material(r: _Reader, raw, path: str, warnings) -> tuple:
+    if isinstance(raw, str):
+        try:
+            get_material(raw)
+        except InputError as exc:
+            r.fail(path, str(exc))
+        return MaterialSpec(name=raw), None
+    raw = r.obj(raw, path)
+    _extra_keys(raw, ("name", "mass", "g_factor", "permittivity"), path, warnings)
+    name = raw.get("name")
+    if name is not None:
+        r.text(name, f"{path}.name")
+        try:
+            get_material(name)
+        except InputError as exc:
+            r.fail(f"{path}.name", str(exc))
+    mass = raw.get("mass")
+    if mass is None and name is None:
+        r.fail(path, f"give a material name ({', '.join(material_names())}) or a mass")
+    if isinstance(mass, list):
+        r.array(mass, f"{path}.mass", length=3)
+        mass = tuple(r.number(v, f"{path}.mass[{i}]", positive=True) for i, v in enumerate(mass))
+    elif mass is not None:
+        mass = r.number(mass, f"{path}.mass", positive=True)
+    g = raw.get("g_factor")
+    g = None if g is None else r.number(g, f"{path}.g_factor")
+    eps = raw.get("permittivity")
+    eps = None if eps is None else r.number(eps, f"{path}.permittivity", positive=True)
+    return MaterialSpec(name=name, mass=mass, g_factor=g), eps
 
 
 def _read_grid(r: _Reader, raw, warnings) -> Grid:
@@ -539,11 +632,27 @@ def project_to_dict(project: Project) -> dict:
            "parameters": dict(project.parameters)}
     if project.parameter_ranges:
         out["parameter_ranges"] = {k: list(v) for k, v in project.parameter_ranges.items()}
-    out.update({"potential": terms, "electric_field": list(project.electric_field),
+    out["potential"] = terms
+    if project.regions:
+        out["regions"] = [_region_to_dict(g) for g in project.regions]
+    out.update({ "electric_field": list(project.electric_field),
                 "magnetic_field": list(project.magnetic_field), "spin": project.spin,
                 "solver": {"states": project.solver.states, "scheme": project.solver.scheme,
                            "tolerance": project.solver.tolerance}})
     return out
+
+
+def _region_to_dict(reg: RegionSpec) -> dict:
+    m = reg.material
+    if m.mass is None and m.g_factor is None and reg.permittivity is None:
+        material: Any = m.name
+    else:
+        material = {k: _plain(v) for k, v in (("name", m.name), ("mass", m.mass), ("g_factor", m.g_factor),
+                                              ("permittivity", reg.permittivity)) if v is not None}
+    d = {"label": reg.label, "inside": reg.inside, "material": material}
+    if reg.offset is not None:
+        d["offset"] = reg.offset
+    return d
 
 
 def _dump(value, indent: int = 0) -> str:
