@@ -202,18 +202,20 @@ class MaterialMap:
             return np.zeros(grid.shape)
         if self.link_rule != "cell":
             return self.offsets[self.point_index(grid)]
-        h = grid.spacing[0]
         total = np.zeros(grid.shape)
-        lines = self._transverse_offsets(grid, 0)
-        for shift in lines:
-            # cell of point i along x: [x_i - h/2, x_i + h/2], split at the point into two halves
-            for side in (-0.5, 0.0):
-                coords = self._line_coords(grid, 0, grid.axes[0] + side * h, shift)
-                ends = self._line_coords(grid, 0, grid.axes[0] + (side + 0.5) * h, shift)
-                shape = np.broadcast_shapes(*(c.shape for c in coords))
-                i0 = np.broadcast_to(self.index_at(coords), shape)
-                i1 = np.broadcast_to(self.index_at(ends), shape)
-                starts = [np.broadcast_to(c, shape) for c in coords]
-                f = self._segment_fraction(starts, 0, 0.5 * h, i0, i1)
-                total += 0.5 * (f * self.offsets[i0] + (1.0 - f) * self.offsets[i1])
-        return total / len(lines)
+        count = 0
+        for a in range(grid.ndim):           # every axis in turn, so that the map keeps the grid's symmetries
+            h = grid.spacing[a]
+            for shift in self._transverse_offsets(grid, a):
+                count += 1
+                # cell of point i along a: [x_i - h/2, x_i + h/2], split at the point into two halves
+                for side in (-0.5, 0.0):
+                    coords = self._line_coords(grid, a, grid.axes[a] + side * h, shift)
+                    ends = self._line_coords(grid, a, grid.axes[a] + (side + 0.5) * h, shift)
+                    shape = np.broadcast_shapes(*(c.shape for c in coords))
+                    i0 = np.broadcast_to(self.index_at(coords), shape)
+                    i1 = np.broadcast_to(self.index_at(ends), shape)
+                    starts = [np.broadcast_to(c, shape) for c in coords]
+                    f = self._segment_fraction(starts, a, 0.5 * h, i0, i1)
+                    total += 0.5 * (f * self.offsets[i0] + (1.0 - f) * self.offsets[i1])
+        return total / count
