@@ -115,7 +115,21 @@ class RegionHamiltonian(Hamiltonian):
 
     @property
     def row_filter(self) -> bool:
-        return False
+        """True on real 1D and 2D grids: :meth:`chebyshev_rows` has a fused kernel there."""
+        return self.phases is None and self._shape3[0] == 1
+
+    def chebyshev_rows(self, x: np.ndarray, w0: np.ndarray, w1: np.ndarray, rows: np.ndarray,
+                       degree: np.ndarray, alphas: np.ndarray, betas: np.ndarray, shift: float) -> None:
+        """Whole Chebyshev recurrences on rows of a block, one row per thread (as
+        :meth:`core.hamiltonian.Hamiltonian.chebyshev_rows`)."""
+        n1, n2 = self._shape3[1], self._shape3[2]
+        _, _, iy, sy, iz, sz = self._tables3
+        m = x.shape[0]
+        _kernels()[1].link_chebyshev_rows_2d(
+            x.reshape(m, n1, n2), w0.reshape(len(w0), n1, n2), w1.reshape(len(w1), n1, n2),
+            np.asarray(rows, dtype=np.int64), self._d3.reshape(n1, n2), self._w3[1].reshape(n1, n2),
+            self._w3[2].reshape(n1, n2), iy, sy, iz, sz, alphas, betas, np.asarray(degree, dtype=np.int64),
+            shift)
 
     def step(self, x: np.ndarray, out: np.ndarray, *, alpha: float, shift: float, beta: float,
              z: np.ndarray) -> None:

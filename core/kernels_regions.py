@@ -22,7 +22,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit, prange
 
-__all__ = ["link_step"]
+__all__ = ["link_step", "link_chebyshev_rows_2d"]
 
 
 def link_step(X, D, Wx, Wy, Wz, ix, sx, iy, sy, iz, sz, alpha, shift, beta, Z, Y):
@@ -93,3 +93,71 @@ def _link_step(X, D, Wx, Wy, Wz, ix, sx, iy, sy, iz, sz, alpha, shift, beta, Z, 
                     yl[k] = alpha * acc + beta * zl[k]
                 else:
                     yl[k] = alpha * acc
+
+
+@njit(inline="always", error_model="numpy")
+def _link_line_2d(x, y, z, D, Wy, Wz, j, shift, iy, sy, iz, sz, alpha, beta, with_z):  # pragma: no cover
+    """Line j of y = alpha * (H - shift) x (+ beta * z) on a real 2D block (n1 lines of n2 points)."""
+    n2 = x.shape[1]
+    jp = iy[2, j]
+    jm = iy[0, j]
+    gyp = sy[2, j]
+    gym = sy[0, j]
+    xl = x[j]
+    xyp = x[jp]
+    xym = x[jm]
+    dl = D[j]
+    wy0 = Wy[j]
+    wy1 = Wy[jm]
+    wz = Wz[j]
+    yl = y[j]
+    zl = z[j]
+    for k in range(1, n2 - 1):
+        acc = ((dl[k] - shift) * xl[k] - gyp * wy0[k] * xyp[k] - gym * wy1[k] * xym[k]
+               - wz[k] * xl[k + 1] - wz[k - 1] * xl[k - 1])
+        yl[k] = alpha * acc + beta * zl[k] if with_z else alpha * acc
+    for e in range(2):
+        k = e * (n2 - 1)
+        acc = (dl[k] - shift) * xl[k] - gyp * wy0[k] * xyp[k] - gym * wy1[k] * xym[k]
+        if e == 0:
+            acc -= sz[2, 0] * wz[0] * xl[iz[2, 0]] + sz[0, 0] * wz[n2 - 1] * xl[iz[0, 0]]
+        else:
+            acc -= sz[2, k] * wz[k] * xl[iz[2, k]] + sz[0, k] * wz[k - 1] * xl[iz[0, k]]
+        yl[k] = alpha * acc + beta * zl[k] if with_z else alpha * acc
+
+
+def link_chebyshev_rows_2d(X, W0, W1, rows, D, Wy, Wz, iy, sy, iz, sz, alphas, betas, degree, shift):
+    """The scaled Chebyshev recurrence of :func:`core.kernels.chebyshev_rows_real_2d` (Zhou et al.,
+    J. Comput. Phys. 219, 172 (2006), Algorithm 4.1) for the link operator on a real 1D/2D block
+    ``(m, n1, n2)``: rows ``X[rows[t]]`` filtered in place, one row per thread."""
+    _link_chebyshev_rows_2d(X, W0, W1, rows, D, Wy, Wz, iy, sy, iz, sz, alphas, betas, degree, float(shift))
+
+
+@njit(parallel=True, cache=True, nogil=True, fastmath=False, error_model="numpy")
+def _link_chebyshev_rows_2d(X, W0, W1, rows, D, Wy, Wz, iy, sy, iz, sz, alphas, betas, degree,
+                            shift):  # pragma: no cover
+    n1 = X.shape[1]
+    for t in prange(rows.shape[0]):
+        i = rows[t]
+        if i < 0:
+            continue
+        d = degree[i]
+        b0 = X[i]
+        b1 = W0[t]
+        b2 = W1[t]
+        for j in range(n1):
+            _link_line_2d(b0, b1, b0, D, Wy, Wz, j, shift, iy, sy, iz, sz, alphas[1], 0.0, False)
+        for step in range(2, d + 1):        # buffers rotate: step s lands in (b0, b1, b2)[s % 3]
+            r = step % 3
+            for j in range(n1):
+                if r == 0:
+                    _link_line_2d(b2, b0, b1, D, Wy, Wz, j, shift, iy, sy, iz, sz, alphas[step], betas[step], True)
+                elif r == 1:
+                    _link_line_2d(b0, b1, b2, D, Wy, Wz, j, shift, iy, sy, iz, sz, alphas[step], betas[step], True)
+                else:
+                    _link_line_2d(b1, b2, b0, D, Wy, Wz, j, shift, iy, sy, iz, sz, alphas[step], betas[step], True)
+        r = d % 3
+        if r == 1:
+            b0[:] = b1
+        elif r == 2:
+            b0[:] = b2
