@@ -180,3 +180,19 @@ def test_higher_order_schemes_refuse_a_position_dependent_mass():
     with pytest.raises(Exception, match="cannot carry a position-dependent"):
         build_region_hamiltonian(g, np.zeros(g.shape), _materials("abs(x) < 3"), units="semiconductor",
                                  scheme="fd4")
+
+
+def test_certified_level_count_with_regions():
+    """Sylvester's law of inertia (core.inertia, from the assembled sparse matrix) certifies the level
+    count of a region solve in a field, and its count equals that of numpy's dense eigvalsh."""
+    from core.inertia import certify_count, count_below
+    g = Grid([-12.0, -10.0], [12.0, 10.0], [31, 27])
+    mm = _random_materials()
+    v = mm.offset_map(g) + 0.02 * (g.mesh()[0] ** 2 + g.mesh()[1] ** 2)
+    h = build_region_hamiltonian(g, v, mm, units="semiconductor", magnetic_field=(0, 0, 2.0))
+    spec = lowest_states(h, 6, tolerance=1e-9)
+    cert = certify_count(h, spec)
+    assert cert.certified and cert.count_below == spec.energies.size
+    w = np.linalg.eigvalsh(h.to_sparse().toarray())
+    shift = 0.5 * (w[7] + w[8])
+    assert count_below(h, shift).count == 8
