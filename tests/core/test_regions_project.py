@@ -107,3 +107,29 @@ def test_sample_solves_with_an_exact_p_doublet():
     assert r.scheme == "fd2"
     assert any(set(g) >= {1, 2} for g in r.groups)
     assert r.energies[0] < -500.0            # the table offset makes a deep (unstrained) well, meV
+
+
+def test_region_mass_formula_checked_when_resolved():
+    """A mass written as a formula of parameters is checked with the values it gets."""
+    p = project_from_dict(doc([dict(WELL, material={"mass": "a - 20"})]))
+    with pytest.raises(ProjectError) as info:
+        project_hamiltonian(p)
+    assert info.value.path == "regions[0].material.mass" and "positive" in str(info.value)
+
+
+def test_region_formula_with_nan_on_the_grid_is_refused():
+    p = project_from_dict(doc([dict(WELL, inside="sqrt(x) < 2")]))
+    with pytest.raises(ProjectError) as info:
+        project_hamiltonian(p)
+    assert info.value.path.startswith("regions[0].inside") and "NaN" in str(info.value)
+
+
+def test_later_regions_win():
+    """Two overlapping regions: where both hold, the later one's material and offset apply."""
+    p = project_from_dict(doc([dict(WELL, offset=-100.0), {"label": "core", "inside": "abs(x) < 1",
+                                                           "material": {"mass": 0.04}, "offset": -200.0}]))
+    h, v, *_ = project_hamiltonian(p)
+    x = p.grid.axes[0]
+    assert np.all(v[np.abs(x) < 0.9] == -200.0)
+    assert np.all(v[(np.abs(x) > 1.6) & (np.abs(x) < 4.4)] == -100.0)
+    assert np.all(v[np.abs(x) > 5.6] == 0.0)
