@@ -118,7 +118,7 @@ def test_region_mass_formula_checked_when_resolved():
 
 
 def test_region_formula_with_nan_on_the_grid_is_refused():
-    p = project_from_dict(doc([dict(WELL, inside="sqrt(x) < 2")]))
+    p = project_from_dict(doc([dict(WELL, inside="sqrt(x) - 1")]))
     with pytest.raises(ProjectError) as info:
         project_hamiltonian(p)
     assert info.value.path.startswith("regions[0].inside") and "NaN" in str(info.value)
