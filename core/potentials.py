@@ -23,8 +23,8 @@ from .project import FieldTerm, FormulaTerm, GatesTerm, MapTerm, Project
 from .units import get_units
 
 __all__ = ["resolve_parameters", "resolve_value", "evaluate_potential", "evaluate_terms", "gate_list",
-           "project_masses", "project_g_factor", "electric_field", "magnetic_field", "default_lever",
-           "project_material_map", "LINK_RULE"]
+           "project_masses", "project_g_factor", "electric_field", "magnetic_field", "default_lever"]
+__all__ += ["project_material_map", "LINK_RULE"]
 
 #: how a project's link masses and band offsets are averaged (see core.regions; measured best)
 LINK_RULE = "cell"
@@ -60,10 +60,17 @@ def resolve_value(value, params: Mapping[str, float], what: str = "value") -> fl
 
 def project_masses(project: Project, params: Mapping[str, float]) -> tuple:
     """Effective mass per axis (x, y, z) in the unit system's mass unit."""
-    return _spec_masses(project.material, params, "material")
+    m = project.material
+    if m.mass is not None:
+        if isinstance(m.mass, tuple):
+            return tuple(resolve_value(v, params, f"material.mass[{i}]") for i, v in enumerate(m.mass))
+        v = resolve_value(m.mass, params, "material.mass")
+        return (v, v, v)
+    return tuple(get_material(m.name).masses)
 
 
 def _spec_masses(m, params: Mapping[str, float], path: str) -> tuple:
+    """Effective mass per axis of a region's material (checked positive with the current values)."""
     if m.mass is not None:
         if isinstance(m.mass, tuple):
             out = tuple(resolve_value(v, params, f"{path}.mass[{i}]") for i, v in enumerate(m.mass))

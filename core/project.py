@@ -2,10 +2,12 @@
 
 A project holds a title, notes, a unit system, a material, a grid, named
 parameters, an ordered list of potential terms, fields and solver settings.
-Top-level keys of the JSON file (schema version 3):
+Top-level keys of the JSON file (schema version 2):
 
 ``schema_version, title, notes, units, material, grid, parameters,
 parameter_ranges, potential, regions, electric_field, magnetic_field, spin, solver``
+(``regions``: optional material regions with their own mass and band offset; files
+without it are unchanged)
 
 Any number inside a term, a gate voltage, a field component or the material
 may be written as a parameter name or a formula of parameters
@@ -24,10 +26,6 @@ Schema history:
 * version 1: the development draft. ``magnetic_field`` was a single number
   (B along z, tesla) and the number of states was ``solver.levels``.
 * version 2: ``magnetic_field`` is a vector ``[Bx, By, Bz]``; ``solver.states``.
-* version 3: optional ``regions`` (material regions with their own mass and band
-  offset).  A version-2 file is a version-3 file without regions; the bump makes
-  an older Wellscape refuse a file with regions instead of solving it with one
-  mass everywhere.
 """
 from __future__ import annotations
 
@@ -54,7 +52,7 @@ __all__ = ["CURRENT_SCHEMA_VERSION", "Project", "MaterialSpec", "RegionSpec", "G
            "project_to_dict", "project_from_json", "project_to_json", "MIGRATIONS", "TERM_KINDS",
            "new_project"]
 
-CURRENT_SCHEMA_VERSION = 3
+CURRENT_SCHEMA_VERSION = 2
 MAX_FILE_BYTES = 20 * 2**20
 Value = Union[float, str]
 
@@ -81,13 +79,6 @@ def _v1_to_v2(data: dict) -> dict:
     if isinstance(solver, dict) and "levels" in solver and "states" not in solver:
         solver["states"] = solver.pop("levels")
     out["schema_version"] = 2
-    return out
-
-
-@migration(2)
-def _v2_to_v3(data: dict) -> dict:
-    out = copy.deepcopy(data)
-    out["schema_version"] = 3           # version 3 only adds the optional "regions"
     return out
 
 

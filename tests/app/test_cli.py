@@ -35,7 +35,7 @@ def test_solve_json_and_out_files(capsys, tmp_path):
     doc = json.loads(out)
     assert set(doc) >= {"energies", "groups", "units", "project", "solver"}
     assert doc["units"]["energy"] == "meV" and len(doc["energies"]) >= 3
-    assert doc["project"]["schema_version"] == 3
+    assert doc["project"]["schema_version"] == 2
     rows = list(csv.reader((tmp_path / "levels.csv").open(encoding="utf-8")))
     assert rows[0][1] == "energy [meV]" and len(rows) == len(doc["energies"]) + 1
     with np.load(tmp_path / "states.npz", allow_pickle=False) as npz:

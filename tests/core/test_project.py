@@ -88,7 +88,7 @@ def test_round_trip_every_term_kind_and_parameters_everywhere(tmp_path):
     np.testing.assert_array_equal(evaluate_potential(loaded),
                                   evaluate_potential(replace(original, base_dir=str(tmp_path))))
     saved = json.loads(path.read_text(encoding="utf-8"))
-    assert saved["schema_version"] == CURRENT_SCHEMA_VERSION
+    assert saved["schema_version"] == 2
     assert set(saved) == TOP_KEYS
     assert saved["magnetic_field"] == [0.0, 0.0, "B"]
     assert saved["potential"][1]["gates"][0]["voltage"] == "VP + 0.1*eps"
@@ -107,8 +107,8 @@ def test_round_trip_keeps_brackets_in_text():
 # --- migration ----------------------------------------------------------------------------------
 
 def test_migration_registry_has_step_from_version_1():
-    assert CURRENT_SCHEMA_VERSION == 3
-    assert set(MIGRATIONS) == {1, 2}
+    assert CURRENT_SCHEMA_VERSION == 2
+    assert set(MIGRATIONS) == {1}
 
 
 def test_v1_file_is_migrated_in_memory_and_not_rewritten():
@@ -117,7 +117,7 @@ def test_v1_file_is_migrated_in_memory_and_not_rewritten():
     assert raw["schema_version"] == 1
     project = load_project(V1_FILE)
     assert project.migrated_from == 1
-    assert project.schema_version == CURRENT_SCHEMA_VERSION
+    assert project.schema_version == 2
     assert project.magnetic_field == (0.0, 0.0, float(raw["magnetic_field"]))
     assert project.solver.states == raw["solver"]["levels"]
     assert project.solver.scheme == raw["solver"]["scheme"]
@@ -133,7 +133,7 @@ def test_saving_over_v1_file_keeps_bak(tmp_path):
     save_project(project, path)
     bak = tmp_path / "kestrel.json.bak"
     assert bak.read_bytes() == old
-    assert json.loads(path.read_text(encoding="utf-8"))["schema_version"] == CURRENT_SCHEMA_VERSION
+    assert json.loads(path.read_text(encoding="utf-8"))["schema_version"] == 2
     assert load_project(path) == project
 
 

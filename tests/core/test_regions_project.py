@@ -1,5 +1,4 @@
 """Material regions in project files: validation with field paths, round trip, migration, solving."""
-import json
 import pathlib
 
 import numpy as np
@@ -12,7 +11,6 @@ from core.materials import band_offset
 from core.project import CURRENT_SCHEMA_VERSION, load_project, project_from_dict, project_to_dict
 from core.study import project_hamiltonian, solve_project
 
-DATA = pathlib.Path(__file__).resolve().parent.parent / "data"
 SAMPLE = pathlib.Path(__file__).resolve().parents[2] / "sample_projects" / "inas_lens_regions.json"
 
 
@@ -66,10 +64,9 @@ def test_round_trip_keeps_regions():
     assert project_from_dict(out) == p
 
 
-def test_version_2_file_migrates_without_regions():
-    p = load_project(DATA / "project_v2.json")
-    assert p.migrated_from == 2 and p.schema_version == CURRENT_SCHEMA_VERSION and p.regions == ()
-    assert "regions" not in project_to_dict(p)
+def test_file_without_regions_writes_no_regions_key():
+    p = project_from_dict(doc([]))
+    assert p.regions == () and "regions" not in project_to_dict(p)
 
 
 def test_table_band_offset_value():
