@@ -24,10 +24,6 @@ from .units import get_units
 
 __all__ = ["resolve_parameters", "resolve_value", "evaluate_potential", "evaluate_terms", "gate_list",
            "project_masses", "project_g_factor", "electric_field", "magnetic_field", "default_lever"]
-__all__ += ["project_material_map", "LINK_RULE"]
-
-#: how a project's link masses and band offsets are averaged (see core.regions; measured best)
-LINK_RULE = "cell"
 
 
 def resolve_parameters(project: Project, overrides: Optional[Mapping[str, float]] = None) -> dict:
@@ -82,6 +78,11 @@ def _spec_masses(m, params: Mapping[str, float], path: str) -> tuple:
                                path=f"{path}.mass")
         return out
     return tuple(get_material(m.name).masses)
+
+
+#: how a project's link masses and band offsets are averaged (see core.regions; measured best)
+LINK_RULE = "cell"
+__all__ += ["project_material_map", "LINK_RULE"]
 
 
 def project_material_map(project: Project, params: Mapping[str, float], *, link_rule: Optional[str] = None):

@@ -5,14 +5,15 @@ parameters, an ordered list of potential terms, fields and solver settings.
 Top-level keys of the JSON file (schema version 2):
 
 ``schema_version, title, notes, units, material, grid, parameters,
-parameter_ranges, potential, regions, electric_field, magnetic_field, spin, solver``
-(``regions``: optional material regions with their own mass and band offset; files
-without it are unchanged)
+parameter_ranges, potential, electric_field, magnetic_field, spin, solver``
 
 Any number inside a term, a gate voltage, a field component or the material
 may be written as a parameter name or a formula of parameters
 (``"voltage": "VP"``, ``"magnetic_field": [0, 0, "B"]``); that single
 mechanism is how sweeps and sliders drive everything.
+
+An optional ``regions`` list holds material regions with their own mass and band
+offset (see :class:`RegionSpec`); files without it are unchanged.
 
 Files are data: formulas are read by :mod:`core.formula`'s whitelist parser;
 nothing from a file is executed.  Loading validates every field and names
@@ -287,8 +288,9 @@ def _extra_keys(data: dict, allowed, path: str, warnings: list):
 
 
 _TOP_KEYS = ("schema_version", "title", "notes", "units", "material", "grid", "parameters",
-             "parameter_ranges", "potential", "regions", "electric_field", "magnetic_field", "spin", "solver")
+             "parameter_ranges", "potential", "electric_field", "magnetic_field", "spin", "solver")
 _IDENT = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
+_TOP_KEYS = _TOP_KEYS + ("regions",)        # material regions (optional)
 
 
 def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
@@ -368,11 +370,12 @@ def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
     if states > grid.size:
         r.fail("solver.states", f"asked for {states} states, but the grid has only {grid.size} points")
 
-    return Project(title=title, units=units, material=material, grid=grid, parameters=params,
+    project = Project(title=title, units=units, material=material, grid=grid, parameters=params,
                    potential=tuple(terms), electric_field=electric, magnetic_field=magnetic, spin=spin,
                    solver=SolverSettings(states=states, scheme=scheme, tolerance=float(tol)), notes=notes,
-                   parameter_ranges=ranges, regions=regions, base_dir=base_dir, warnings=tuple(warnings),
+                   parameter_ranges=ranges, base_dir=base_dir, warnings=tuple(warnings),
                    migrated_from=migrated_from)
+    return replace(project, regions=regions)
 
 
 def _read_material(r: _Reader, raw, warnings) -> MaterialSpec:
