@@ -290,11 +290,22 @@ def _extra_keys(data: dict, allowed, path: str, warnings: list):
 _TOP_KEYS = ("schema_version", "title", "notes", "units", "material", "grid", "parameters",
              "parameter_ranges", "potential", "electric_field", "magnetic_field", "spin", "solver")
 _IDENT = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
-_TOP_KEYS = _TOP_KEYS + ("regions",)        # material regions (optional)
 
 
 def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
     """Validate a decoded JSON document and build a :class:`Project` (migrating older schemas)."""
+    project = _project_from_dict(data, base_dir=base_dir)
+    warnings = list(project.warnings)
+    regions = _read_regions(_Reader(tuple(project.parameters)), data.get("regions", []), project.material,
+                            project.units, warnings)
+    return replace(project, regions=regions, warnings=tuple(warnings))
+
+
+_TOP_KEYS = _TOP_KEYS + ("regions",)        # material regions (optional), read by project_from_dict
+
+
+def _project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
+    """Every part of a project but its regions."""
     r = _Reader()
     data = r.obj(data, "project")
     if "schema_version" not in data:
@@ -349,8 +360,6 @@ def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
     for i, raw in enumerate(r.array(data["potential"], "potential")):
         terms.append(_read_term(r, raw, f"potential[{i}]", ndim, warnings))
 
-    regions = _read_regions(r, data.get("regions", []), material, units, warnings)
-
     ef = data.get("electric_field", [0.0] * ndim)
     ef = r.array(ef, "electric_field", length=(ndim, 3))
     electric = tuple(r.number(v, f"electric_field[{i}]") for i, v in enumerate(ef))
@@ -370,12 +379,11 @@ def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
     if states > grid.size:
         r.fail("solver.states", f"asked for {states} states, but the grid has only {grid.size} points")
 
-    project = Project(title=title, units=units, material=material, grid=grid, parameters=params,
+    return Project(title=title, units=units, material=material, grid=grid, parameters=params,
                    potential=tuple(terms), electric_field=electric, magnetic_field=magnetic, spin=spin,
                    solver=SolverSettings(states=states, scheme=scheme, tolerance=float(tol)), notes=notes,
                    parameter_ranges=ranges, base_dir=base_dir, warnings=tuple(warnings),
                    migrated_from=migrated_from)
-    return replace(project, regions=regions)
 
 
 def _read_material(r: _Reader, raw, warnings) -> MaterialSpec:
