@@ -235,7 +235,7 @@ def cmd_check(args) -> int:
     from core.eigensolve import solver_memory_bytes
     from core.potentials import evaluate_potential
     from core.resources import available_memory_bytes, format_bytes
-    from core.solve import choose_scheme
+    from core.study import project_scheme
     from core.units import get_units
 
     from core.estimate import estimate_solve
@@ -253,7 +253,7 @@ def cmd_check(args) -> int:
     scheme = project.solver.scheme
     reason = "set in the project"
     if scheme == "auto":
-        scheme, reason = choose_scheme(g, v)
+        scheme, reason = project_scheme(project, g, v, params)
     mem = solver_memory_bytes(g.size, k + max(4, k // 2), bool(any(project.magnetic_field)))
     print(f"{args.project}: valid (schema {project.schema_version})")
     print(f"  title: {project.title}")

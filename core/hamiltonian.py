@@ -380,6 +380,8 @@ def build_hamiltonian(grid: Grid, potential, *, mass=1.0, units="dimensionless",
 
 def rebuild_on_grid(h: Hamiltonian, grid: Grid, potential: np.ndarray) -> Hamiltonian:
     """The same physics (masses, scheme, field, gauge) on another grid with the potential given there."""
+    if hasattr(h, "rebuild"):                 # a Hamiltonian with material regions rebuilds its own links
+        return h.rebuild(grid, potential)
     v = check_potential(grid, potential)
     kin = tuple(kinetic_matrix_1d(h.scheme, grid.shape[a], grid.spacing[a], grid.periodic[a])
                 for a in range(grid.ndim))

@@ -40,7 +40,7 @@ from numbers import Real
 from .errors import InputError
 
 __all__ = ["Material", "MATERIALS", "material_names", "get_material", "algaas",
-           "custom_material", "ALGAAS_X_MAX"]
+           "custom_material", "ALGAAS_X_MAX", "CONDUCTION_BAND_EDGES", "band_offset"]
 
 # --- sources -----------------------------------------------------------------
 VURGAFTMAN_2001 = ("I. Vurgaftman, J. R. Meyer, L. R. Ram-Mohan, "
@@ -245,6 +245,34 @@ MATERIALS: dict[str, Material] = {
         description="Germanium, one L valley with its longitudinal [111] axis along z "
                     "(as in a (111) quantum well): masses (m_t, m_t, m_l) = (0.082, 0.082, 1.58)."),
 }
+
+# --- conduction-band edges (band offsets) ---------------------------------------
+# Unstrained Gamma conduction-band edge E_c = VBO + E_g(0 K), in eV, on the common valence-band
+# scale of Vurgaftman et al. 2001 (valence-band offsets relative to InSb; their recommended
+# VBO and low-temperature Gamma gaps) [recalled from memory]: GaAs VBO -0.80, Eg 1.519;
+# InAs VBO -0.59, Eg 0.417; InSb VBO 0, Eg 0.235.  Strain in a lattice-mismatched dot (InAs in
+# GaAs: about 7 %) shifts the edges by hundreds of meV; these are the unstrained values.
+_EDGE_SOURCE = VURGAFTMAN_2001 + ": E_c = VBO + E_g(Gamma, 0 K), unstrained" + MEMORY
+CONDUCTION_BAND_EDGES: dict[str, tuple[float, str]] = {
+    "GaAs": (-0.80 + 1.519, _EDGE_SOURCE),
+    "InAs": (-0.59 + 0.417, _EDGE_SOURCE),
+    "InSb": (0.0 + 0.235, _EDGE_SOURCE),
+}
+
+
+def band_offset(name: str, reference: str) -> float:
+    """Conduction-band edge of ``name`` minus that of ``reference`` in eV (unstrained; see the table).
+
+    Negative when ``name`` confines electrons inside ``reference`` (InAs in GaAs: -0.892 eV)."""
+    edges = {}
+    for what in (name, reference):
+        material = get_material(what)
+        if material.name not in CONDUCTION_BAND_EDGES:
+            raise InputError(f"no tabulated conduction-band edge for {material.name}; give the offset as a "
+                             f"number (tabulated: {', '.join(CONDUCTION_BAND_EDGES)})")
+        edges[what] = CONDUCTION_BAND_EDGES[material.name][0]
+    return edges[name] - edges[reference]
+
 
 # AlxGa1-xAs: linear interpolation of the Gamma-valley mass between GaAs (0.067)
 # and AlAs (0.15), both from Vurgaftman et al. 2001 (no bowing for the mass).

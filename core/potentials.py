@@ -81,6 +81,51 @@ def project_masses(project: Project, params: Mapping[str, float]) -> tuple:
     return tuple(get_material(m.name).masses)
 
 
+def _spec_masses(m, params: Mapping[str, float], path: str) -> tuple:
+    """Effective mass per axis of a region's material (checked positive with the current values)."""
+    if m.mass is not None:
+        if isinstance(m.mass, tuple):
+            out = tuple(resolve_value(v, params, f"{path}.mass[{i}]") for i, v in enumerate(m.mass))
+        else:
+            v = resolve_value(m.mass, params, f"{path}.mass")
+            out = (v, v, v)
+        if min(out) <= 0:
+            raise ProjectError(f"the mass must be positive, got {list(out)} with the current parameters",
+                               path=f"{path}.mass")
+        return out
+    return tuple(get_material(m.name).masses)
+
+
+#: how a project's link masses and band offsets are averaged (see core.regions; measured best)
+LINK_RULE = "cell"
+__all__ += ["project_material_map", "LINK_RULE"]
+
+
+def project_material_map(project: Project, params: Mapping[str, float], *, link_rule: Optional[str] = None):
+    """The project's materials as a :class:`core.regions.MaterialMap`, or None without regions."""
+    if not project.regions:
+        return None
+    from .materials import band_offset
+    from .regions import MaterialMap, electron_volt_in
+    masses = [project_masses(project, params)]
+    offsets = [0.0]
+    for k, reg in enumerate(project.regions):
+        path = f"regions[{k}]"
+        masses.append(_spec_masses(reg.material, params, f"{path}.material"))
+        if reg.offset is None:
+            offsets.append(0.0)
+        elif reg.offset == "table":
+            try:
+                ev = band_offset(reg.material.name, project.material.name)
+            except InputError as exc:
+                raise ProjectError(str(exc), path=f"{path}.offset") from None
+            offsets.append(ev * electron_volt_in(get_units(project.units)))
+        else:
+            offsets.append(resolve_value(reg.offset, params, f"{path}.offset"))
+    return MaterialMap.from_formulas([r.label for r in project.regions], [r.inside for r in project.regions],
+                                     masses, offsets, params, link_rule=link_rule or LINK_RULE)
+
+
 def project_g_factor(project: Project, params: Mapping[str, float]) -> Optional[float]:
     m = project.material
     if m.g_factor is not None:
@@ -261,11 +306,16 @@ def _check_magnitude(arr: np.ndarray, path: str, unit: str) -> None:
 
 def evaluate_potential(project: Project, *, grid: Optional[Grid] = None,
                        parameters: Optional[Mapping[str, float]] = None) -> np.ndarray:
-    """Sum of the enabled terms on ``grid`` (default: the project's grid), energy unit."""
+    """Sum of the enabled terms on ``grid`` (default: the project's grid) and the regions' band
+    offsets, energy unit."""
     grid = grid or project.grid
     check_potential_memory(grid, sum(1 for t in project.potential if t.enabled))
     total = np.zeros(grid.shape)
     for _i, _t, arr in evaluate_terms(project, grid=grid, parameters=parameters):
         if arr is not None:
             total += arr
+    if project.regions:                 # band offsets of the material regions
+        materials = project_material_map(project, resolve_parameters(project, parameters))
+        if materials.has_offsets:
+            total += materials.offset_map(grid)
     return total

@@ -14,6 +14,9 @@ may be written as a parameter name or a formula of parameters
 (``"voltage": "VP"``, ``"magnetic_field": [0, 0, "B"]``); that single
 mechanism is how sweeps and sliders drive everything.
 
+An optional ``regions`` list holds material regions with their own mass and band
+offset (see :class:`RegionSpec`); files without it are unchanged.
+
 Files are data: formulas are read by :mod:`core.formula`'s whitelist parser;
 nothing from a file is executed.  Loading validates every field and names
 the bad one (``grid.points[1]: expected an integer >= 3, got "abc"``).
@@ -48,7 +51,7 @@ from .limits import MASS_RANGE, MAX_COORDINATE, MAX_MAGNETIC_FIELD, MAX_PATH_CHA
 from .materials import get_material, material_names
 from .units import UNIT_SYSTEMS
 
-__all__ = ["CURRENT_SCHEMA_VERSION", "Project", "MaterialSpec", "GateSpec", "FormulaTerm", "GatesTerm",
+__all__ = ["CURRENT_SCHEMA_VERSION", "Project", "MaterialSpec", "RegionSpec", "GateSpec", "FormulaTerm", "GatesTerm",
            "MapTerm", "PointsTerm", "FieldTerm", "SolverSettings", "load_project", "save_project", "project_from_dict",
            "project_to_dict", "project_from_json", "project_to_json", "MIGRATIONS", "TERM_KINDS",
            "new_project"]
@@ -96,6 +99,19 @@ class MaterialSpec:
     mass: Optional[Union[Value, tuple]] = None
     g_factor: Optional[Value] = None
     permittivity: Optional[Value] = None     # static relative permittivity (two-electron repulsion)
+
+
+@dataclass(frozen=True)
+class RegionSpec:
+    """A material region: where ``inside`` (a formula of coordinates and parameters) is nonzero,
+    ``material`` holds, with an optional band ``offset`` (energy unit; a number, a formula of
+    parameters, or ``"table"`` for the materials table's conduction-band offset)."""
+
+    label: str
+    inside: str
+    material: MaterialSpec
+    offset: Optional[Value] = None
+    permittivity: Optional[Value] = None
 
 
 @dataclass(frozen=True)
@@ -186,6 +202,7 @@ class Project:
     solver: SolverSettings = SolverSettings()
     notes: str = ""
     parameter_ranges: dict = field(default_factory=dict)
+    regions: tuple = ()
     schema_version: int = CURRENT_SCHEMA_VERSION
     base_dir: Optional[str] = field(default=None, compare=False)
     warnings: tuple = field(default=(), compare=False)
@@ -327,6 +344,18 @@ _CONTROL_IN_TEXT = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f]")
 
 def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
     """Validate a decoded JSON document and build a :class:`Project` (migrating older schemas)."""
+    project = _project_from_dict(data, base_dir=base_dir)
+    warnings = list(project.warnings)
+    regions = _read_regions(_Reader(tuple(project.parameters)), data.get("regions", []), project.material,
+                            project.units, warnings)
+    return replace(project, regions=regions, warnings=tuple(warnings))
+
+
+_TOP_KEYS = _TOP_KEYS + ("regions",)        # material regions (optional), read by project_from_dict
+
+
+def _project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
+    """Every part of a project but its regions."""
     r = _Reader()
     data = r.obj(data, "project")
     if "schema_version" not in data:
@@ -446,6 +475,72 @@ def _read_material(r: _Reader, raw, warnings) -> MaterialSpec:
     if eps is not None:
         eps = r.number(eps, "material.permittivity", positive=True)
     return MaterialSpec(name=name, mass=mass, g_factor=g, permittivity=eps)
+
+
+def _read_regions(r: _Reader, raw, project_material: MaterialSpec, units: str, warnings) -> tuple:
+    """The ``regions`` list: label, inside (formula), material (name or object), offset."""
+    out = []
+    for i, reg in enumerate(r.array(raw, "regions")):
+        path = f"regions[{i}]"
+        reg = r.obj(reg, path)
+        _extra_keys(reg, ("label", "inside", "material", "offset"), path, warnings)
+        label = r.text(reg.get("label", f"region {i + 1}"), f"{path}.label")
+        if "inside" not in reg:
+            r.fail(f"{path}.inside", "missing: a formula of the coordinates, nonzero inside the region")
+        inside = r.text(reg["inside"], f"{path}.inside", allow_empty=False)
+        try:
+            parse_formula(inside, parameters=r.parameters)
+        except FormulaError as exc:
+            r.fail(f"{path}.inside", str(exc))
+        if "material" not in reg:
+            r.fail(f"{path}.material", "missing: a material name or {\"mass\": ...}")
+        mat, eps = _read_region_material(r, reg["material"], f"{path}.material", warnings)
+        offset = reg.get("offset")
+        if isinstance(offset, str) and offset == "table":
+            from .materials import band_offset
+            try:
+                if mat.name is None or project_material.name is None:
+                    raise InputError("\"table\" needs a material name both here and for the project")
+                band_offset(mat.name, project_material.name)
+            except InputError as exc:
+                r.fail(f"{path}.offset", str(exc))
+            if units not in ("semiconductor", "atomic"):
+                r.fail(f"{path}.offset", f"table offsets are for semiconductor units, not {units!r}")
+        elif offset is not None:
+            offset = r.number(offset, f"{path}.offset")
+        out.append(RegionSpec(label=label, inside=inside, material=mat, offset=offset, permittivity=eps))
+    return tuple(out)
+
+
+def _read_region_material(r: _Reader, raw, path: str, warnings) -> tuple:
+    if isinstance(raw, str):
+        try:
+            get_material(raw)
+        except InputError as exc:
+            r.fail(path, str(exc))
+        return MaterialSpec(name=raw), None
+    raw = r.obj(raw, path)
+    _extra_keys(raw, ("name", "mass", "g_factor", "permittivity"), path, warnings)
+    name = raw.get("name")
+    if name is not None:
+        r.text(name, f"{path}.name")
+        try:
+            get_material(name)
+        except InputError as exc:
+            r.fail(f"{path}.name", str(exc))
+    mass = raw.get("mass")
+    if mass is None and name is None:
+        r.fail(path, f"give a material name ({', '.join(material_names())}) or a mass")
+    if isinstance(mass, list):
+        r.array(mass, f"{path}.mass", length=3)
+        mass = tuple(r.number(v, f"{path}.mass[{i}]", positive=True) for i, v in enumerate(mass))
+    elif mass is not None:
+        mass = r.number(mass, f"{path}.mass", positive=True)
+    g = raw.get("g_factor")
+    g = None if g is None else r.number(g, f"{path}.g_factor")
+    eps = raw.get("permittivity")
+    eps = None if eps is None else r.number(eps, f"{path}.permittivity", positive=True)
+    return MaterialSpec(name=name, mass=mass, g_factor=g), eps
 
 
 def _read_grid(r: _Reader, raw, warnings) -> Grid:
@@ -632,13 +727,29 @@ def project_to_dict(project: Project) -> dict:
            "parameters": dict(project.parameters)}
     if project.parameter_ranges:
         out["parameter_ranges"] = {k: list(v) for k, v in project.parameter_ranges.items()}
-    out.update({"potential": terms, "electric_field": list(project.electric_field),
+    out["potential"] = terms
+    if project.regions:
+        out["regions"] = [_region_to_dict(g) for g in project.regions]
+    out.update({ "electric_field": list(project.electric_field),
                 "magnetic_field": list(project.magnetic_field), "spin": project.spin,
                 "solver": {"states": project.solver.states, "scheme": project.solver.scheme,
                            "tolerance": project.solver.tolerance}})
     if project.electrons != 1:
         out["electrons"] = project.electrons
     return out
+
+
+def _region_to_dict(reg: RegionSpec) -> dict:
+    m = reg.material
+    if m.mass is None and m.g_factor is None and reg.permittivity is None:
+        material: Any = m.name
+    else:
+        material = {k: _plain(v) for k, v in (("name", m.name), ("mass", m.mass), ("g_factor", m.g_factor),
+                                              ("permittivity", reg.permittivity)) if v is not None}
+    d = {"label": reg.label, "inside": reg.inside, "material": material}
+    if reg.offset is not None:
+        d["offset"] = reg.offset
+    return d
 
 
 def _dump(value, indent: int = 0) -> str:

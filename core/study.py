@@ -9,14 +9,15 @@ import numpy as np
 from .eigensolve import Spectrum, lowest_states, solver_memory_bytes
 from .grid import Grid
 from .hamiltonian import Hamiltonian, build_hamiltonian
-from .potentials import evaluate_potential, magnetic_field, project_g_factor, project_masses, resolve_parameters
+from .potentials import (evaluate_potential, magnetic_field, project_g_factor, project_masses, project_material_map,
+                         resolve_parameters)
 from .project import Project
 from .resources import check_memory
 from .solve import choose_scheme
 from .errors import InputError
 from .units import get_units
 
-__all__ = ["StudyResult", "solve_project", "project_hamiltonian", "SpinLevels", "spin_levels"]
+__all__ = ["StudyResult", "solve_project", "project_hamiltonian", "project_scheme", "SpinLevels", "spin_levels"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -59,16 +60,36 @@ def project_hamiltonian(project: Project, *, parameters: Optional[Mapping[str, f
     grid = grid or project.grid
     params = resolve_parameters(project, parameters)
     v = evaluate_potential(project, grid=grid, parameters=params) if potential is None else potential
-    scheme = scheme or project.solver.scheme
-    if scheme == "auto":
-        scheme, reason = choose_scheme(grid, v)
-    else:
-        reason = "set in the project's solver settings"
+    materials = project_material_map(project, params)
+    varying = materials is not None and not materials.uniform_mass(grid.ndim)
+    scheme, reason = project_scheme(project, grid, v, params, scheme=scheme, varying_mass=varying)
     masses = project_masses(project, params)
     b = magnetic_field(project, params)
-    h = build_hamiltonian(grid, v, mass=masses[: grid.ndim], units=project.units, scheme=scheme,
-                          magnetic_field=b if np.any(b) else None)
+    if varying:
+        from .hamiltonian_regions import build_region_hamiltonian
+        h = build_region_hamiltonian(grid, v, materials, units=project.units, scheme=scheme,
+                                     magnetic_field=b if np.any(b) else None)
+    else:
+        h = build_hamiltonian(grid, v, mass=masses[: grid.ndim], units=project.units, scheme=scheme,
+                              magnetic_field=b if np.any(b) else None)
     return h, v, params, scheme, reason
+
+
+def project_scheme(project: Project, grid: Grid, potential: np.ndarray, params: Mapping[str, float], *,
+                   scheme: Optional[str] = None, varying_mass: Optional[bool] = None) -> tuple:
+    """(scheme, reason) for a project: its setting, or for ``auto`` the choice of
+    :func:`core.solve.choose_scheme`, except that material regions with different effective masses
+    need second-order differences (the only scheme here that carries a position-dependent mass)."""
+    scheme = scheme or project.solver.scheme
+    if scheme != "auto":
+        return scheme, "set in the project's solver settings"
+    if varying_mass is None:
+        materials = project_material_map(project, params)
+        varying_mass = materials is not None and not materials.uniform_mass(grid.ndim)
+    if varying_mass:
+        return "fd2", ("the material regions have different effective masses; second-order differences "
+                       "are the scheme that carries a position-dependent mass")
+    return choose_scheme(grid, potential)
 
 
 def solve_project(project: Project, *, parameters: Optional[Mapping[str, float]] = None,

@@ -13,11 +13,12 @@ from .grid import GridPanel
 from .material import MaterialPanel
 from .notes import NotesPanel
 from .parameters import ParametersPanel
+from .regions import RegionsPanel
 from .solver import SolverPanel
 from .terms import TermsPanel
 
 __all__ = ["ProjectEditors", "ParametersPanel", "TermsPanel", "GridPanel", "MaterialPanel", "FieldsPanel",
-           "SolverPanel", "NotesPanel"]
+           "SolverPanel", "NotesPanel", "RegionsPanel"]
 
 
 def _scrolled(widget: QWidget) -> QScrollArea:
@@ -33,7 +34,8 @@ class ProjectEditors(QWidget):
     """The left column: the parameters (always in view) above the set-up pages."""
 
     PAGES = (("terms", "Potential terms"), ("grid", "Grid"), ("material", "Material and units"),
-             ("fields", "Fields and spin"), ("solver", "Solver"), ("notes", "Title and notes"))
+             ("regions", "Material regions"), ("fields", "Fields and spin"), ("solver", "Solver"),
+             ("notes", "Title and notes"))
 
     def __init__(self, session, parent: Optional[QWidget] = None):
         super().__init__(parent)
@@ -42,6 +44,7 @@ class ProjectEditors(QWidget):
         self.terms = TermsPanel(session)
         self.grid = GridPanel(session)
         self.material = MaterialPanel(session)
+        self.regions = RegionsPanel(session)
         self.fields = FieldsPanel(session)
         self.solver = SolverPanel(session)
         self.notes = NotesPanel(session)
