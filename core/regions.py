@@ -69,6 +69,10 @@ class MaterialMap:
         m = np.asarray(self.masses, dtype=float)
         if m.shape != (len(self.formulas) + 1, 3) or not np.all(np.isfinite(m)) or np.any(m <= 0):
             raise ProjectError(f"region masses must be positive, got {m.tolist()}", path="regions")
+        from .limits import MASS_RANGE
+        if np.any(m < MASS_RANGE[0]) or np.any(m > MASS_RANGE[1]):
+            raise ProjectError(f"region masses must lie within {MASS_RANGE[0]:g} .. {MASS_RANGE[1]:g} of the mass "
+                               f"unit, got {m.tolist()}", path="regions")
 
     @classmethod
     def from_formulas(cls, labels: Sequence[str], formulas: Sequence[str], masses, offsets,

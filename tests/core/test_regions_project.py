@@ -130,3 +130,14 @@ def test_later_regions_win():
     assert np.all(v[np.abs(x) < 0.9] == -200.0)
     assert np.all(v[(np.abs(x) > 1.6) & (np.abs(x) < 4.4)] == -100.0)
     assert np.all(v[np.abs(x) > 5.6] == 0.0)
+
+
+def test_extreme_region_mass_is_refused_with_the_limit():
+    """A region mass far outside the physical range (1e-300 electron masses) is refused with the range named,
+    before any operator is built (the project-wide mass range of core.limits)."""
+    import numpy as np
+    import pytest as _pytest
+    from core.errors import ProjectError
+    from core.regions import MaterialMap
+    with _pytest.raises(ProjectError, match="within"):
+        MaterialMap.from_formulas(["dot"], ["x < 0"], np.array([[0.067] * 3, [1e-300] * 3]), np.zeros(2), {})
