@@ -11,6 +11,7 @@ from .grid import Grid
 from .hamiltonian import Hamiltonian, build_hamiltonian
 from .potentials import evaluate_potential, magnetic_field, project_g_factor, project_masses, resolve_parameters
 from .project import Project
+from .provenance import fingerprint
 from .resources import check_memory
 from .solve import choose_scheme
 from .errors import InputError
@@ -34,6 +35,8 @@ class StudyResult:
     magnetic_field: tuple
     g_factor: Optional[float] = None
     extra: dict = field(default_factory=dict)
+    #: the project state solved (:func:`core.provenance.fingerprint` of the project, parameters and grid)
+    fingerprint: str = ""
 
     @property
     def energies(self) -> np.ndarray:
@@ -88,7 +91,8 @@ def solve_project(project: Project, *, parameters: Optional[Mapping[str, float]]
                          progress=progress, should_stop=should_stop)
     return StudyResult(project=project, parameters=params, grid=grid, potential=v, spectrum=spec,
                        masses=project_masses(project, params), scheme=scheme, scheme_reason=reason,
-                       magnetic_field=tuple(h.magnetic_field), g_factor=project_g_factor(project, params))
+                       magnetic_field=tuple(h.magnetic_field), g_factor=project_g_factor(project, params),
+                       fingerprint=fingerprint(project, parameters=params, grid=grid))
 
 
 @dataclass(frozen=True, eq=False)
