@@ -149,7 +149,8 @@ class NumberChecks(QObject):
         rep = self._report
         if rep is None or result is None:
             return None
-        return rep if rep.reference.project == result.project else None
+        from core.provenance import result_fingerprint
+        return rep if result_fingerprint(rep.reference) == result_fingerprint(result) else None
 
     @property
     def latest_report(self):
@@ -159,7 +160,10 @@ class NumberChecks(QObject):
     def current_report(self):
         """The latest convergence report if it was made for the project as it is now."""
         rep = self._report
-        return rep if rep is not None and rep.reference.project == self.session.project else None
+        if rep is None:
+            return None
+        from core.provenance import result_fingerprint
+        return rep if result_fingerprint(rep.reference) == self.session.fingerprint else None
 
     def certificate_for(self, result=None):
         """The level-count certificate of ``result`` (default: the session's), or None."""

@@ -43,7 +43,7 @@ from .grid import AXIS_NAMES, Grid
 __all__ = [
     "norms", "position_expectation", "position_spread",
     "derivative_matrix_1d", "angular_momentum_z", "angular_momentum_z_matrix",
-    "angular_momentum_z_multiplet", "mirror_parity", "parity_label",
+    "angular_momentum_z_multiplet", "angular_momentum_z_uncertainty", "mirror_parity", "parity_label",
     "transition_dipoles", "oscillator_strengths",
     "probability_in_region", "polygon_mask", "box_mask", "overlap_matrix",
     "wall_probability", "WALL_SHARE", "WALL_BAND", "BOX_STATE", "BOX_STATE_HINT",
@@ -299,6 +299,28 @@ def angular_momentum_z_multiplet(grid: Grid, states, group: Sequence[int], *, ce
         raise InputError("group: the multiplet's states are linearly dependent")
     import scipy.linalg as sla
     return np.sort(sla.eigh(m, s, eigvals_only=True))
+
+
+def angular_momentum_z_uncertainty(grid: Grid, states, group: Sequence[int], *, centre=(0.0, 0.0),
+                                   derivative: str = "spectral") -> float:
+    """How far L_z is from a good quantum number of the multiplet ``states[group]``, in units of hbar.
+
+    The root-mean-square over the multiplet's (orthonormalised) states of ``|(1 - P) L_z psi|``, with
+    ``P`` the projector onto the multiplet: 0 when L_z maps the multiplet onto itself (the problem is
+    rotationally symmetric about ``centre``, so the multiplet's L_z eigenvalues are its quantum
+    numbers), of order 1 when L_z mixes it with other states (a double dot, an elongated dot, a
+    gauge centred elsewhere in a magnetic field).  Basis-free like :func:`angular_momentum_z_multiplet`.
+    """
+    psi = _check_states(grid, states)
+    idx = _group_indices(group, psi.shape[0])
+    sub = _flat(psi[idx]) * np.sqrt(grid.volume_element)
+    q, _r = np.linalg.qr(sub.T)                       # orthonormal columns spanning the multiplet
+    basis = q.T.reshape((len(idx),) + grid.shape) / np.sqrt(grid.volume_element)
+    lpsi = _flat(_lz_apply(grid, basis, centre, derivative)) * np.sqrt(grid.volume_element)
+    inside = q.conj().T @ lpsi.T                      # (m, m) components within the multiplet
+    total = np.einsum("ij,ij->", lpsi.conj(), lpsi).real
+    outside = max(total - float(np.sum(np.abs(inside) ** 2)), 0.0)
+    return float(np.sqrt(outside / len(idx)))
 
 
 # --- mirror parity ----------------------------------------------------------------------------
