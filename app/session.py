@@ -377,12 +377,8 @@ class Session(QObject):
         """What changed in the physics since the latest sweep ran (the swept quantity aside)."""
         if self.sweep_result is None or self.sweep_is_current:
             return []
-        from core.provenance import changes
-        sw = self.sweep_result
-        name = sw.parameter if sw.parameter in sw.project.parameters else None
-        out = [c for c in changes(sw.project, self._project)
-               if not (name and c.startswith(f"{name} = "))]
-        return out or ["the project"]
+        from core.provenance import sweep_changes
+        return sweep_changes(self.sweep_result, self._project) or ["the project"]
 
     @property
     def solving(self) -> bool:

@@ -34,6 +34,7 @@ LZ_INTEGER = 0.05
 _SMALLER = {"meV": ((1e3, "µeV"), (1e6, "neV")), "eV": ((1e3, "meV"), (1e6, "µeV")),
             "h*kHz": ((1e3, "h·Hz"), (1e6, "h·mHz")), "h*Hz": ((1e3, "h·mHz"),),
             "hartree": ((1e3, "mhartree"), (1e6, "µhartree"))}
+_SMALLER.update({"h·kHz": _SMALLER["h*kHz"], "h·Hz": _SMALLER["h*Hz"]})     # the units as printed
 _PRETTY = {"h*kHz": "h·kHz", "h*Hz": "h·Hz", "1": ""}
 
 

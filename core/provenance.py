@@ -24,7 +24,7 @@ from pathlib import Path
 from typing import Mapping, Optional
 
 __all__ = ["fingerprint", "physics_document", "result_fingerprint", "sweep_fingerprint",
-           "project_fingerprint_for_sweep", "sweep_matches", "changes", "map_file_hashes", "FINGERPRINT_DIGITS"]
+           "project_fingerprint_for_sweep", "sweep_matches", "sweep_changes", "changes", "map_file_hashes", "FINGERPRINT_DIGITS"]
 
 #: hex digits of a fingerprint (48 bits: collisions between the states of one session are negligible)
 FINGERPRINT_DIGITS = 12
@@ -120,8 +120,10 @@ def _swept_name(sweep_project, target: str) -> str:
 
 
 def sweep_fingerprint(sweep) -> str:
-    """The state a sweep ran on: its project without the swept quantity."""
-    return fingerprint(sweep.project, exclude_parameter=_swept_name(sweep.project, str(sweep.parameter)))
+    """The state a sweep ran on: its project without the swept quantity (the same whether the sweep
+    keeps its project with the field or gate already turned into the swept parameter, or not)."""
+    return (project_fingerprint_for_sweep(sweep.project, str(sweep.parameter))
+            or fingerprint(sweep.project, exclude_parameter=_swept_name(sweep.project, str(sweep.parameter))))
 
 
 def project_fingerprint_for_sweep(project, target: str, *, parameters: Optional[Mapping[str, float]] = None) -> str:
@@ -136,6 +138,26 @@ def project_fingerprint_for_sweep(project, target: str, *, parameters: Optional[
     except InputError:
         return ""
     return fingerprint(prepared, exclude_parameter=name)
+
+
+def sweep_changes(sweep, project, *, parameters: Optional[Mapping[str, float]] = None) -> list:
+    """What differs in the physics between the project ``sweep`` ran on and ``project`` (with
+    ``parameters``), the swept quantity aside; [] when the sweep matches it."""
+    from .errors import InputError
+    from .sweep import _prepare
+    if parameters is not None:
+        project = dataclasses.replace(project, parameters={str(k): float(v) for k, v in parameters.items()})
+    try:
+        prepared, name, _current = _prepare(project, str(sweep.parameter))
+    except InputError:
+        return [f"{sweep.parameter} cannot be swept in this project"]
+    try:
+        swept = _prepare(sweep.project, str(sweep.parameter))[0]
+    except InputError:
+        swept = sweep.project
+    a = dataclasses.replace(swept, parameters={k: v for k, v in swept.parameters.items() if k != name})
+    b = dataclasses.replace(prepared, parameters={k: v for k, v in prepared.parameters.items() if k != name})
+    return changes(a, b)
 
 
 def sweep_matches(sweep, project, *, parameters: Optional[Mapping[str, float]] = None) -> bool:
