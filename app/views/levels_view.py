@@ -616,9 +616,11 @@ class LevelsView(QtWidgets.QWidget):
             return
         vb = self.plot.getPlotItem().getViewBox()
         px = vb.viewPixelSize()
-        unit_h = _LINE_PX * (px[1] if px[1] > 0 else 0.0)
+        per_px = px[1] if px[1] > 0 else 0.0
         want = [float(np.mean([self._shown(self.labels[i]["energy"]) for i in members])) for members in self.clusters]
-        heights = [unit_h * (1 if len(m) == 1 else len(m) + 1) for m in self.clusters]
+        # each label's own height (its lines in the font in use), at least _LINE_PX per line
+        heights = [max(t.boundingRect().height(), _LINE_PX * (1 if len(m) == 1 else len(m) + 1)) * per_px
+                   for t, m in zip(self._label_items, self.clusters)]
         order = np.argsort(want, kind="stable")
         placed = np.array(want, dtype=float)
         prev, prev_h = -np.inf, 0.0
