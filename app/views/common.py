@@ -307,8 +307,9 @@ STALE_COLOUR = "#8a5a00"
 STALE_BACKGROUND = "#ececec"
 
 
-def stale_message(session, kind: str = "result") -> str:
-    """Plain words for results that are out of date (``kind`` "result" or "sweep"); "" when current."""
+def stale_message(session, kind: str = "result", *, short: bool = False) -> str:
+    """Plain words for results that are out of date (``kind`` "result" or "sweep"); "" when current.
+    ``short``: the few words a view shows under the window's banner."""
     if kind == "sweep":
         if getattr(session, "sweep_result", None) is None or session.sweep_is_current:
             return ""
@@ -318,6 +319,8 @@ def stale_message(session, kind: str = "result") -> str:
     if getattr(session, "result", None) is None or session.result_is_current:
         return ""
     what = ", ".join(session.result_changes())
+    if short:
+        return f"Out of date (changed: {what}) — greyed until solved again ({SOLVE_KEY})"
     if getattr(session, "solving", False):
         return f"Updating: the results shown are for an earlier version of the project (changed: {what})…"
     return (f"Out of date: the results shown are for an earlier version of the project (changed: {what}). "

@@ -228,7 +228,7 @@ class LevelsView(QtWidgets.QWidget):
         self.tolerance.setSuffix(f" {pretty_unit(u.energy_unit)}")
         self._sync_tolerance_box()
         current = result is getattr(self.session, "result", None)
-        text = stale_message(self.session) if current and hasattr(self.session, "stale_changed") else ""
+        text = stale_message(self.session, short=True) if current and hasattr(self.session, "stale_changed") else ""
         self.stale_note.show_text(text)
         grey_plot(self.plot, bool(text))
         self._regroup()
@@ -469,7 +469,7 @@ class LevelsView(QtWidgets.QWidget):
     def _update_stale(self) -> None:
         """Grey the diagram and say so when the shown levels are not of the project as it is now."""
         current = self.result is not None and self.result is getattr(self.session, "result", None)
-        text = stale_message(self.session) if current else ""
+        text = stale_message(self.session, short=True) if current else ""
         was = self.stale_note.stale
         self.stale_note.show_text(text)
         grey_plot(self.plot, bool(text))

@@ -554,10 +554,11 @@ class PotentialView(QtWidgets.QWidget):
                 name = f"E{first}" if mult == 1 else f"E{first}–{first + mult - 1} (×{mult})"
                 line = self._level_line(plot, k)
                 line.setPos(energy)
-                line.setPen(_STALE_LEVEL_PEN if stale else _LEVEL_PEN)
+                line.setPen(_STALE_LEVEL_PEN if stale else _LEVEL_PEN)       # dotted grey: out of date
+                line.label.setColor("#6c757d" if stale else "#0b3c5d")
                 if slot >= 4:
                     name = ""              # a fifth close level: its number is in the level diagram
-                line.label.setFormat(name + (" (earlier version)" if stale and k == 0 else ""))
+                line.label.setFormat(name)
                 line.label.setPosition(0.97 - 0.24 * min(slot, 3))
                 line.setVisible(True)
                 self.level_lines.append((line, plot))

@@ -211,7 +211,7 @@ class StatesView(QtWidgets.QWidget):
     def _update_stale(self) -> None:
         """Grey the states and say so when they are not of the project as it is now."""
         shown = self._pending_result or self.result
-        text = stale_message(self.session) if shown is not None and shown is self.session.result else ""
+        text = stale_message(self.session, short=True) if shown is not None and shown is self.session.result else ""
         self.stale_note.show_text(text)
         stale = bool(text)
         for plot in (self.plot1d, self.plot2d):
