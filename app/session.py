@@ -363,7 +363,11 @@ class Session(QObject):
             return []
         from core.provenance import changes
         r = self.result
-        return changes(r.project, self._project, old_parameters=r.parameters, old_grid=r.grid) or ["the project"]
+        found = changes(r.project, self._project, old_parameters=r.parameters, old_grid=r.grid)
+        if not found:            # the same document: an imported map file was changed on disk
+            found = ["the content of an imported map file"] if any(t.kind == "map" for t in self._project.potential) \
+                else ["the project"]
+        return found
 
     @property
     def sweep_is_current(self) -> bool:

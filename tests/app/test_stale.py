@@ -196,3 +196,24 @@ def test_close_levels_are_a_cluster_with_their_splitting_and_labels_never_overla
     assert all(b[1] >= a[2] - 1e-12 for a, b in zip(boxes, boxes[1:]))
     levels.relative.setChecked(True)
     assert all("E − E₀ = " in t.toPlainText() for t in levels._label_items)
+
+
+def test_a_potential_made_invalid_after_a_solve_gives_messages_not_tracebacks(window, qtbot):
+    """A formula that gives NaN: the potential view and the strip say so in one line, the results stay on
+    show marked as out of date, and nothing raises."""
+    from core.project import FormulaTerm
+    s = window.session
+    s.set_project(small_dot(), "small grid")
+    _solve(window, qtbot)
+    bad = dataclasses.replace(s.project, potential=s.project.potential + (FormulaTerm("bad", "sqrt(x - 1000)"),))
+    s.set_project(bad, "bad term")
+    for i in range(window.tabs.count()):
+        window.tabs.setCurrentIndex(i)
+        qtbot.wait(20)
+    assert "NaN" in window.views["Potential"].status.text()
+    assert "potential terms" in window.stale_banner.text()
+    with qtbot.waitSignal(s.failed, timeout=SOLVE_TIMEOUT_MS):
+        window.solve()
+    wait_idle(qtbot, s)
+    assert window.strip.kind == "error" and "NaN" in window.strip.message.text()
+    assert s.result is not None and not window.stale_banner.isHidden()
