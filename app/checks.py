@@ -233,8 +233,13 @@ class NumberChecks(QObject):
             if max_seconds is not None and est.seconds > max_seconds:
                 return certify_count(h, result.spectrum, max_seconds=max_seconds)   # "not checked", at once
             if est.seconds > _IN_THREAD_SECONDS:
-                return self.count_process.count(h, result.spectrum, max_seconds, should_stop)
-            return certify_count(h, result.spectrum, max_seconds=max_seconds)
+                cert = self.count_process.count(h, result.spectrum, max_seconds, should_stop)
+            else:
+                cert = certify_count(h, result.spectrum, max_seconds=max_seconds)
+            if cert.count_below is not None:           # a count ran: the next estimate knows its time
+                from core.inertia import record_count
+                record_count(est, cert.seconds)
+            return cert
 
         # a sparse factorisation does not use the parallel kernels: it may run beside a solve
         self._start(COUNT, work, tag=(result, max_seconds), exclusive=False)

@@ -793,6 +793,8 @@ class Session(QObject):
         def work(progress, should_stop):
             from core.study import solve_project
             count_process.start()              # the level counts' child process, started while idle
+            from core.inertia import dense_factor_rate
+            dense_factor_rate()                # this machine's factorisation rate, for the count estimates
             return solve_project(tiny, should_stop=should_stop)
 
         job = Job(work, kind="warm-up")
