@@ -389,6 +389,12 @@ class Session(QObject):
         return self._solve_job is not None
 
     @property
+    def solving_current(self) -> bool:
+        """True when the running (or queued) solve is of the project as it is now."""
+        job = self._solve_job
+        return job is not None and (job.tag[1] is self._project or self._pending_mode is not None)
+
+    @property
     def solve_queued(self) -> bool:
         """True when a newer solve request waits for the running one to end."""
         return self._pending_mode is not None
@@ -438,6 +444,7 @@ class Session(QObject):
             return
         if live:
             self._request_solve("live")
+            self.stale_changed.emit()      # the live solve under way stands in for the mark (see stale_message)
         elif not (self.result_is_current and self._result_mode != "live" and self._solve_job is None
                   and self._pending_mode is None):
             self._request_solve("settle")

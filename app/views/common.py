@@ -318,6 +318,8 @@ def stale_message(session, kind: str = "result", *, short: bool = False) -> str:
                 f"Run the sweep again to update it.")
     if getattr(session, "result", None) is None or session.result_is_current:
         return ""
+    if getattr(session, "live_dragging", False) and getattr(session, "solving_current", False):
+        return ""          # a slider drag: the live solve under way replaces the results in a moment
     what = ", ".join(session.result_changes())
     if short:
         return f"Out of date (changed: {what}) — greyed until solved again ({SOLVE_KEY})"

@@ -217,3 +217,17 @@ def test_a_potential_made_invalid_after_a_solve_gives_messages_not_tracebacks(wi
     wait_idle(qtbot, s)
     assert window.strip.kind == "error" and "NaN" in window.strip.message.text()
     assert s.result is not None and not window.stale_banner.isHidden()
+
+
+def test_a_slider_drag_is_not_marked_stale_while_its_live_solve_runs(window, qtbot):
+    s = window.session
+    s.set_project(small_dot(), "small grid")
+    _solve(window, qtbot)
+    levels = window.views["Levels"]
+    hw = s.project.parameters["hw"]
+    s.set_parameter("hw", hw * 1.02, live=True)
+    assert s.solving_current and not s.result_is_current
+    assert window.stale_banner.isHidden() and not levels.stale_note.stale
+    s.set_parameter("hw", hw * 1.02, live=False)
+    wait_idle(qtbot, s)
+    assert s.result_is_current and window.stale_banner.isHidden()
