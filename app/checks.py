@@ -150,7 +150,8 @@ class NumberChecks(QObject):
         rep = self._report
         if rep is None or result is None:
             return None
-        return rep if rep.reference.project == result.project else None
+        from core.provenance import result_fingerprint
+        return rep if result_fingerprint(rep.reference) == result_fingerprint(result) else None
 
     @property
     def latest_report(self):
@@ -160,7 +161,10 @@ class NumberChecks(QObject):
     def current_report(self):
         """The latest convergence report if it was made for the project as it is now."""
         rep = self._report
-        return rep if rep is not None and rep.reference.project == self.session.project else None
+        if rep is None:
+            return None
+        from core.provenance import result_fingerprint
+        return rep if result_fingerprint(rep.reference) == self.session.fingerprint else None
 
     def certificate_for(self, result=None):
         """The level-count certificate of ``result`` (default: the session's), or None."""
@@ -230,8 +234,13 @@ class NumberChecks(QObject):
             if max_seconds is not None and est.seconds > max_seconds:
                 return certify_count(h, result.spectrum, max_seconds=max_seconds)   # "not checked", at once
             if est.seconds > _IN_THREAD_SECONDS:
-                return self.count_process.count(h, result.spectrum, max_seconds, should_stop)
-            return certify_count(h, result.spectrum, max_seconds=max_seconds)
+                cert = self.count_process.count(h, result.spectrum, max_seconds, should_stop)
+            else:
+                cert = certify_count(h, result.spectrum, max_seconds=max_seconds)
+            if cert.count_below is not None:           # a count ran: the next estimate knows its time
+                from core.inertia import record_count
+                record_count(est, cert.seconds)
+            return cert
 
         # a sparse factorisation does not use the parallel kernels: it may run beside a solve
         self._start(COUNT, work, tag=(result, max_seconds), exclusive=False)

@@ -36,6 +36,9 @@ class ExportSheetDialog(QtWidgets.QDialog):
         self.dpi_box.setRange(50, 1200)
         self.dpi_box.setValue(200)
         self.dpi_box.setSuffix(" dpi")
+        self.mixed_box = QtWidgets.QCheckBox("allow a fan from another project state (the caption names both)")
+        self.mixed_box.setToolTip("By default a sheet whose sweep fan ran on another version of the project than "
+                                  "the solve is refused")
         self.preview = QtWidgets.QLabel("The preview appears here.")
         self.preview.setAlignment(QtCore.Qt.AlignmentFlag.AlignCenter)
         self.preview.setMinimumSize(640, 360)
@@ -47,6 +50,7 @@ class ExportSheetDialog(QtWidgets.QDialog):
         form.addRow("Size", self.template_box)
         form.addRow("File type", self.type_box)
         form.addRow("Resolution of images", self.dpi_box)
+        form.addRow("", self.mixed_box)
         buttons = QtWidgets.QDialogButtonBox()
         self.save_button = buttons.addButton("Save...", QtWidgets.QDialogButtonBox.ButtonRole.AcceptRole)
         buttons.addButton(QtWidgets.QDialogButtonBox.StandardButton.Close)
@@ -60,6 +64,7 @@ class ExportSheetDialog(QtWidgets.QDialog):
         self._timer = QtCore.QTimer(self, singleShot=True, interval=150, timeout=self.refresh)
         for box in (self.layout_box, self.template_box, self.panel_box):
             box.currentIndexChanged.connect(lambda *_: self._timer.start())
+        self.mixed_box.toggled.connect(lambda *_: self._timer.start())
         self.sheet = None
         self.refresh()
 
@@ -80,7 +85,8 @@ class ExportSheetDialog(QtWidgets.QDialog):
             checks = getattr(self.session, "checks", None)
             report = checks.report_for(result) if checks is not None and result is not None else None
             sheet = build_sheet(result, sweep=sweep if "fan" in layout else None, layout=layout,
-                                template=self.template_box.currentData(), convergence=report)
+                                template=self.template_box.currentData(), convergence=report,
+                                mixed_states="name" if self.mixed_box.isChecked() else "refuse")
         except WellscapeError as exc:
             self.message.setText(f"Cannot compose this sheet: {exc}")
             return None

@@ -146,9 +146,22 @@ class MainWindow(QMainWindow):
             widget = self._make_view(title, module, cls)
             self.tabs.addTab(widget, title)
 
+        from .views.common import StaleNote
+        #: over the views: says when the results shown are for an earlier version of the project
+        self.stale_banner = StaleNote()
+        self.stale_banner.setObjectName("stale_banner")
+        self.stale_banner.setStyleSheet(self.stale_banner.styleSheet().replace("#stale_note", "#stale_banner")
+                                        .replace("padding: 3px 6px", "padding: 6px 10px"))
+        views_box = QWidget()
+        vlay = QVBoxLayout(views_box)
+        vlay.setContentsMargins(0, 0, 0, 0)
+        vlay.setSpacing(2)
+        vlay.addWidget(self.stale_banner)
+        vlay.addWidget(self.tabs, 1)
+
         splitter = QSplitter(Qt.Orientation.Horizontal)
         splitter.addWidget(self.editors)
-        splitter.addWidget(self.tabs)
+        splitter.addWidget(views_box)
         splitter.setStretchFactor(0, 0)
         splitter.setStretchFactor(1, 1)
         splitter.setSizes([400, 1040])
@@ -195,6 +208,10 @@ class MainWindow(QMainWindow):
         s.sweep_progressed.connect(lambda f: self.strip.sweep_label.setText(f"sweep {100 * f:.0f}%"))
         s.sweep_finished.connect(self._on_sweep_finished)
         s.sweep_failed.connect(self._on_sweep_failed)
+        s.stale_changed.connect(self._update_stale)
+        s.busy_changed.connect(lambda *_: self._update_stale())
+        self.tabs.currentChanged.connect(lambda *_: self._update_stale())
+        self._was_stale = False
         self.strip.solve_button.clicked.connect(self.solve)
         self.strip.cancel_button.clicked.connect(self.cancel)
         self.resize(1440, 900)
@@ -263,7 +280,8 @@ class MainWindow(QMainWindow):
         e.addAction(self.redo_action)
 
         s = mb.addMenu("&Solve")
-        self.solve_action = self._action("&Solve", self.solve, "F5", "Find the lowest states")
+        from .views.common import SOLVE_KEY
+        self.solve_action = self._action("&Solve", self.solve, SOLVE_KEY, "Find the lowest states")
         self.cancel_action = self._action("&Cancel", self.cancel, "Shift+F5", "Stop the running solve or sweep")
         self.cancel_action.setEnabled(False)
         s.addAction(self.solve_action)
@@ -440,11 +458,33 @@ class MainWindow(QMainWindow):
         self.strip.show_message(f"Solving {estimate.states} states on {estimate.unknowns:,} grid points "
                                 f"({estimate.brief()})...")
 
+    def _update_stale(self) -> None:
+        """The banner over the views and the strip say when what is shown no longer matches the project."""
+        from .views.common import stale_message
+        text = stale_message(self.session)
+        if not text and self.tabs.tabText(self.tabs.currentIndex()) == "Sweep":
+            text = stale_message(self.session, "sweep")
+        self.stale_banner.show_text(text)
+        stale = bool(stale_message(self.session))
+        if stale and not self._was_stale and not self.session.solving:
+            self.strip.show_message(text, "warn")
+        self._was_stale = stale
+
     def _on_check_finished(self, kind: str, value) -> None:
         if kind == "convergence":
             from core.convergence_report import summary_words
-            self.strip.show_message(f"Convergence checked in {value.wall_time:.1f} s: {summary_words(value)} "
-                                    "(marked in the level diagram).", "ok")
+            checks = self.session.checks
+            if self.session.result is not None and checks.report_for(self.session.result) is value:
+                self.strip.show_message(f"Convergence checked in {value.wall_time:.1f} s: {summary_words(value)} "
+                                        "(marked in the level diagram).", "ok")
+            elif checks.current_report() is value:
+                from .views.common import SOLVE_KEY
+                self.strip.show_message(f"Convergence checked for the project as it is now ({summary_words(value)}); "
+                                        f"the levels on show are of an earlier version: press {SOLVE_KEY} to solve "
+                                        "again and see the marks.", "warn")
+            else:
+                self.strip.show_message("The convergence check finished for an earlier version of the project; "
+                                        "it does not apply to what is shown. Check convergence again.", "warn")
 
     def _on_check_failed(self, kind: str, message: str) -> None:
         self.strip.show_message(f"The {kind} check stopped: {message}", "warn")
@@ -483,6 +523,9 @@ class MainWindow(QMainWindow):
         if spec.multiplet_cut:
             text += "; the highest multiplet may be cut - ask for more states to see all of it"
         self.strip.show_message(text, "warn" if spec.multiplet_cut else "ok")
+        if not self.session.result_is_current and not self.session.solving:
+            from .views.common import stale_message
+            self.strip.show_message(stale_message(self.session), "warn")   # solved, but edited meanwhile
         if not self.session.solving:
             self._tick.stop()
             self._update_elapsed()

@@ -222,6 +222,7 @@ class Session(QObject):
     notice = Signal(str)              # a one-line message for the status strip (warnings, autosave trouble)
     busy_changed = Signal(bool)       # a solve or sweep started or ended
     estimated = Signal(object)        # core.estimate.Estimate of a solve that is about to run (not live ones)
+    stale_changed = Signal()          # the project, the result or the sweep changed: is what is shown current?
 
     def __init__(self, parent: Optional[QObject] = None, *, project: Optional[Project] = None,
                  settings: Optional[QSettings] = None, recovery_dir: Optional[Path] = None,
@@ -242,6 +243,7 @@ class Session(QObject):
         self._potential = None
         self._potential_error: Optional[str] = None
         self._potential_for: Optional[Project] = None
+        self._fingerprint: tuple = (None, "")           # (project, its core.provenance.fingerprint)
 
         self._generation = 0
         self._solve_job: Optional[Job] = None
@@ -377,13 +379,61 @@ class Session(QObject):
         return group_levels(self.result.energies, self.effective_degeneracy_tolerance())
 
     @property
+    def fingerprint(self) -> str:
+        """The project state as it is now (:func:`core.provenance.fingerprint`: its physics only)."""
+        project, value = self._fingerprint
+        if project is not self._project:
+            from core.provenance import fingerprint
+            try:
+                value = fingerprint(self._project)
+            except (WellscapeError, ValueError, TypeError):
+                value = ""
+            self._fingerprint = (self._project, value)
+        return value
+
+    @property
     def result_is_current(self) -> bool:
-        """True when the latest result was computed for the project as it is now."""
-        return self.result is not None and self.result.project == self._project
+        """True when the latest result was computed for the project state as it is now."""
+        from core.provenance import result_fingerprint
+        return self.result is not None and result_fingerprint(self.result) == self.fingerprint
+
+    def result_changes(self) -> list:
+        """What changed in the physics since the latest result was solved (a few words per item);
+        [] when it is current or there is none."""
+        if self.result is None or self.result_is_current:
+            return []
+        from core.provenance import changes
+        r = self.result
+        found = changes(r.project, self._project, old_parameters=r.parameters, old_grid=r.grid)
+        if not found:            # the same document: an imported map file was changed on disk
+            found = ["the content of an imported map file"] if any(t.kind == "map" for t in self._project.potential) \
+                else ["the project"]
+        return found
+
+    @property
+    def sweep_is_current(self) -> bool:
+        """True when the latest sweep ran on the project as it is now (the swept quantity aside)."""
+        if self.sweep_result is None:
+            return False
+        from core.provenance import sweep_matches
+        return sweep_matches(self.sweep_result, self._project)
+
+    def sweep_changes(self) -> list:
+        """What changed in the physics since the latest sweep ran (the swept quantity aside)."""
+        if self.sweep_result is None or self.sweep_is_current:
+            return []
+        from core.provenance import sweep_changes
+        return sweep_changes(self.sweep_result, self._project) or ["the project"]
 
     @property
     def solving(self) -> bool:
         return self._solve_job is not None
+
+    @property
+    def solving_current(self) -> bool:
+        """True when the running (or queued) solve is of the project as it is now."""
+        job = self._solve_job
+        return job is not None and (job.tag[1] is self._project or self._pending_mode is not None)
 
     @property
     def solve_queued(self) -> bool:
@@ -435,6 +485,7 @@ class Session(QObject):
             return
         if live:
             self._request_solve("live")
+            self.stale_changed.emit()      # the live solve under way stands in for the mark (see stale_message)
         elif not (self.result_is_current and self._result_mode != "live" and self._solve_job is None
                   and self._pending_mode is None):
             self._request_solve("settle")
@@ -452,6 +503,7 @@ class Session(QObject):
             self.parameters_changed.emit()
         if pot:
             self.potential_changed.emit()
+        self.stale_changed.emit()
 
     def _replace_all(self, project: Project, path: Optional[Path], *, dirty: bool = False) -> None:
         """A different project (new, open, restore): no undo history, no results."""
@@ -471,6 +523,7 @@ class Session(QObject):
         self.parameters_changed.emit()
         self.potential_changed.emit()
         self.selection_changed.emit(0)
+        self.stale_changed.emit()
         if old_path != path:
             self.path_changed.emit(str(path) if path else "")
         self._update_dirty()
@@ -722,6 +775,7 @@ class Session(QObject):
             self._selected = n - 1
             self.selection_changed.emit(self._selected)
         self.solved.emit(result)
+        self.stale_changed.emit()
 
     def _on_solve_failed(self, message: str) -> None:
         job = self._current_job()
@@ -783,6 +837,8 @@ class Session(QObject):
         def work(progress, should_stop):
             from core.study import solve_project
             count_process.start()              # the level counts' child process, started while idle
+            from core.inertia import dense_factor_rate
+            dense_factor_rate()                # this machine's factorisation rate, for the count estimates
             return solve_project(tiny, should_stop=should_stop)
 
         job = Job(work, kind="warm-up")
@@ -856,6 +912,7 @@ class Session(QObject):
             return
         self.sweep_result = result
         self.sweep_finished.emit(result)
+        self.stale_changed.emit()
 
     def _on_sweep_failed(self, message: str) -> None:
         job = self.sender()

@@ -264,18 +264,8 @@ def _project_doc(project, parameters: Optional[dict] = None) -> dict:
 
 def _map_file_hashes(project) -> dict:
     """SHA-256 of every map file the project reads, so the hash covers imported data too."""
-    from .project import MapTerm, PointsTerm
-    out = {}
-    for term in project.potential:
-        if isinstance(term, (MapTerm, PointsTerm)):
-            p = Path(term.file)
-            if not p.is_absolute():
-                p = Path(project.base_dir or ".") / p
-            try:
-                out[term.file] = hashlib.sha256(p.read_bytes()).hexdigest()[:16]
-            except OSError:
-                out[term.file] = "unreadable"
-    return out
+    from .provenance import map_file_hashes
+    return map_file_hashes(project)
 
 
 _SCHEME_NAMES = {"spectral": "spectral (sinc-DVR)", "fd2": "fd2 (2nd-order finite differences)",
@@ -576,8 +566,8 @@ def _levels_panel(result, highlight: Sequence[int], convergence=None) -> dict:
     if convergence is not None:
         from .convergence import default_degeneracy_tolerance
         from .eigensolve import group_levels
-        if (convergence.reference.project != result.project
-                or dict(convergence.reference.parameters) != dict(result.parameters)):
+        from .provenance import result_fingerprint
+        if result_fingerprint(convergence.reference) != result_fingerprint(result):
             raise InputError("the convergence check was made for another project (or other parameter values) "
                              "than the solve: check convergence again")
         errors, splittings = convergence.on_levels(e, result.spectrum.degeneracy_tolerance)
@@ -591,6 +581,11 @@ def _levels_panel(result, highlight: Sequence[int], convergence=None) -> dict:
         from .convergence_report import summary_words
         panel["check"] = f"convergence checked on {len(convergence.grids)} grids: {summary_words(convergence, splittings)}"
     panel["decimals"] = _decimals(np.array([float(np.mean(e[g])) for g in groups]), ignore_below=0.01)
+    try:
+        from .bound import box_states
+        panel["box_states"] = [i for i, f in enumerate(box_states(result)) if f["box"]]
+    except (InputError, ValueError, np.linalg.LinAlgError):
+        pass                           # a flag is never a reason to fail a figure
     return panel
 
 
@@ -658,11 +653,36 @@ def _interp(x: np.ndarray, y: np.ndarray, at: float) -> float:
     return float(np.interp(at, xs[order], ys[order]))
 
 
+MIXED_STATES = ("refuse", "name")
+
+
+def _panel_states(panels: list, result, sweep, mixed_states: str) -> str:
+    """Record in each panel the project state its data came from (:mod:`core.provenance`); refuse a
+    sheet whose fan and solve come from different states (``mixed_states="refuse"``) or name both.
+    Returns the caption line that names the state(s)."""
+    from .provenance import project_fingerprint_for_sweep, result_fingerprint, sweep_changes, sweep_fingerprint
+    solved = result_fingerprint(result) if result is not None else ""
+    swept = sweep_fingerprint(sweep) if sweep is not None and any(p["kind"] == "fan" for p in panels) else ""
+    for p in panels:
+        p["state"] = swept if p["kind"] == "fan" else solved
+    if not (solved and swept):
+        return f"Project state {solved or swept}: every panel."
+    if project_fingerprint_for_sweep(result.project, str(sweep.parameter), parameters=result.parameters) == swept:
+        return f"Project state {solved}: every panel (the fan sweeps {sweep.parameter} from it)."
+    diff = ", ".join(sweep_changes(sweep, result.project, parameters=result.parameters)) or "the project"
+    if mixed_states == "refuse":
+        raise InputError(f"the panels come from different project states: the sweep of {sweep.parameter} ran on "
+                         f"state {swept}, the solve is of state {solved} (solved with {diff}). Sweep and solve the "
+                         f"same project, or allow mixed states (the caption then names both)")
+    return (f"Panels from two project states: the fan from state {swept} (a sweep of {sweep.parameter}); every "
+            f"other panel from state {solved}, which differs by {diff}.")
+
+
 def build_sheet(result=None, *, sweep=None, layout: Optional[str] = None, template: str = "slide",
                 states: Optional[Sequence[int]] = None, wavefunction: str = "density",
                 three_d: str = "projection", columns: Optional[int] = None, crop: bool = True,
                 parameter_unit: Optional[str] = None, title: Optional[str] = None,
-                convergence=None) -> Sheet:
+                convergence=None, mixed_states: str = "refuse") -> Sheet:
     """Extract what a figure sheet plots from a solve (and a sweep) into a :class:`Sheet`.
 
     ``result`` is a :class:`core.study.StudyResult` (needed by every panel but ``fan``);
@@ -674,8 +694,12 @@ def build_sheet(result=None, *, sweep=None, layout: Optional[str] = None, templa
     ``crop`` zooms every state panel to the same window that holds all shown states.
     ``convergence`` (a :class:`core.convergence.ConvergenceReport` of the same project) marks every
     splitting of the level diagram as resolved or not, with error bars and a caption line.
+    ``mixed_states``: a fan swept on another project state than the solve is refused (``"refuse"``)
+    or drawn with both states named in the caption (``"name"``).
     """
     from . import __version__
+    if mixed_states not in MIXED_STATES:
+        raise InputError(f"mixed_states: expected one of {', '.join(MIXED_STATES)}, got {mixed_states!r}")
     if wavefunction not in WAVEFUNCTION_MODES:
         raise InputError(f"wavefunction: expected one of {', '.join(WAVEFUNCTION_MODES)}, got {wavefunction!r}")
     if three_d not in THREE_D_MODES:
@@ -741,6 +765,7 @@ def build_sheet(result=None, *, sweep=None, layout: Optional[str] = None, templa
             panels[i] = _levels_panel(result, shown, convergence)
     if len(panels) > MAX_PANELS:
         raise InputError(f"layout {layout!r} makes {len(panels)} panels; a sheet holds at most {MAX_PANELS}")
+    state_line = _panel_states(panels, result, sweep, mixed_states)
     if result is not None:
         project, params = result.project, dict(result.parameters)
     else:
@@ -749,6 +774,13 @@ def build_sheet(result=None, *, sweep=None, layout: Optional[str] = None, templa
     maps = _map_file_hashes(project)
     h = project_hash(doc, {"map_files": maps} if maps else None)
     caption = caption_lines(project, parameters=params, result=result, sweep=sweep, hash_text=h)
+    caption.append(state_line)
+    box_line = next((p for p in panels if p["kind"] == "levels" and p.get("box_states")), None)
+    if box_line is not None:
+        from .bound import BOX_STATE, BOX_STATE_HINT
+        caption.append(f"▲ {BOX_STATE}: level{'s' if len(box_line['box_states']) > 1 else ''} "
+                       f"{', '.join(str(i) for i in box_line['box_states'])} are held by the grid's walls, not by the "
+                       f"potential; {BOX_STATE_HINT}.")
     if convergence is not None and any(p["kind"] == "levels" for p in panels):
         caption.append(f"Levels checked on {len(convergence.grids)} grids ({convergence_order_text(convergence)}): "
                        f"{MARKS[RESOLVED]} splitting larger than the combined "
@@ -1080,8 +1112,12 @@ def _draw_levels(fig, ax, p: dict, t: Template) -> None:
         if len(c["groups"]) == 1 and n > 1:
             txt += f" (×{n})"
         elif len(c["groups"]) > 1:
-            txt += f"\nsplit {float(e[members].max() - e[members].min()):.2g}"
+            from .labels import splitting_text
+            txt += f"\nΔE = {splitting_text(float(e[members].max() - e[members].min()), p['energy_unit'], 2)}"
             lines = 2
+        if set(members) & set(p.get("box_states", ())):
+            txt += "\n▲ box state (not bound)"
+            lines += 1
         pos.append(centre)
         heights.append(1.2 * label_pt * lines * per_pt)
         texts.append(txt)
@@ -1719,7 +1755,7 @@ _PANEL_KEYS = {
     "state": {"kind", "title", "level", "energy", "mode", "value_label", "x_label", "y_label", "x", "y", "s",
               "values"},
     "levels": {"kind", "title", "energies", "groups", "highlight", "decimals", "y_label", "energy_unit",
-               "errors", "splittings", "check"},
+               "errors", "splittings", "check", "box_states"},
     "fan": {"kind", "title", "values", "tracks", "anticrossings", "x_label", "y_label", "energy_unit", "parameter"},
 }
 
@@ -1729,10 +1765,12 @@ def _read_panel(r: _Reader, raw, path: str) -> dict:
     kind = d.get("kind")
     if not isinstance(kind, str) or kind not in _PANEL_KEYS:
         r.fail(f"{path}.kind", f"expected one of {', '.join(_PANEL_KEYS)}, got {kind!r}"[:200])
-    extra = set(d) - _PANEL_KEYS[kind]
+    extra = set(d) - _PANEL_KEYS[kind] - {"state"}
     if extra:
         r.fail(path, f"unknown keys {', '.join(sorted(extra))} for a {kind} panel")
     out = {"kind": kind, "title": r.text(d.get("title", ""), f"{path}.title")}
+    if "state" in d:                   # the project state the panel's data came from (core.provenance)
+        out["state"] = r.text(d["state"], f"{path}.state", limit=64)
 
     def need(key):
         if key not in d:
@@ -1803,6 +1841,11 @@ def _read_panel(r: _Reader, raw, path: str) -> dict:
         out.update({"energies": e, "groups": r.groups(need("groups"), f"{path}.groups", e.size),
                     "highlight": [r.integer(k, f"{path}.highlight[{i}]", 0, e.size - 1) for i, k in enumerate(hl)],
                     "decimals": r.integer(need("decimals"), f"{path}.decimals", 0, 12)})
+        if "box_states" in d:
+            bs = d["box_states"]
+            if not isinstance(bs, list):
+                r.fail(f"{path}.box_states", "expected a list of level numbers")
+            out["box_states"] = [r.integer(k, f"{path}.box_states[{i}]", 0, e.size - 1) for i, k in enumerate(bs)]
         if "errors" in d:
             err = r.array(d["errors"], f"{path}.errors", 1, allow_nan=True)
             if err.size != e.size:

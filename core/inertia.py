@@ -47,7 +47,8 @@ from .kinetic import FD_COEFFICIENTS
 from .resources import available_memory_bytes, format_bytes
 
 __all__ = ["CountCertificate", "FactorEstimate", "InertiaCount", "CountUnavailable", "certify_count",
-           "count_below", "estimate_factorisation", "choose_shift", "DENSE_LIMIT"]
+           "count_below", "estimate_factorisation", "choose_shift", "DENSE_LIMIT", "dense_factor_rate",
+           "record_count"]
 
 #: Problems with at most this many (real) unknowns are factorised densely (Bunch-Kaufman LDL^T).
 DENSE_LIMIT = 300
@@ -57,8 +58,32 @@ DENSE_LIMIT = 300
 #: the bundled elliptical dot: 3.6 s on one thread, where SuperLU was estimated at 69 s).  Memory:
 #: three dense copies, 600 MB at the limit, checked before factorising.
 DENSE_SPECTRAL_LIMIT = 5000
-#: floating-point rate assumed for the dense LDL^T time estimate (one thread; measured 3.4-6.4e9 here)
+#: floating-point rate assumed for the factorisation time estimates when it cannot be measured
+#: (one thread; a 800 x 800 dense LDL^T measured 3.4-11e9 here, depending on the load)
 _DENSE_FLOPS = 4e9
+#: time of a banded sparse factorisation ~ _SPARSE_FLOP_FACTOR * nnz(L+U)^2 / N / rate, with the fill
+#: model's nnz before its safety factor and the measured dense rate: fitted to the bundled lens dot
+#: (3D 40x40x22, fd2: 3.96 s measured) and to 48^3 (about 1e-9 s per unit at ~5e9 flop/s); the factor
+#: of SuperLU on a spectral (dense) pattern runs at the dense rate (2D 5376 and 6400 unknowns, 3D 24^3:
+#: 5.8-7.1e9 flop/s against 5.5-5.7e9 for LAPACK's dense LDL^T in the same hour)
+_SPARSE_FLOP_FACTOR = 3.6
+_RATE: dict = {}
+_CORRECTION: dict = {}     # "dense" / "sparse" -> measured / modelled time of the latest count here
+
+
+def _kind(method: str) -> str:
+    return "dense" if method.startswith("dense") else "sparse"
+
+
+def record_count(estimate: FactorEstimate, seconds: float) -> None:
+    """Remember how long a count estimated as ``estimate`` really took on this machine: later estimates
+    of the same kind of factorisation are scaled by that ratio (the load of a shared machine changes
+    the rate by 2-5x within minutes; the latest count knows it best)."""
+    if estimate is None or not (seconds > 0 and estimate.seconds > 0):
+        return
+    kind = _kind(estimate.method)
+    modelled = estimate.seconds / _CORRECTION.get(kind, 1.0)
+    _CORRECTION[kind] = float(seconds) / modelled
 
 # Fill of SuperLU's L+U (MMD on A+A^T, symmetric mode) per row, measured on this kind of machine
 # for second-order differences (stencil half-width 1) and fitted as c * (N / 4096)**e:
@@ -71,7 +96,6 @@ _DENSE_FLOPS = 4e9
 _FILL_FIT = {1: (4.0, 0.0), 2: (31.0, 0.2), 3: (149.0, 0.6)}
 _FILL_SAFETY = 1.5
 _BYTES_PER_FACTOR_ENTRY = 16      # value, row index and SuperLU's supernodal bookkeeping (measured 9.5-16)
-_SECONDS_PER_FLOP_UNIT = 1.0e-9   # time ~ c * nnz(L+U)^2 / N; c measured 0.85-1.0e-9 s in 3D here (rough)
 
 
 class CountUnavailable(WellscapeError):
@@ -154,14 +178,41 @@ def _halfwidth(scheme: str) -> Optional[int]:
     return None
 
 
+def dense_factor_rate(n: int = 800) -> float:
+    """Floating-point operations per second of a dense LDL^T on one BLAS thread on this machine
+    (``n^3 / 3`` operations over the best of two timed factorisations of an ``n x n`` symmetric
+    matrix), measured once per process; ``_DENSE_FLOPS`` if it cannot be measured."""
+    if "dense" in _RATE:
+        return _RATE["dense"]
+    rate = _DENSE_FLOPS
+    try:
+        from threadpoolctl import threadpool_limits
+        a = np.random.default_rng(0).standard_normal((n, n))
+        a = a + a.T
+        best = math.inf
+        with threadpool_limits(limits=1, user_api="blas"):      # as the window's count process runs
+            for _ in range(2):
+                t0 = time.perf_counter()
+                sla.ldl(a, lower=True, hermitian=True)
+                best = min(best, time.perf_counter() - t0)
+        if best > 0:
+            rate = n**3 / 3.0 / best
+    except (ImportError, np.linalg.LinAlgError, ValueError):
+        pass
+    _RATE["dense"] = float(rate)
+    return _RATE["dense"]
+
+
 def estimate_factorisation(h: Hamiltonian) -> FactorEstimate:
     """Conservative memory and rough time for factorising ``H - sigma I`` (see the module notes)."""
     n = int(h.size)
     rows = 2 * n if h.is_complex else n
+    rate = dense_factor_rate()
     if rows <= DENSE_LIMIT or (_halfwidth(h.scheme) is None and rows <= DENSE_SPECTRAL_LIMIT):
         nnz = rows * rows
         return FactorEstimate(unknowns=rows, nonzeros=nnz, bytes=int(3 * 8 * nnz),
-                              seconds=max(1e-3, rows**3 / 3.0 / _DENSE_FLOPS), method="dense LDL^T (Bunch-Kaufman)")
+                              seconds=max(1e-3, rows**3 / 3.0 / rate * _CORRECTION.get("dense", 1.0)),
+                              method="dense LDL^T (Bunch-Kaufman)")
     r = _halfwidth(h.scheme)
     d = h.grid.ndim
     if r is None:
@@ -176,7 +227,12 @@ def estimate_factorisation(h: Hamiltonian) -> FactorEstimate:
     nnz = min(nnz, float(rows) * rows)
     matrix_bytes = 3 * 12 * (2 * r + 1 if r else sum(h.grid.shape)) * rows
     total = int(_BYTES_PER_FACTOR_ENTRY * nnz + matrix_bytes + 64 * rows)
-    seconds = _SECONDS_PER_FLOP_UNIT * nnz * nnz / rows
+    if r is None:                      # a dense factor: the dense rate
+        seconds = float(rows) ** 3 / 3.0 / rate
+    else:
+        plain = nnz / _FILL_SAFETY     # the fill model's own value (the safety factor is for memory)
+        seconds = _SPARSE_FLOP_FACTOR * plain * plain / rows / rate
+    seconds *= _CORRECTION.get("sparse", 1.0)
     return FactorEstimate(unknowns=rows, nonzeros=int(nnz), bytes=total, seconds=float(seconds),
                           method="sparse LDL^T (SuperLU, symmetric mode)")
 

@@ -7,7 +7,7 @@ from typing import Optional
 
 import numpy as np
 
-from .analysis import mirror_parity, position_expectation
+from .analysis import BOX_STATE, BOX_STATE_HINT, mirror_parity, position_expectation
 from .study import StudyResult
 
 __all__ = ["level_rows", "format_level_table", "levels_csv", "multiplet_parity_label", "format_two_electron_table"]
@@ -33,7 +33,8 @@ def multiplet_parity_label(parities: list, members) -> str:
 
 def level_rows(result: StudyResult, *, tolerance: Optional[float] = None) -> list:
     """One dict per multiplet: first/last index, multiplicity, energy, spacing to the ground level,
-    mean position, parity label."""
+    mean position, parity label; ``bound`` False and ``box_state`` (why, in words) for a box state
+    (:func:`core.bound.box_states`)."""
     spec = result.spectrum
     grid = result.grid
     groups = spec.groups if tolerance is None else _groups(spec.energies, tolerance)
@@ -43,6 +44,11 @@ def level_rows(result: StudyResult, *, tolerance: Optional[float] = None) -> lis
     except Exception:  # parity is a label, never a reason to fail a report
         par = []
     e0 = float(spec.energies[0])
+    try:
+        from .bound import box_states
+        flags = box_states(result)
+    except Exception:  # noqa: BLE001 - the flag is a label, never a reason to fail a report
+        flags = None
     rows = []
     for g in groups:
         idx = list(g)
@@ -52,6 +58,10 @@ def level_rows(result: StudyResult, *, tolerance: Optional[float] = None) -> lis
                "position": [_clean(float(v), result.grid) for v in pos[idx].mean(axis=0)],
                "parity": multiplet_parity_label(par, idx) if par else "",
                "residual": float(spec.residuals[idx].max())}
+        if flags is not None:
+            box = [flags[i] for i in idx if flags[i]["box"]]
+            row["bound"] = not box
+            row["box_state"] = box[0]["reason"] if box else ""
         rows.append(row)
     return rows
 
@@ -91,7 +101,12 @@ def format_level_table(result: StudyResult, *, tolerance: Optional[float] = None
         lv = r["levels"]
         span = f"{lv[0]}" if len(lv) == 1 else f"{lv[0]}-{lv[-1]}"
         lines.append(f"{span:>9}  {r['multiplicity']:>4}  {r['energy']:>14.6f}  {r['above_ground']:>14.6f}  "
-                     + "  ".join(f"{p:>11.3f}" for p in r["position"]) + f"  {r['parity']}")
+                     + "  ".join(f"{p:>11.3f}" for p in r["position"]) + f"  {r['parity']}"
+                     + (f"  {BOX_STATE}" if r.get("bound") is False else ""))
+    boxed = [r for r in rows if r.get("bound") is False]
+    if boxed:
+        lines.append(f"{BOX_STATE}: {len(boxed)} level group{'s' if len(boxed) > 1 else ''} held by the grid's walls, "
+                     f"not by the potential ({boxed[0]['box_state']}); {BOX_STATE_HINT}")
     return "\n".join(lines)
 
 

@@ -12,6 +12,7 @@ from .hamiltonian import Hamiltonian, build_hamiltonian
 from .potentials import (evaluate_potential, magnetic_field, project_g_factor, project_masses, project_material_map,
                          resolve_parameters)
 from .project import Project
+from .provenance import fingerprint
 from .resources import check_memory
 from .solve import choose_scheme
 from .errors import InputError
@@ -35,6 +36,8 @@ class StudyResult:
     magnetic_field: tuple
     g_factor: Optional[float] = None
     extra: dict = field(default_factory=dict)
+    #: the project state solved (:func:`core.provenance.fingerprint` of the project, parameters and grid)
+    fingerprint: str = ""
 
     @property
     def energies(self) -> np.ndarray:
@@ -107,9 +110,13 @@ def solve_project(project: Project, *, parameters: Optional[Mapping[str, float]]
     h, v, params, scheme, reason = project_hamiltonian(project, parameters=parameters, grid=grid, scheme=scheme)
     spec = lowest_states(h, k, tolerance=tolerance or project.solver.tolerance, start=start,
                          progress=progress, should_stop=should_stop)
+    if start is None and tolerance is None:
+        from .estimate import record_solve       # the next estimate of this size uses this rate
+        record_solve(scheme, grid, h.is_complex, k, spec.wall_time)
     return StudyResult(project=project, parameters=params, grid=grid, potential=v, spectrum=spec,
                        masses=project_masses(project, params), scheme=scheme, scheme_reason=reason,
-                       magnetic_field=tuple(h.magnetic_field), g_factor=project_g_factor(project, params))
+                       magnetic_field=tuple(h.magnetic_field), g_factor=project_g_factor(project, params),
+                       fingerprint=fingerprint(project, parameters=params, grid=grid))
 
 
 @dataclass(frozen=True, eq=False)

@@ -11,7 +11,8 @@ import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
 __all__ = ["pretty_unit", "axis_title", "fmt", "fmt_energy", "make_plot", "HintStack", "image_rect",
-           "view_units", "AXIS_NAMES", "density_unit", "sample_line"]
+           "view_units", "AXIS_NAMES", "density_unit", "sample_line", "SOLVE_KEY", "StaleNote", "stale_message",
+           "grey_plot"]
 
 AXIS_NAMES = ("x", "y", "z")
 
@@ -297,3 +298,58 @@ def text_item(text: str, *, anchor=(0, 0.5), colour: str = "#222222", html: bool
 
 def qcolor(hex_colour: str) -> QtGui.QColor:
     return QtGui.QColor(hex_colour)
+
+
+#: the key of the window's Solve action (app.main uses it for the shortcut; messages name it)
+SOLVE_KEY = "F5"
+STALE_COLOUR = "#8a5a00"
+#: plot background of a view whose results are out of date (greyed; the note says why)
+STALE_BACKGROUND = "#ececec"
+
+
+def stale_message(session, kind: str = "result", *, short: bool = False) -> str:
+    """Plain words for results that are out of date (``kind`` "result" or "sweep"); "" when current.
+    ``short``: the few words a view shows under the window's banner."""
+    if kind == "sweep":
+        if getattr(session, "sweep_result", None) is None or session.sweep_is_current:
+            return ""
+        what = ", ".join(session.sweep_changes())
+        return (f"Out of date: this sweep ran on an earlier version of the project (changed since: {what}). "
+                f"Run the sweep again to update it.")
+    if getattr(session, "result", None) is None or session.result_is_current:
+        return ""
+    if getattr(session, "live_dragging", False) and getattr(session, "solving_current", False):
+        return ""          # a slider drag: the live solve under way replaces the results in a moment
+    what = ", ".join(session.result_changes())
+    if short:
+        return f"Out of date (changed: {what}) — greyed until solved again ({SOLVE_KEY})"
+    if getattr(session, "solving", False):
+        return f"Updating: the results shown are for an earlier version of the project (changed: {what})…"
+    return (f"Out of date: the results shown are for an earlier version of the project (changed: {what}). "
+            f"Press {SOLVE_KEY} to solve again.")
+
+
+class StaleNote(QtWidgets.QLabel):
+    """An amber line over a view whose results no longer match the project; hidden while they do."""
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        self.setObjectName("stale_note")
+        self.setWordWrap(True)
+        self.setStyleSheet(f"QLabel#stale_note {{ color: {STALE_COLOUR}; background: #fff4d6; "
+                           f"border: 1px solid #e0b54a; padding: 3px 6px; font-weight: bold; }}")
+        self.setTextInteractionFlags(QtCore.Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.hide()
+
+    def show_text(self, text: str) -> None:
+        self.setText(text)
+        self.setVisible(bool(text))
+
+    @property
+    def stale(self) -> bool:
+        return not self.isHidden()
+
+
+def grey_plot(plot: pg.PlotWidget, stale: bool) -> None:
+    """Grey a plot's background while what it shows is out of date."""
+    plot.setBackground(STALE_BACKGROUND if stale else "w")

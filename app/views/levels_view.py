@@ -26,7 +26,10 @@ from core.convergence_report import (coarse_words, format_bound, format_uncertai
 from core.errors import WellscapeError
 
 from . import colormaps
-from .common import HintStack, axis_title, clean_zero, fmt, fmt_energy, make_plot, pretty_unit, set_titles
+from core.labels import cluster_text, clusters, level_labels
+
+from .common import (HintStack, StaleNote, axis_title, fmt, fmt_energy, grey_plot, make_plot, pretty_unit,
+                     set_titles, stale_message)
 
 __all__ = ["LevelsView", "ToleranceBox", "level_labels"]
 
@@ -37,7 +40,13 @@ _BAR_GAP = 0.3
 _BAR_PEN = pg.mkPen("#1d3557", width=3)
 _SEL_PEN = pg.mkPen(colormaps.ACCENT, width=6)
 _LEADER_PEN = pg.mkPen((120, 120, 120, 160), width=1)
-_INTEGER_TOL = 0.05      # L_z eigenvalues closer than this to integers are shown as quantum numbers
+_STALE_PEN = pg.mkPen("#8d99ae", width=3)
+_BOX_PEN = pg.mkPen("#9b1c1c", width=3, style=QtCore.Qt.PenStyle.DashLine)
+#: multiplets closer than this share of the diagram's energy span are drawn as one cluster, side by
+#: side, and labelled together with their splitting (at 1 % of a 500-pixel diagram: 5 pixels)
+_CLUSTER_FRACTION = 0.01
+_CLUSTER_GAP = 0.8
+_LINE_PX = 17.0
 _ERR_PEN = pg.mkPen("#6c757d", width=1.5)
 _BRACKET_PENS = {True: pg.mkPen("#1d3557", width=1.5),
                  False: pg.mkPen("#8a5a00", width=1.5, style=QtCore.Qt.PenStyle.DashLine)}
@@ -80,49 +89,8 @@ class ToleranceBox(QtWidgets.QDoubleSpinBox):
         self.setValue(self.value() * (10.0 ** steps))
 
 
-def _signed(v: float) -> str:
-    n = int(round(v))
-    return f"+{n}" if n > 0 else ("0" if n == 0 else f"−{abs(n)}")
-
-
-def level_labels(result, groups, *, tolerance_lz: float = _INTEGER_TOL) -> list:
-    """One dict per multiplet: ``members``, ``energy``, ``parity`` (text), ``lz`` (eigenvalues or None),
-    ``lz_text``, ``position`` (mean <r> per axis).  Observables that cannot be computed are left empty:
-    a label is never a reason to fail.
-
-    ``lz_text`` names the L_z eigenvalues of a multiplet only when they are all within ``tolerance_lz``
-    of integers and the multiplet has two or more members: a single real state always gives 0, which
-    says nothing about its symmetry (the hover text still shows every value)."""
-    from core.analysis import angular_momentum_z_multiplet, mirror_parity, position_expectation
-    from core.report import multiplet_parity_label
-    grid, states = result.grid, result.states
-    energies = np.asarray(result.energies)
-    try:
-        parities = mirror_parity(grid, states, result.potential)
-    except WellscapeError:
-        parities = []
-    try:
-        pos = position_expectation(grid, states)
-    except WellscapeError:
-        pos = np.full((len(energies), grid.ndim), np.nan)
-    scale = max(abs(v) for v in grid.lower + grid.upper)
-    centre = (clean_zero(pos[0, 0], scale), clean_zero(pos[0, 1], scale)) if grid.ndim >= 2 else (0.0, 0.0)
-    out = []
-    for g in groups:
-        idx = list(g)
-        lz, lz_text = None, ""
-        if grid.ndim >= 2:
-            try:
-                lz = angular_momentum_z_multiplet(grid, states, idx, centre=centre)
-            except WellscapeError:
-                lz = None
-            if lz is not None and len(idx) > 1 and np.all(np.abs(lz - np.round(lz)) < tolerance_lz):
-                lz_text = "L_z = " + ", ".join(_signed(v) for v in lz) + " ħ"
-        out.append({"members": idx, "energy": float(energies[idx].mean()),
-                    "parity": multiplet_parity_label(parities, idx) if parities else "",
-                    "lz": lz, "lz_text": lz_text, "lz_centre": centre,
-                    "position": pos[idx].mean(axis=0)})
-    return out
+def _span(members) -> str:
+    return f"{members[0]}" if len(members) == 1 else f"{members[0]}–{members[-1]}"
 
 
 class LevelsView(QtWidgets.QWidget):
@@ -141,6 +109,8 @@ class LevelsView(QtWidgets.QWidget):
 
         self.header = QtWidgets.QLabel("")
         self.header.setWordWrap(True)
+        self.stale_note = StaleNote()
+        self.clusters: list = []           # lists of indices into self.labels drawn (and labelled) together
         self.tolerance = ToleranceBox()
         self.tolerance.setMinimumWidth(130)
         self.tolerance.setToolTip("Two consecutive levels closer than this count as degenerate and are "
@@ -185,13 +155,15 @@ class LevelsView(QtWidgets.QWidget):
         item.hideAxis("bottom")
         item.setMouseEnabled(x=False, y=True)
         self.bar_item = pg.PlotDataItem(pen=_BAR_PEN, connect="pairs")
+        self.box_item = pg.PlotDataItem(pen=_BOX_PEN, connect="pairs")       # bars of box states
         self.sel_item = pg.PlotDataItem(pen=_SEL_PEN, connect="pairs")
         self.leader_item = pg.PlotDataItem(pen=_LEADER_PEN, connect="pairs")
         self.error_item = pg.ErrorBarItem(x=np.zeros(0), y=np.zeros(0), height=np.zeros(0), beam=0.25, pen=_ERR_PEN)
         self.bracket_items = {ok: pg.PlotDataItem(pen=_BRACKET_PENS[ok], connect="pairs") for ok in (True, False)}
         self._mark_items: list = []
         self.marks: list = []              # (lower level, upper level, resolved, x, y) of every splitting marked
-        for it in (self.leader_item, self.error_item, *self.bracket_items.values(), self.bar_item, self.sel_item):
+        for it in (self.leader_item, self.error_item, *self.bracket_items.values(), self.bar_item, self.box_item,
+                   self.sel_item):
             self.plot.addItem(it)
         self.plot.scene().sigMouseClicked.connect(self._on_scene_clicked)
         self.plot.scene().sigMouseMoved.connect(self._on_mouse_moved)
@@ -206,6 +178,7 @@ class LevelsView(QtWidgets.QWidget):
         inner = QtWidgets.QWidget()
         il = QtWidgets.QVBoxLayout(inner)
         il.setContentsMargins(0, 0, 0, 0)
+        il.addWidget(self.stale_note)
         il.addWidget(self.header)
         il.addLayout(row)
         il.addLayout(checks_box)
@@ -219,6 +192,8 @@ class LevelsView(QtWidgets.QWidget):
         session.solved.connect(self._on_solved)
         session.selection_changed.connect(self._on_selection_changed)
         session.project_changed.connect(self._on_project_changed)
+        if hasattr(session, "stale_changed"):
+            session.stale_changed.connect(self._update_stale)
         if hasattr(session, "degeneracy_changed"):
             session.degeneracy_changed.connect(self._on_degeneracy_changed)
         self.checks = getattr(session, "checks", None)
@@ -255,6 +230,10 @@ class LevelsView(QtWidgets.QWidget):
         u = result.units
         self.tolerance.setSuffix(f" {pretty_unit(u.energy_unit)}")
         self._sync_tolerance_box()
+        current = result is getattr(self.session, "result", None)
+        text = stale_message(self.session, short=True) if current and hasattr(self.session, "stale_changed") else ""
+        self.stale_note.show_text(text)
+        grey_plot(self.plot, bool(text))
         self._regroup()
 
     def _on_selection_changed(self, _index: int = 0) -> None:
@@ -324,7 +303,10 @@ class LevelsView(QtWidgets.QWidget):
         parts = []
         if m > 1:
             parts.append(f"×{m}")
-        parts.append(fmt_energy(lab["energy"], u.energy_unit, 6))
+        if self._relative:
+            parts.append("E − E₀ = " + fmt_energy(self._shown(lab["energy"]), u.energy_unit, 6))
+        else:
+            parts.append(fmt_energy(lab["energy"], u.energy_unit, 6))
         if lab["parity"]:
             parts.append(lab["parity"])
         if lab["lz_text"]:
@@ -332,7 +314,18 @@ class LevelsView(QtWidgets.QWidget):
         words = self._verdict_words(lab["members"])
         if words:
             parts.append(words)
+        if lab.get("box"):
+            parts.append("▲ box state (not bound)")
         return "   ".join(parts)
+
+    def _cluster_text(self, members: list) -> str:
+        """The label of a cluster: its splittings on the first line, then each multiplet, highest first."""
+        if len(members) == 1:
+            return self._label_text(self.labels[members[0]])
+        u = self.result.units
+        energies = [self.labels[i]["energy"] for i in members]
+        head = f"{len(members)} close levels: " + cluster_text(energies, list(range(len(members))), u.energy_unit)
+        return "\n".join([head] + [self._label_text(self.labels[i]) for i in reversed(members)])
 
     # -- trust marks ----------------------------------------------------------------------------------
     def report(self):
@@ -473,7 +466,26 @@ class LevelsView(QtWidgets.QWidget):
         self.converge_button.setEnabled(True)
 
     def _update_checks(self) -> None:
-        """Texts of the count certificate and the convergence check for the shown result."""
+        """Texts of the count certificate and the convergence check for the shown result; while that
+        result is out of date they say that they describe it, not the project as it is now."""
+        self._update_check_texts()
+        if self.result is not None and self.stale_note.stale:
+            for label in (self.count_label, self.converge_label):
+                text = label.text()
+                if text and not text.startswith("… ") and "(for the earlier version shown)" not in text:
+                    label.setText(f"<span style='color:#6c757d'>{text} — <i>(for the earlier version shown)</i></span>")
+
+    def _update_stale(self) -> None:
+        """Grey the diagram and say so when the shown levels are not of the project as it is now."""
+        current = self.result is not None and self.result is getattr(self.session, "result", None)
+        text = stale_message(self.session, short=True) if current else ""
+        was = self.stale_note.stale
+        self.stale_note.show_text(text)
+        grey_plot(self.plot, bool(text))
+        if self.result is not None and was != bool(text):
+            self._draw()
+
+    def _update_check_texts(self) -> None:
         self._update_buttons()
         if self.checks is None or self.result is None:
             return
@@ -515,41 +527,52 @@ class LevelsView(QtWidgets.QWidget):
         result = self.result
         u = result.units
         energies = np.asarray(result.energies)
+        means = [self._shown(lab["energy"]) for lab in self.labels]
+        span = (max(means) - min(means)) if means else 0.0
+        self.clusters = clusters(means, _CLUSTER_FRACTION * span) if span > 0 else [[i] for i in range(len(means))]
+        stale = self.stale_note.stale
         self.bars = []
-        xs, ys = [], []
-        widest = max(len(g) for g in self.groups)
-        for g in self.groups:
-            m = len(g)
-            total = m * _BAR_W + (m - 1) * _BAR_GAP
+        xs, ys, bx, by = [], [], [], []
+        widths = []
+        for members in self.clusters:
+            w = [len(self.labels[i]["members"]) * (_BAR_W + _BAR_GAP) - _BAR_GAP for i in members]
+            widths.append(sum(w) + (len(w) - 1) * _CLUSTER_GAP)
+        for members, total in zip(self.clusters, widths):
             x = -total / 2.0
-            for level in g:
-                e = self._shown(float(energies[level]))
-                self.bars.append((int(level), x, x + _BAR_W, e))
-                xs += [x, x + _BAR_W]
-                ys += [e, e]
-                x += _BAR_W + _BAR_GAP
-        self.bar_item.setData(np.array(xs), np.array(ys))
-        half = (widest * _BAR_W + (widest - 1) * _BAR_GAP) / 2.0
+            for i in members:
+                lab = self.labels[i]
+                for level in lab["members"]:
+                    e = self._shown(float(energies[level]))
+                    self.bars.append((int(level), x, x + _BAR_W, e))
+                    (bx if lab.get("box") else xs).extend([x, x + _BAR_W])
+                    (by if lab.get("box") else ys).extend([e, e])
+                    x += _BAR_W + _BAR_GAP
+                x += _CLUSTER_GAP - _BAR_GAP
+        self.bar_item.setPen(_STALE_PEN if stale else _BAR_PEN)
+        self.bar_item.setData(np.array(xs, dtype=float), np.array(ys, dtype=float))
+        self.box_item.setData(np.array(bx, dtype=float), np.array(by, dtype=float))
+        half = max(widths) / 2.0 if widths else 0.5
         self._half = half
         self._label_x = half + 0.6
         ylabel = axis_title("E − E₀" if self._relative else "E", u.energy_unit)
         set_titles(self.plot, None, ylabel)
         # label items are made once and reused: a live drag redraws the diagram several times a second
-        while len(self._label_pool) < len(self.labels):
+        while len(self._label_pool) < len(self.clusters):
             t = pg.TextItem("", anchor=(0, 0.5), color="#1b1b1b")
             self.plot.addItem(t)
             self._label_pool.append(t)
         for k, t in enumerate(self._label_pool):
-            if k < len(self.labels):
-                t.setText(self._label_text(self.labels[k]))
-            t.setVisible(k < len(self.labels))
-        self._label_items = self._label_pool[:len(self.labels)]
+            if k < len(self.clusters):
+                t.setText(self._cluster_text(self.clusters[k]))
+                t.setColor("#6c757d" if stale else "#1b1b1b")
+            t.setVisible(k < len(self.clusters))
+        self._label_items = self._label_pool[:len(self.clusters)]
         lo = self._shown(float(energies.min()))
         hi = self._shown(float(energies.max()))
         pad = 0.08 * (hi - lo) if hi > lo else max(abs(hi), 1.0) * 0.05
         vb = self.plot.getPlotItem().getViewBox()
         left = -half - (0.9 if self.report() is not None else 0.4)
-        wordy = any(self._verdict_words(lab["members"]) for lab in self.labels)
+        wordy = any(self._verdict_words(lab["members"]) or lab.get("box") for lab in self.labels)
         vb.setXRange(left, self._label_x + (7.0 if wordy else 4.0) + half, padding=0)
         vb.setYRange(lo - pad, hi + pad, padding=0)
         self._draw_trust(energies)
@@ -583,35 +606,56 @@ class LevelsView(QtWidgets.QWidget):
                      "cut: ask for more states to see all of it.</span>")
         if not getattr(spec, "converged", True):
             text += "<br><span style='color:#9b1c1c'>The solver did not fully converge.</span>"
+        boxed = [lab for lab in self.labels if lab.get("box")]
+        if boxed:
+            from core.bound import BOX_STATE, BOX_STATE_HINT
+            levels = ", ".join(_span(lab["members"]) for lab in boxed)
+            text += (f"<br><span style='color:#9b1c1c'>▲ Level{'s' if len(boxed) > 1 else ''} {levels}: "
+                     f"{BOX_STATE} — held by the grid's walls, not by the potential ({boxed[0]['box_reason']}); "
+                     f"{BOX_STATE_HINT}.</span>")
         self.header.setText(text)
 
     def _layout_labels(self, *_args) -> None:
-        """Place the multiplet labels right of the bars, pushed apart so that they never overlap."""
+        """Place the labels (one per cluster) right of the bars, pushed apart so that they never overlap."""
         if not self._label_items or self.result is None:
             return
         vb = self.plot.getPlotItem().getViewBox()
         px = vb.viewPixelSize()
-        line_h = 17.0 * (px[1] if px[1] > 0 else 0.0)
-        want = [self._shown(lab["energy"]) for lab in self.labels]
+        per_px = px[1] if px[1] > 0 else 0.0
+        want = [float(np.mean([self._shown(self.labels[i]["energy"]) for i in members])) for members in self.clusters]
+        # each label's own height (its lines in the font in use), at least _LINE_PX per line
+        heights = [max(t.boundingRect().height(), _LINE_PX * (1 if len(m) == 1 else len(m) + 1)) * per_px
+                   for t, m in zip(self._label_items, self.clusters)]
         order = np.argsort(want, kind="stable")
         placed = np.array(want, dtype=float)
-        prev = -np.inf
+        prev, prev_h = -np.inf, 0.0
         for i in order:
-            placed[i] = max(placed[i], prev + line_h)
-            prev = placed[i]
-        top = vb.viewRange()[1][1] - 0.5 * line_h
-        nxt = np.inf
+            placed[i] = max(placed[i], prev + 0.5 * (prev_h + heights[i]))
+            prev, prev_h = placed[i], heights[i]
+        top = vb.viewRange()[1][1]
+        nxt, nxt_h = np.inf, 0.0
         for i in order[::-1]:                      # pull back below the top edge where possible
-            limit = min(top, nxt - line_h)
+            limit = min(top - 0.5 * heights[i], nxt - 0.5 * (nxt_h + heights[i]))
             if placed[i] > limit:
                 placed[i] = limit
-            nxt = placed[i]
+            nxt, nxt_h = placed[i], heights[i]
         xs, ys = [], []
-        for t, lab, y_lab, y in zip(self._label_items, self.labels, placed, want):
+        for t, members, y_lab, y in zip(self._label_items, self.clusters, placed, want):
             t.setPos(self._label_x, float(y_lab))
             xs += [self._half + 0.1, self._label_x - 0.05]
             ys += [y, float(y_lab)]
         self.leader_item.setData(np.array(xs), np.array(ys))
+
+    def label_boxes(self) -> list:
+        """``(text, bottom, top)`` in data units of every label shown (for checking that none overlap)."""
+        vb = self.plot.getPlotItem().getViewBox()
+        px = vb.viewPixelSize()
+        out = []
+        for t in self._label_items:
+            h = t.boundingRect().height() * (px[1] if px[1] > 0 else 0.0)
+            y = t.pos().y()
+            out.append((t.toPlainText(), y - 0.5 * h, y + 0.5 * h))
+        return out
 
     def _draw_selection(self) -> None:
         sel = getattr(self.session, "selected_state", None)
@@ -634,9 +678,9 @@ class LevelsView(QtWidgets.QWidget):
             if x0 - 0.1 <= x <= x1 + 0.1 and abs(y - e) <= tol_y and abs(y - e) < best_d:
                 best, best_d = level, abs(y - e)
         if best is None and x >= self._label_x - 0.1:
-            for t, lab in zip(self._label_items, self.labels):
-                if abs(y - t.pos().y()) <= 8.0 * px[1]:
-                    return int(lab["members"][0])
+            for t, members in zip(self._label_items, self.clusters):
+                if abs(y - t.pos().y()) <= 8.0 * px[1] * (1 if len(members) == 1 else len(members) + 1):
+                    return int(self.labels[members[0]]["members"][0])
         return best
 
     def _on_scene_clicked(self, event) -> None:

@@ -19,6 +19,7 @@ from core.errors import WellscapeError
 from core.project import GatesTerm
 
 from . import colormaps
+from .common import stale_message
 from .common import (HintStack, axis_title, clean_zero, colorbar, contour_lines, fmt, fmt_energy, image_rect, make_plot, pretty_unit,
                      sample_line, set_colorbar_title, set_titles, show_message, status_label, text_item, view_units)
 from .isosurface import IsosurfaceWidget, Surface
@@ -32,6 +33,8 @@ _GATE_PEN = pg.mkPen(colormaps.ACCENT, width=2)
 _GATE_FIXED_PEN = pg.mkPen(colormaps.ACCENT, width=2, style=QtCore.Qt.PenStyle.DashLine)
 _CUT_PEN = pg.mkPen("#000000", width=2)
 _LEVEL_PEN = pg.mkPen("#0072B2", width=1.5, style=QtCore.Qt.PenStyle.DashLine)
+_STALE_LEVEL_PEN = pg.mkPen("#8d99ae", width=1.5, style=QtCore.Qt.PenStyle.DotLine)
+_CUT_LABEL_PX = 16.0       # height of a level label on the cut, pixels
 
 
 def _is_number(v) -> bool:
@@ -141,7 +144,8 @@ class PotentialView(QtWidgets.QWidget):
         for name, slot in (("project_changed", self._on_project_changed),
                            ("potential_changed", self._on_potential_changed),
                            ("solved", self._on_solved),
-                           ("degeneracy_changed", self._update_levels)):
+                           ("degeneracy_changed", self._update_levels),
+                           ("stale_changed", self._update_levels)):
             if hasattr(session, name):
                 getattr(session, name).connect(slot)
         self._on_project_changed(initial=True)
@@ -535,19 +539,27 @@ class PotentialView(QtWidgets.QWidget):
         plot = self.plot1d if self.ndim == 1 else self.cut_plot
         self.level_lines = []
         groups = []
+        stale = bool(stale_message(self.session)) if hasattr(self.session, "stale_changed") else False
         if self.levels_on_cut.isChecked() and self._potential is not None:
             groups = self.level_groups()
-            span = self._frame_levels(plot, groups)
+            self._frame_levels(plot, groups)
+            px = plot.getPlotItem().getViewBox().viewPixelSize()[1]
+            close = _CUT_LABEL_PX * px if px > 0 else 0.0
             slot, previous = 0, None
             for k, (energy, first, mult) in enumerate(groups):
-                # close levels get their labels staggered along the line, so that they never overlap
-                slot = slot + 1 if previous is not None and energy - previous < 0.04 * span else 0
+                # labels closer than a label's height go side by side along the line (up to 4 per row),
+                # so that they never overlap
+                slot = slot + 1 if previous is not None and energy - previous < close else 0
                 previous = energy
                 name = f"E{first}" if mult == 1 else f"E{first}–{first + mult - 1} (×{mult})"
                 line = self._level_line(plot, k)
                 line.setPos(energy)
+                line.setPen(_STALE_LEVEL_PEN if stale else _LEVEL_PEN)       # dotted grey: out of date
+                line.label.setColor("#6c757d" if stale else "#0b3c5d")
+                if slot >= 4:
+                    name = ""              # a fifth close level: its number is in the level diagram
                 line.label.setFormat(name)
-                line.label.setPosition(0.97 - 0.16 * (slot % 5))
+                line.label.setPosition(0.97 - 0.24 * min(slot, 3))
                 line.setVisible(True)
                 self.level_lines.append((line, plot))
         for host, pool in self._level_pool.values():

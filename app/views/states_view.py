@@ -16,6 +16,7 @@ from PySide6 import QtCore, QtGui, QtWidgets
 from core.errors import WellscapeError
 
 from . import colormaps
+from .common import StaleNote, grey_plot, stale_message
 from .common import (HintStack, axis_title, colorbar, contour_lines, density_unit, fmt, fmt_energy, image_rect, make_plot,
                      pretty_unit, set_colorbar_title, set_titles, show_message, status_label, wave_unit)
 from .isosurface import IsosurfaceWidget, Surface, level_enclosing
@@ -190,6 +191,8 @@ class StatesView(QtWidgets.QWidget):
         inner = QtWidgets.QWidget()
         il = QtWidgets.QVBoxLayout(inner)
         il.setContentsMargins(0, 0, 0, 0)
+        self.stale_note = StaleNote()
+        il.addWidget(self.stale_note)
         il.addLayout(bar)
         il.addWidget(split, 1)
         self.stack = HintStack(inner, _HINT)
@@ -200,8 +203,27 @@ class StatesView(QtWidgets.QWidget):
         session.solved.connect(self._on_solved)
         session.selection_changed.connect(self._on_selection_changed)
         session.project_changed.connect(self._on_project_changed)
+        if hasattr(session, "stale_changed"):
+            session.stale_changed.connect(self._update_stale)
         if getattr(session, "result", None) is not None:
             self._on_solved(session.result)
+
+    def _update_stale(self) -> None:
+        """Grey the states and say so when they are not of the project as it is now."""
+        shown = self._pending_result or self.result
+        text = stale_message(self.session, short=True) if shown is not None and shown is self.session.result else ""
+        self.stale_note.show_text(text)
+        stale = bool(text)
+        for plot in (self.plot1d, self.plot2d):
+            grey_plot(plot, stale)
+        self.image.setOpacity(0.45 if stale else 1.0)
+        self.curve1d.setOpacity(0.45 if stale else 1.0)
+        if stale and self.gallery_holder.graphicsEffect() is None:
+            effect = QtWidgets.QGraphicsOpacityEffect(self.gallery_holder)
+            effect.setOpacity(0.45)
+            self.gallery_holder.setGraphicsEffect(effect)
+        elif not stale and self.gallery_holder.graphicsEffect() is not None:
+            self.gallery_holder.setGraphicsEffect(None)
 
     # -- helpers -------------------------------------------------------------------------------
     @property
@@ -269,6 +291,8 @@ class StatesView(QtWidgets.QWidget):
             self._on_region_kind_changed()
         self._build_gallery()
         self._show_large()
+        if hasattr(self.session, "stale_changed"):
+            self._update_stale()
 
     def _on_selection_changed(self, _index: int = 0) -> None:
         if self.result is None or self._pending_result is not None:

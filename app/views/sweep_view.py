@@ -16,6 +16,7 @@ from PySide6 import QtCore, QtWidgets
 from core.sweep import completeness_summary
 
 from . import colormaps
+from .common import StaleNote, grey_plot, stale_message
 from .common import (HintStack, NumberBox, axis_title, fmt, fmt_energy, make_plot, set_titles, show_message,
                      status_label)
 
@@ -92,6 +93,8 @@ class SweepView(QtWidgets.QWidget):
         fan = QtWidgets.QWidget()
         fl = QtWidgets.QVBoxLayout(fan)
         fl.setContentsMargins(0, 0, 0, 0)
+        self.stale_note = StaleNote()          # the project changed since the sweep ran
+        fl.addWidget(self.stale_note)
         fl.addWidget(self.plot, 1)
         fl.addWidget(self.summary)
         self.stack = HintStack(fan, _HINT)
@@ -123,9 +126,16 @@ class SweepView(QtWidgets.QWidget):
         session.solved.connect(self._on_solved)
         if hasattr(session, "parameters_changed"):
             session.parameters_changed.connect(self._update_marker)
+        if hasattr(session, "stale_changed"):
+            session.stale_changed.connect(self._update_stale)
         self._on_project_changed()
         if getattr(session, "sweep_result", None) is not None:
             self._on_sweep_finished(session.sweep_result)
+
+    def _update_stale(self) -> None:
+        text = stale_message(self.session, "sweep") if getattr(self, "sweep", None) is not None else ""
+        self.stale_note.show_text(text)
+        grey_plot(self.plot, bool(text))
 
     @staticmethod
     def _number_box() -> QtWidgets.QDoubleSpinBox:
@@ -257,6 +267,8 @@ class SweepView(QtWidgets.QWidget):
         show_message(self.status, "")
         self._show_request(sweep)
         self._draw_fan()
+        if hasattr(self.session, "stale_changed"):
+            self._update_stale()
 
     def _show_request(self, sweep) -> None:
         """Set the form to the sweep on show (it may have been started elsewhere, e.g. from a script)."""
