@@ -191,7 +191,8 @@ def _columns(columns) -> Optional[int]:
 
 
 def _pretty_unit(unit: str) -> str:
-    return {"um": "µm", "h*kHz": "h·kHz", "h*Hz": "h·Hz", "h*kHz/um": "h·kHz/µm"}.get(unit, unit)
+    from .formatting import pretty_unit
+    return pretty_unit(unit) if unit != "1" else unit
 
 
 def _label(name: str, unit: str) -> str:

@@ -12,11 +12,16 @@ from __future__ import annotations
 import math
 
 __all__ = ["format_uncertain", "format_value", "format_measured", "format_bound", "readable_energy", "format_energy",
-           "ENERGY_SUBUNITS"]
+           "ENERGY_SUBUNITS", "UNIT_TEXT", "pretty_unit"]
 
-#: energy units with a smaller unit that reads better for small numbers (factor from the unit)
-ENERGY_SUBUNITS = {"meV": ("µeV", 1e3), "h*kHz": ("h*Hz", 1e3), "hartree": ("mhartree", 1e3),
-                   "eV": ("meV", 1e3)}
+#: how a unit is written for a reader (``um`` -> ``µm``, ``h*kHz`` -> ``h·kHz``, dimensionless ``1`` -> nothing)
+UNIT_TEXT = {"um": "µm", "h*kHz": "h·kHz", "h*Hz": "h·Hz", "h*kHz/um": "h·kHz/µm", "1": "",
+             "hartree/(e*bohr)": "hartree/(e·bohr)"}
+#: smaller units of each energy unit, in order (factor to multiply by, name as written)
+ENERGY_SUBUNITS = {"meV": ((1e3, "µeV"), (1e6, "neV")), "eV": ((1e3, "meV"), (1e6, "µeV")),
+                   "h*kHz": ((1e3, "h·Hz"), (1e6, "h·mHz")), "h*Hz": ((1e3, "h·mHz"),),
+                   "hartree": ((1e3, "mhartree"), (1e6, "µhartree"))}
+ENERGY_SUBUNITS.update({"h·kHz": ENERGY_SUBUNITS["h*kHz"], "h·Hz": ENERGY_SUBUNITS["h*Hz"]})
 
 
 def _rounded_uncertainty(u: float) -> tuple:
@@ -89,13 +94,23 @@ def format_measured(value: float, uncertainty: float, unit: str = "") -> str:
     return format_uncertain(value, uncertainty, unit)
 
 
+def pretty_unit(unit: str) -> str:
+    """A unit as a reader expects to see it (see :data:`UNIT_TEXT`)."""
+    unit = str(unit or "")
+    return UNIT_TEXT.get(unit, unit)
+
+
 def readable_energy(value: float, unit: str) -> tuple:
-    """(factor, unit) for showing energies of about ``value``: µeV below 0.1 meV, h·Hz below
-    0.1 h·kHz, otherwise the unit itself."""
-    sub = ENERGY_SUBUNITS.get(unit)
-    if sub is not None and math.isfinite(value) and 0 < abs(value) < 0.1:
-        return sub[1], sub[0]
-    return 1.0, unit
+    """(factor, unit as written) for showing energies of about ``value``: the next smaller unit while
+    the number would be below 1 (0.0387 meV -> 38.7 µeV, 2e-5 meV -> 20 neV), else the unit itself."""
+    factor, name = 1.0, pretty_unit(unit)
+    if math.isfinite(value) and value != 0.0:
+        for f, sub in ENERGY_SUBUNITS.get(unit, ()):
+            if abs(value) * factor < 1.0:
+                factor, name = f, sub
+            else:
+                break
+    return factor, name
 
 
 def format_energy(value: float, uncertainty: float, unit: str) -> str:

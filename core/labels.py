@@ -30,32 +30,18 @@ LZ_SHARP = 0.1
 #: L_z eigenvalues closer than this to integers are shown as quantum numbers
 LZ_INTEGER = 0.05
 
-# smaller units of each energy unit, for splittings (factor to multiply by, name)
-_SMALLER = {"meV": ((1e3, "µeV"), (1e6, "neV")), "eV": ((1e3, "meV"), (1e6, "µeV")),
-            "h*kHz": ((1e3, "h·Hz"), (1e6, "h·mHz")), "h*Hz": ((1e3, "h·mHz"),),
-            "hartree": ((1e3, "mhartree"), (1e6, "µhartree"))}
-_SMALLER.update({"h·kHz": _SMALLER["h*kHz"], "h·Hz": _SMALLER["h*Hz"]})     # the units as printed
-_PRETTY = {"h*kHz": "h·kHz", "h*Hz": "h·Hz", "1": ""}
-
-
 def signed_integer(v: float) -> str:
     n = int(round(v))
     return f"+{n}" if n > 0 else ("0" if n == 0 else f"−{abs(n)}")
 
 
 def splitting_text(delta: float, energy_unit: str, digits: int = 3) -> str:
-    """An energy difference with its unit, in a smaller unit when it reads better:
-    ``splitting_text(0.0387, "meV")`` -> ``"38.7 µeV"``."""
+    """An energy difference with its unit, in a smaller unit when it reads better
+    (:func:`core.formatting.readable_energy`): ``splitting_text(0.0387, "meV")`` -> ``"38.7 µeV"``."""
+    from .formatting import readable_energy
     d = float(delta)
-    unit = _PRETTY.get(energy_unit, energy_unit)
-    if np.isfinite(d) and d != 0.0:
-        for factor, name in _SMALLER.get(energy_unit, ()):
-            if abs(d) < 1.0:
-                d, unit = float(delta) * factor, name
-            else:
-                break
-    text = f"{d:.{digits}g}"
-    return f"{text} {unit}".rstrip()
+    factor, unit = readable_energy(d, energy_unit) if np.isfinite(d) else (1.0, energy_unit)
+    return f"{d * factor:.{digits}g} {unit}".rstrip()
 
 
 def mirror_axes_kept(axes: Sequence[str], magnetic_field, ndim: int) -> list:

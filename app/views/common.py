@@ -16,14 +16,12 @@ __all__ = ["pretty_unit", "axis_title", "fmt", "fmt_energy", "make_plot", "HintS
 
 AXIS_NAMES = ("x", "y", "z")
 
-_UNIT_TEXT = {"um": "µm", "h*kHz": "h·kHz", "h*Hz": "h·Hz", "h*kHz/um": "h·kHz/µm", "1": "",
-              "hartree/(e*bohr)": "hartree/(e·bohr)"}
-
 
 def pretty_unit(unit: str) -> str:
-    """A unit as a reader expects to see it (``um`` -> ``µm``, ``h*kHz`` -> ``h·kHz``, ``1`` -> none)."""
-    unit = str(unit or "")
-    return _UNIT_TEXT.get(unit, unit)
+    """A unit as a reader expects to see it (``um`` -> ``µm``, ``h*kHz`` -> ``h·kHz``, ``1`` -> none);
+    the one table is :data:`core.formatting.UNIT_TEXT`."""
+    from core.formatting import pretty_unit as _pretty
+    return _pretty(unit)
 
 
 def axis_title(name: str, unit: str) -> str:

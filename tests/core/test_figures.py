@@ -428,7 +428,7 @@ def test_fan_marks_the_anticrossing_with_its_gap(osc, tmp_path):
     (x0, y0), (x1, y1) = arrows[0].xyann, arrows[0].xy
     assert x0 == x1 == 0.0 and abs(y1 - y0) == pytest.approx(0.2)      # the arrow spans the gap exactly
     # the sweep's own words, in two short lines
-    assert any(t.get_text().replace("\n", " ") == ac["text"] == "gap 2t = 0.2 meV" for t in ax.texts)
+    assert any(t.get_text().replace("\n", " ") == ac["text"] == "gap 2t = 200 µeV" for t in ax.texts)
     fan_only = build_sheet(None, sweep=sweep)
     assert [p["kind"] for p in fan_only.panels] == ["fan"]
     data = tmp_path / "fan.sheet.json"

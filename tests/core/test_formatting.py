@@ -31,7 +31,8 @@ def test_without_an_uncertainty_six_digits():
 def test_small_energies_in_a_readable_sub_unit():
     assert readable_energy(0.0457, "meV") == (1e3, "µeV")
     assert readable_energy(2.0, "meV") == (1.0, "meV")
-    assert readable_energy(0.02, "h*kHz") == (1e3, "h*Hz")
+    assert readable_energy(0.02, "h*kHz") == (1e3, "h·Hz")
+    assert readable_energy(2e-5, "meV") == (1e6, "neV")
     assert format_energy(0.0456, 0.0004, "meV") == "45.6 ± 0.4 µeV"
-    assert format_energy_bound(3.1e-7, "meV") == "< 0.00031 µeV"
+    assert format_energy_bound(3.1e-7, "meV") == "< 0.31 neV"
     assert format_bound(2.5, "T", ">") == "> 2.5 T"
