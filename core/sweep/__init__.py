@@ -38,7 +38,7 @@ from .completeness import CompletenessCheck
 from .files import load_sweep, save_sweep
 from .points import PointData, PointSolver
 from .result import SweepResult
-from .settle import Settler
+from .settle import LEAVES_SET, Settler
 from .targets import SWEEP_PARAMETER, prepare_target, sweep_targets
 from .tracking import align_degenerate, labels_from_observables, overlap_matrices, track_levels
 
@@ -154,6 +154,10 @@ def _assemble(project, target, values, points, t0, complete, notes=(), *, solver
         if v.kind == "not settled" and v.evidence.startswith("the states do not exchange"):
             notes.append(f"levels {v.tracks[0]} & {v.tracks[1]} approach near {target} = {v.at:.4g} without "
                          f"exchanging character (not an anticrossing)")
+            continue
+        if v.kind == "not settled" and v.evidence == LEAVES_SET:
+            notes.append(f"tracks {v.tracks[0]} & {v.tracks[1]} near {target} = {v.at:.4g}: a level enters or "
+                         f"leaves the {e.shape[1]} computed levels there; ask for more states to follow it")
             continue
         approaches.append(v)
     span = float(np.ptp(values[:p])) if p else 0.0

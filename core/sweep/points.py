@@ -64,6 +64,20 @@ def _inversion_parity(grid, states, potential, rtol=1e-9):
     return np.where(val > 0.99, 1.0, np.where(val < -0.99, -1.0, 0.0))
 
 
+def _lz_labels(grid, states, lz) -> np.ndarray:
+    """L_z (units of hbar) of each state where it is a good quantum number (core.labels' rule: L_z maps
+    the state onto itself within LZ_SHARP, and <L_z> is within LZ_INTEGER of an integer), else NaN.
+    Detected from the states, not assumed: a double dot or an elongated dot gives NaN."""
+    from ..analysis import angular_momentum_z_uncertainty
+    from ..labels import LZ_INTEGER, LZ_SHARP
+    out = np.full(len(states), np.nan)
+    for i in range(len(states)):
+        n = round(float(lz[i]))
+        if abs(lz[i] - n) < LZ_INTEGER and angular_momentum_z_uncertainty(grid, states, [i]) < LZ_SHARP:
+            out[i] = n
+    return out
+
+
 def point_observables(result: StudyResult) -> dict:
     """<x>, <y>, <z>, <L_z> and the parities that exist for this potential, per orbital level.
 
@@ -76,6 +90,7 @@ def point_observables(result: StudyResult) -> dict:
     out = {name: pos[:, a] for a, name in enumerate("xyz"[: g.ndim])}
     if g.ndim >= 2:
         out["lz"] = angular_momentum_z(g, st)
+        out["lz_label"] = _lz_labels(g, st, out["lz"])
     inv = _inversion_parity(g, st, result.potential)
     if inv is not None and (g.ndim == 2 or not np.any(result.magnetic_field)):
         out["parity_inversion"] = inv

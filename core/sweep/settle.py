@@ -38,6 +38,10 @@ __all__ = ["Settler", "gap_from_mixing"]
 GAP_RTOL = 0.01
 #: refinement rounds of one anticrossing
 MAX_ROUNDS = 4
+#: the pair's states at the two ends of a close approach must span nearly the same plane: the sum of
+#: their four squared overlaps (2 for the same plane) must exceed this
+PAIR_KEPT = 1.5
+LEAVES_SET = "a level enters or leaves the computed set"
 
 
 def _mixing_of_gap(gap: float, d1: float, d2: float) -> float:
@@ -159,6 +163,11 @@ class Settler:
             return self._met(c)
         lo, hi = c.bracket
         left, right = self._pair(c, lo), self._pair(c, hi)
+        if float(_overlaps(left, right).sum()) < PAIR_KEPT:
+            # the two tracks do not span the same two states at both ends: a level entered or left the
+            # computed set in between, so this is no close approach of two levels
+            return replace(c, kind="not settled", evidence=LEAVES_SET,
+                           reason="a level enters or leaves the computed set here")
         if c.kind == "anticrossing" and c.fit:          # an interior minimum: the sampling resolved it
             return self._refine_anticrossing(c, left, right, [left, right, self._pair(c, c.index)])
         return self._bisect(c, left, right)
@@ -189,7 +198,8 @@ class Settler:
                 return replace(c, kind="crossing", at=x0, at_uncertainty=self._crossing_uncertainty(c, x0, step), gap=0.0, gap_bound=g_hi,
                                sampled_gap=min(c.sampled_gap, left.d, right.d), smallest_step=step,
                                refinements=len(samples), evidence="the states keep their character",
-                               reason="the levels pass through each other and their states do not mix",
+                               reason="the levels pass through each other and their states do not mix"
+                                      + self._lz_words(c),
                                samples=tuple(samples))
             if not self._can_solve():
                 return replace(c, kind="not settled", at=x0, at_uncertainty=step / 2, gap=g_lo,
@@ -306,6 +316,23 @@ class Settler:
                "the two-level form does not fit the sampled separations well enough")
         return replace(c, kind="not settled", gap_bound=float(ds.min()), evidence=why, **common,
                        reason="the levels come close, but the evidence does not settle the kind of approach")
+
+    def _lz_words(self, c: Anticrossing) -> str:
+        """'; L_z = -1 and +2 (conserved)' when both levels have a good L_z at both ends of the bracket."""
+        lo, hi = c.bracket
+        a, b = c.tracks
+        vals = []
+        for t in (a, b):
+            here = [self.points[p].observables.get("lz_label") for p in (lo, hi)]
+            if any(h is None for h in here):
+                return ""
+            got = {float(here[k][self.tracks[t, p]]) for k, p in enumerate((lo, hi))}
+            if len(got) != 1 or not np.isfinite(next(iter(got))):
+                return ""
+            vals.append(int(next(iter(got))))
+        if vals[0] == vals[1]:
+            return ""
+        return f"; L_z = {vals[0]:+d} and {vals[1]:+d} (a conserved angular momentum, found in the states)"
 
     def _crossing_uncertainty(self, c: Anticrossing, x0: float, step: float) -> float:
         """Interpolation error of the crossing point: linear against a quadratic through the neighbours

@@ -238,3 +238,18 @@ def test_a_point_that_does_not_converge_is_marked_and_the_sweep_goes_on(monkeypa
     assert r.converged.tolist() == [True, False, True, True]
     assert any("did not converge" in n for n in r.notes)
     assert r.to_json_dict()["converged"] == [True, False, True, True]
+
+
+def test_round_dot_crossings_name_the_conserved_angular_momentum():
+    """In a round dot in a perpendicular field L_z is conserved (Fock-Darwin, symmetric gauge about the dot's
+    centre): the crossing verdicts name the two L_z values, found from the states (core.labels' rule); in an
+    elongated dot the states are no L_z eigenstates and no L_z is named."""
+    r = run_sweep(oscillator_dot(), "magnetic_field[2]", np.linspace(0.5, 4.0, 5), states=6)
+    assert r.anticrossings and all(a.kind == "crossing" and "L_z = " in a.reason for a in r.anticrossings)
+    # where a level leaves the six computed levels and another comes in, the tracks are not a pair: a note
+    assert any("enters or leaves" in n for n in r.notes)
+    lz = r.observables["lz_label"]
+    assert np.all(np.isfinite(lz)) and np.all(lz == np.round(lz))
+    r2 = run_sweep(oscillator_dot(2.5, 3.5, points=75, half=130.0), "magnetic_field[2]", np.linspace(0.0, 3.0, 4),
+                   states=6, refine=False)
+    assert not np.isfinite(r2.observables["lz_label"][1:]).any()
