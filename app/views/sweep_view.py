@@ -96,6 +96,9 @@ class SweepView(QtWidgets.QWidget):
         self.stale_note = StaleNote()          # the project changed since the sweep ran
         fl.addWidget(self.stale_note)
         fl.addWidget(self.plot, 1)
+        from .exchange_plot import ExchangePlot
+        self.exchange = ExchangePlot()         # J against the swept value, for a two-electron sweep
+        fl.addWidget(self.exchange)
         fl.addWidget(self.summary)
         self.stack = HintStack(fan, _HINT)
         self.status = status_label()
@@ -136,6 +139,7 @@ class SweepView(QtWidgets.QWidget):
         text = stale_message(self.session, "sweep") if getattr(self, "sweep", None) is not None else ""
         self.stale_note.show_text(text)
         grey_plot(self.plot, bool(text))
+        self.exchange.set_stale(bool(text))
 
     @staticmethod
     def _number_box() -> QtWidgets.QDoubleSpinBox:
@@ -267,6 +271,7 @@ class SweepView(QtWidgets.QWidget):
         show_message(self.status, "")
         self._show_request(sweep)
         self._draw_fan()
+        self.exchange.show_sweep(sweep)
         if hasattr(self.session, "stale_changed"):
             self._update_stale()
 
