@@ -41,7 +41,6 @@ class ExchangePlot(QtWidgets.QWidget):
     def __init__(self, parent=None):
         super().__init__(parent)
         self.plot = make_plot()
-        self.plot.setMinimumHeight(170)
         item = self.plot.getPlotItem()
         item.setLogMode(x=False, y=True)
         item.setMouseEnabled(x=False, y=False)

@@ -95,10 +95,15 @@ class SweepView(QtWidgets.QWidget):
         fl.setContentsMargins(0, 0, 0, 0)
         self.stale_note = StaleNote()          # the project changed since the sweep ran
         fl.addWidget(self.stale_note)
-        fl.addWidget(self.plot, 1)
         from .exchange_plot import ExchangePlot
-        self.exchange = ExchangePlot()         # J against the swept value, for a two-electron sweep
-        fl.addWidget(self.exchange)
+        self.exchange = ExchangePlot()         # J against the swept value, beside the fan, for two electrons
+        plots = QtWidgets.QWidget()
+        plots.setMinimumHeight(260)            # a long summary below must not squash the plots
+        pl = QtWidgets.QHBoxLayout(plots)
+        pl.setContentsMargins(0, 0, 0, 0)
+        pl.addWidget(self.plot, 3)
+        pl.addWidget(self.exchange, 2)
+        fl.addWidget(plots, 1)
         fl.addWidget(self.summary)
         self.stack = HintStack(fan, _HINT)
         self.status = status_label()

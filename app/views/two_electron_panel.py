@@ -68,7 +68,7 @@ class TwoElectronPanel(QtWidgets.QWidget):
             self.plot.addItem(it)
         self.column_titles = []
         for text, x in (("S = 0", 0.5), ("S = 1 (×3)", 2.0)):
-            t = pg.TextItem(text, anchor=(0.5, 1.0), color="#1b1b1b")
+            t = pg.TextItem(text, anchor=(0.5, 0.0), color="#1b1b1b")
             self.plot.addItem(t)
             self.column_titles.append((t, x))
         self.table = QtWidgets.QTableWidget(0, 4)
@@ -157,9 +157,9 @@ class TwoElectronPanel(QtWidgets.QWidget):
         pad = 0.1 * (hi - lo) if hi > lo else max(abs(hi), 1.0) * 0.05
         vb = self.plot.getPlotItem().getViewBox()
         vb.setXRange(-0.3, 2.8, padding=0)
-        vb.setYRange(lo - pad, hi + 1.6 * pad, padding=0)
+        vb.setYRange(lo - pad, hi + 2.0 * pad, padding=0)
         for t, x in self.column_titles:
-            t.setPos(x, hi + 1.5 * pad)
+            t.setPos(x, hi + 2.0 * pad)
         set_titles(self.plot, None, axis_title("E (two electrons)", self.unit))
 
     def level_rows(self) -> list:
