@@ -126,3 +126,19 @@ def test_sweep_view_shows_points_without_a_positive_j(session, qtbot, j_sweep):
     assert view.exchange.missing.getData()[0].tolist() == [1.0, 2.0]
     note = view.exchange.note.text()
     assert "J ≤ 0 at eps = 1" in note and "no triplet at eps = 2" in note
+
+
+def test_a_slider_drag_skips_the_two_electron_step_and_the_release_computes_it(solved, qtbot):
+    session, view = solved
+    with qtbot.waitSignal(session.solved, timeout=SOLVE_TIMEOUT_MS):
+        session.set_parameter("eps", 0.5, live=True)
+    qtbot.waitUntil(lambda: not session.solving, timeout=SOLVE_TIMEOUT_MS)
+    # the live solve's result is shown: no two-electron levels, and the column says why
+    assert session.two_electron is None and "slider is released" in session.two_electron_message
+    assert "slider is released" in view.two_electron.message.text()
+    with qtbot.waitSignal(session.solved, timeout=SOLVE_TIMEOUT_MS):
+        session.set_parameter("eps", 0.5)
+    wait_idle(qtbot, session)
+    assert session.two_electron is not None and session.two_electron_is_current
+    assert session.two_electron_message == "" and view.two_electron.message.isHidden()
+    assert session.result.parameters["eps"] == 0.5
