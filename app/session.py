@@ -562,6 +562,7 @@ class Session(QObject):
         self.parameters_changed.emit()
         self.potential_changed.emit()
         self.selection_changed.emit(0)
+        self.two_electron_changed.emit()
         self.stale_changed.emit()
         if old_path != path:
             self.path_changed.emit(str(path) if path else "")

@@ -142,3 +142,10 @@ def test_a_slider_drag_skips_the_two_electron_step_and_the_release_computes_it(s
     assert session.two_electron is not None and session.two_electron_is_current
     assert session.two_electron_message == "" and view.two_electron.message.isHidden()
     assert session.result.parameters["eps"] == 0.5
+
+
+def test_opening_another_project_drops_the_two_electron_levels(solved):
+    session, view = solved
+    session.new_project()
+    assert session.two_electron is None and session.two_electron_message == ""
+    assert view.two_electron.pair is None and view.two_electron.isHidden()
