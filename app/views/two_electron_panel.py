@@ -137,6 +137,7 @@ class TwoElectronPanel(QtWidgets.QWidget):
             text = stale_message(self.session, short=True) or "Out of date — greyed until solved again"
         self.stale_note.show_text(text)
         grey_plot(self.plot, bool(text))
+        self.table.setStyleSheet("color: #6c757d;" if text else "")
         self._draw()
 
     def _draw(self) -> None:
