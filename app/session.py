@@ -198,6 +198,32 @@ class _ProjectCommand(QUndoCommand):
         self._session._apply(self.old)
 
 
+#: where the solve's worker leaves the two-electron levels in ``StudyResult.extra`` (and ``+ "_error"``)
+TWO_ELECTRON_KEY = "two_electron"
+
+
+def _add_two_electron(result, live: bool, progress, should_stop) -> None:
+    """Two-electron levels of a solved two-electron project, into ``result.extra`` (worker thread).
+
+    A failure (memory refused, no permittivity, ...) becomes a one-line message beside the orbital
+    result, which stands; cancelling cancels the solve.  Live solves during a slider drag skip it
+    (the solve when the drag ends computes it)."""
+    if live:
+        result.extra[TWO_ELECTRON_KEY + "_error"] = "two-electron levels follow when the slider is released"
+        return
+    from core.errors import Cancelled
+    from core.two_electron import two_electron_for_study
+    try:
+        result.extra[TWO_ELECTRON_KEY] = two_electron_for_study(result, progress=progress, should_stop=should_stop)
+    except Cancelled:
+        raise
+    except Exception as exc:      # noqa: BLE001 - the orbital levels stand; the window shows one line
+        if not isinstance(exc, (WellscapeError, MemoryError)):
+            import traceback
+            traceback.print_exc()
+        result.extra[TWO_ELECTRON_KEY + "_error"] = "two-electron levels: " + describe_error(exc)
+
+
 class Session(QObject):
     """Project, results, undo stack and background work of one window."""
 
@@ -223,6 +249,7 @@ class Session(QObject):
     busy_changed = Signal(bool)       # a solve or sweep started or ended
     estimated = Signal(object)        # core.estimate.Estimate of a solve that is about to run (not live ones)
     stale_changed = Signal()          # the project, the result or the sweep changed: is what is shown current?
+    two_electron_changed = Signal()   # the two-electron levels (or the message why there are none) changed
 
     def __init__(self, parent: Optional[QObject] = None, *, project: Optional[Project] = None,
                  settings: Optional[QSettings] = None, recovery_dir: Optional[Path] = None,
@@ -232,6 +259,11 @@ class Session(QObject):
         self._path: Optional[Path] = None
         self.result = None
         self.sweep_result = None
+        #: core.two_electron.TwoElectronResult of the latest result when the project has two electrons
+        self.two_electron = None
+        #: one line saying why there are no two-electron levels for the latest result ("" when there are)
+        self.two_electron_message = ""
+        self._two_electron_fingerprint = ""     # the project state the two-electron levels were solved for
         self._selected = 0
         self._degeneracy_tolerance: Optional[float] = None
         self.undo_stack = QUndoStack(self)
@@ -411,6 +443,12 @@ class Session(QObject):
         return found
 
     @property
+    def two_electron_is_current(self) -> bool:
+        """True when the two-electron levels were computed for the project state as it is now (the same
+        rule as :attr:`result_is_current`: they come with the orbital result they were built from)."""
+        return self.two_electron is not None and self._two_electron_fingerprint == self.fingerprint
+
+    @property
     def sweep_is_current(self) -> bool:
         """True when the latest sweep ran on the project as it is now (the swept quantity aside)."""
         if self.sweep_result is None:
@@ -514,6 +552,7 @@ class Session(QObject):
         self._project = project
         self.result = None
         self.sweep_result = None
+        self.two_electron, self.two_electron_message, self._two_electron_fingerprint = None, "", ""
         self._autosaved = None
         self._selected = 0
         self._force_dirty = dirty
@@ -523,6 +562,7 @@ class Session(QObject):
         self.parameters_changed.emit()
         self.potential_changed.emit()
         self.selection_changed.emit(0)
+        self.two_electron_changed.emit()
         self.stale_changed.emit()
         if old_path != path:
             self.path_changed.emit(str(path) if path else "")
@@ -739,6 +779,8 @@ class Session(QObject):
                     result.extra[name] = fn(result)
                 except Exception as exc:      # noqa: BLE001 - a label is never a reason to fail a solve
                     result.extra[name + "_error"] = describe_error(exc)
+            if project.electrons == 2:
+                _add_two_electron(result, live, progress, should_stop)
             return result
 
         job = Job(work, kind="solve", tag=(self._generation, project), notes=True)
@@ -770,12 +812,25 @@ class Session(QObject):
         self.last_solve_seconds = time.perf_counter() - self._solve_t0
         self.result = result
         self._result_mode = self._solve_mode
+        self._keep_two_electron(result)
         n = int(result.energies.size)
         if self._selected >= n:
             self._selected = n - 1
             self.selection_changed.emit(self._selected)
         self.solved.emit(result)
         self.stale_changed.emit()
+
+    def _keep_two_electron(self, result) -> None:
+        """Keep the two-electron levels the worker put beside ``result`` (with its fingerprint)."""
+        from core.provenance import result_fingerprint
+        pair = result.extra.get(TWO_ELECTRON_KEY)
+        message = result.extra.get(TWO_ELECTRON_KEY + "_error", "")
+        if pair is None and message == "" and self.two_electron is None and not self.two_electron_message:
+            return                    # a one-electron project, as before
+        self.two_electron = pair
+        self.two_electron_message = message
+        self._two_electron_fingerprint = result_fingerprint(result) if pair is not None else ""
+        self.two_electron_changed.emit()
 
     def _on_solve_failed(self, message: str) -> None:
         job = self._current_job()

@@ -182,7 +182,13 @@ class LevelsView(QtWidgets.QWidget):
         il.addWidget(self.header)
         il.addLayout(row)
         il.addLayout(checks_box)
-        il.addWidget(self.plot, 1)
+        # two electrons ("electrons": 2): their singlet and triplet levels beside the single-particle ones
+        from .two_electron_panel import TwoElectronPanel
+        self.two_electron = TwoElectronPanel(session)
+        columns = QtWidgets.QHBoxLayout()
+        columns.addWidget(self.plot, 3)
+        columns.addWidget(self.two_electron, 2)
+        il.addLayout(columns, 1)
         il.addWidget(self.info)
         self.stack = HintStack(inner, _HINT)
         lay = QtWidgets.QVBoxLayout(self)

@@ -95,7 +95,15 @@ class SweepView(QtWidgets.QWidget):
         fl.setContentsMargins(0, 0, 0, 0)
         self.stale_note = StaleNote()          # the project changed since the sweep ran
         fl.addWidget(self.stale_note)
-        fl.addWidget(self.plot, 1)
+        from .exchange_plot import ExchangePlot
+        self.exchange = ExchangePlot()         # J against the swept value, beside the fan, for two electrons
+        plots = QtWidgets.QWidget()
+        plots.setMinimumHeight(260)            # a long summary below must not squash the plots
+        pl = QtWidgets.QHBoxLayout(plots)
+        pl.setContentsMargins(0, 0, 0, 0)
+        pl.addWidget(self.plot, 3)
+        pl.addWidget(self.exchange, 2)
+        fl.addWidget(plots, 1)
         fl.addWidget(self.summary)
         self.stack = HintStack(fan, _HINT)
         self.status = status_label()
@@ -136,6 +144,7 @@ class SweepView(QtWidgets.QWidget):
         text = stale_message(self.session, "sweep") if getattr(self, "sweep", None) is not None else ""
         self.stale_note.show_text(text)
         grey_plot(self.plot, bool(text))
+        self.exchange.set_stale(bool(text))
 
     @staticmethod
     def _number_box() -> QtWidgets.QDoubleSpinBox:
@@ -267,6 +276,7 @@ class SweepView(QtWidgets.QWidget):
         show_message(self.status, "")
         self._show_request(sweep)
         self._draw_fan()
+        self.exchange.show_sweep(sweep)
         if hasattr(self.session, "stale_changed"):
             self._update_stale()
 
