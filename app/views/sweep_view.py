@@ -7,6 +7,7 @@ selects the clicked level, so the states view shows it.
 """
 from __future__ import annotations
 
+import html
 from typing import Optional
 
 import numpy as np
@@ -27,6 +28,10 @@ _HINT = ("No sweep yet. Pick a parameter and a range above, then press “Run sw
 _NO_PARAMETERS = ("This project has no named parameters, so there is nothing to sweep. Add a parameter in "
                   "the project (and use it in the potential), then come back.")
 _GAP_PEN = pg.mkPen("#111111", width=2)
+#: with more close approaches than this the fan gets marks only (their words are in the summary)
+_LABELLED_APPROACHES = 8
+#: lines of verdicts and notes under the fan; the rest is counted
+_SUMMARY_LINES = 12
 
 
 class SweepView(QtWidgets.QWidget):
@@ -342,9 +347,11 @@ class SweepView(QtWidgets.QWidget):
                 self.track_labels.append(lab)
         lines = []
         marked = set()                 # crossing marks drawn: one per point, one label per neighbourhood
+        approaches = list(getattr(sweep, "anticrossings", ()) or ())
+        many = len(approaches) > _LABELLED_APPROACHES     # then marks only: words would cover the fan
         e_span = float(np.nanmax(tracks) - np.nanmin(tracks)) if np.isfinite(tracks).any() else 1.0
         x_span = float(np.ptp(x)) if x.size else 1.0
-        for ac in getattr(sweep, "anticrossings", ()) or ():
+        for ac in approaches:
             a, b = (int(v) for v in ac.tracks)
             at = float(ac.at)
             ea = float(np.interp(at, x, tracks[a]))
@@ -368,7 +375,8 @@ class SweepView(QtWidgets.QWidget):
                 mark = pg.ScatterPlotItem([at], [(ea + eb) / 2], symbol="x", size=14,
                                           pen=pg.mkPen("#111111", width=2), brush=None)
                 items.append(mark)
-                if not any(labelled and abs(fx - px) < 0.04 and abs(fe - pe) < 0.04 for px, pe, labelled in marked):
+                if not many and not any(labelled and abs(fx - px) < 0.04 and abs(fe - pe) < 0.04
+                                        for px, pe, labelled in marked):
                     text = pg.TextItem("crossing", anchor=(-0.1, 1.0), color="#111111")
                     text.setPos(at, (ea + eb) / 2)
                     items.append(text)
@@ -378,9 +386,13 @@ class SweepView(QtWidgets.QWidget):
                                       symbolPen=pg.mkPen("#111111", width=2))
                 label = ac.gap_text(u.energy_unit) if hasattr(ac, "gap_text") else \
                     f"gap {fmt_energy(float(ac.gap), u.energy_unit, 3)}"
-                text = pg.TextItem(label, anchor=(-0.08, 0.5), color="#111111", fill=pg.mkBrush(255, 255, 255, 210))
-                text.setPos(at, (lo_e + hi_e) / 2)
-                items += [bar, text]
+                bar.setToolTip(label)
+                items.append(bar)
+                if not many:
+                    text = pg.TextItem(label, anchor=(-0.08, 0.5), color="#111111",
+                                       fill=pg.mkBrush(255, 255, 255, 210))
+                    text.setPos(at, (lo_e + hi_e) / 2)
+                    items.append(text)
             else:                               # not settled: a question mark where the verdict is open
                 text = pg.TextItem("? not settled", anchor=(-0.08, 0.5), color="#8a3b00",
                                    fill=pg.mkBrush(255, 255, 255, 210))
@@ -399,7 +411,17 @@ class SweepView(QtWidgets.QWidget):
             lines.append(f"note: {note}")
         if not getattr(sweep, "complete", True):
             head += " <b>Incomplete sweep</b> (stopped before its last value)."
-        self.summary.setText(head + ("<br>" + "<br>".join(lines) if lines else
+        # anticrossings first, then what is not settled, then crossings; a long list is cut with a count
+        # (every verdict is in the sweep's export); the words are plain text, so "<" must be escaped
+        order = {"anticrossing": 0, "not settled": 1, "crossing": 2}
+        ranked = sorted(zip(approaches, lines[:len(approaches)]),
+                        key=lambda al: order.get(getattr(al[0], "kind", ""), 3))
+        shown = [t for _, t in ranked] + lines[len(approaches):]
+        hidden = max(0, len(shown) - _SUMMARY_LINES)
+        shown = [html.escape(t) for t in shown[:_SUMMARY_LINES]]
+        if hidden:
+            shown.append(f"… and {hidden} more (wellscape sweep --json lists every verdict)")
+        self.summary.setText(head + ("<br>" + "<br>".join(shown) if shown else
                                      "<br>No close approaches of the tracked levels in this range."))
         self._update_marker()
 

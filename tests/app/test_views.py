@@ -533,7 +533,8 @@ def test_fan_draws_one_curve_per_track_and_labels_gaps(qtbot, r2):
         np.testing.assert_array_equal(curve.getData()[1], sweep.track_energies()[t])
     texts = [it.toPlainText() for it in view.gap_items if hasattr(it, "toPlainText")]
     assert texts == ["gap 2t = 600.0 ± 1.0 µeV"]          # the words of Anticrossing.gap_text
-    assert "anticrossing of levels 0 & 1 at hw = 0 ± 0.0001: gap 2t = 600.0 ± 1.0 µeV" in view.summary.text()
+    # the label is rich text, so the words are HTML-escaped ("&" as "&amp;", "<" of a bound as "&lt;")
+    assert "anticrossing of levels 0 &amp; 1 at hw = 0 ± 0.0001: gap 2t = 600.0 ± 1.0 µeV" in view.summary.text()
     assert view.plot.getPlotItem().getAxis("left").labelText == "E [meV]"
 
 
