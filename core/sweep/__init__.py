@@ -156,8 +156,9 @@ def _assemble(project, target, values, points, t0, complete, notes=(), *, solver
                          f"exchanging character (not an anticrossing)")
             continue
         if v.kind == "not settled" and v.evidence == LEAVES_SET:
-            notes.append(f"tracks {v.tracks[0]} & {v.tracks[1]} near {target} = {v.at:.4g}: a level enters or "
-                         f"leaves the {e.shape[1]} computed levels there; ask for more states to follow it")
+            notes.append(f"tracks {v.tracks[0]} & {v.tracks[1]} near {target} = {v.at:.4g} are not decided as a pair: "
+                         f"a third level takes part, or a level enters or leaves the {e.shape[1]} computed levels "
+                         f"(more states may follow it)")
             continue
         approaches.append(v)
     span = float(np.ptp(values[:p])) if p else 0.0

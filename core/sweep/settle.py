@@ -41,7 +41,7 @@ MAX_ROUNDS = 4
 #: the pair's states at the two ends of a close approach must span nearly the same plane: the sum of
 #: their four squared overlaps (2 for the same plane) must exceed this
 PAIR_KEPT = 1.5
-LEAVES_SET = "a level enters or leaves the computed set"
+LEAVES_SET = "not a pair: a third level takes part, or a level enters or leaves the computed set"
 
 
 def _mixing_of_gap(gap: float, d1: float, d2: float) -> float:
@@ -163,11 +163,14 @@ class Settler:
             return self._met(c)
         lo, hi = c.bracket
         left, right = self._pair(c, lo), self._pair(c, hi)
-        if float(_overlaps(left, right).sum()) < PAIR_KEPT:
+        # the pair must be the same two states on either side of the approach (next to it: far out in a
+        # wide window other levels may take part without changing what happens here)
+        j = int(c.index)
+        near_lo, near_hi = (max(lo, j - 1), min(hi, j + 1)) if lo < j < hi else (lo, hi)
+        if float(_overlaps(self._pair(c, near_lo), self._pair(c, near_hi)).sum()) < PAIR_KEPT:
             # the two tracks do not span the same two states at both ends: a level entered or left the
             # computed set in between, so this is no close approach of two levels
-            return replace(c, kind="not settled", evidence=LEAVES_SET,
-                           reason="a level enters or leaves the computed set here")
+            return replace(c, kind="not settled", evidence=LEAVES_SET, reason=LEAVES_SET)
         if c.kind == "anticrossing" and c.fit:          # an interior minimum: the sampling resolved it
             return self._refine_anticrossing(c, left, right, [left, right, self._pair(c, c.index)])
         return self._bisect(c, left, right)
