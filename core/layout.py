@@ -70,17 +70,8 @@ def _read_library(path: Path):
     except ImportError:
         raise InputError(f"layout {path}: reading GDSII needs the optional package gdstk "
                          f"(pip install 'wellscape[layout]')") from None
-    try:
-        size = path.stat().st_size
-    except FileNotFoundError:
-        raise InputError(f"layout {path}: no such file") from None
-    except OSError as exc:
-        raise InputError(f"layout {path}: cannot be read ({exc.strerror or exc})") from None
-    if not path.is_file():
-        raise InputError(f"layout {path}: is not a regular file")
-    if size > MAX_FILE_BYTES:
-        raise InputError(f"layout {path}: {size / 2**20:.0f} MiB is more than the {MAX_FILE_BYTES // 2**20} MiB "
-                         f"a layout may hold")
+    from .inputfiles import check_input_file
+    size = check_input_file(path, "layout", MAX_FILE_BYTES)
     try:
         with open(path, "rb") as fh:
             head = fh.read(4)

@@ -65,17 +65,8 @@ def resolve_data_path(file: str, base_dir: Optional[str], *, what: str = "points
 
 
 def _check_file(p: Path, what: str) -> str:
-    try:
-        st = p.stat()
-    except FileNotFoundError:
-        raise InputError(f"{what} {p}: no such file") from None
-    except OSError as exc:
-        raise InputError(f"{what} {p}: cannot be read ({exc.strerror or exc})") from None
-    if not p.is_file():
-        raise InputError(f"{what} {p}: is not a regular file")
-    if st.st_size > MAX_FILE_BYTES:
-        raise InputError(f"{what} {p}: {st.st_size / 2**20:.0f} MiB is more than the "
-                         f"{MAX_FILE_BYTES // 2**20} MiB a points file may hold")
+    from .inputfiles import check_input_file
+    check_input_file(p, what, MAX_FILE_BYTES)
     suffix = p.suffix.lower()
     if suffix not in POINTS_SUFFIXES:
         raise InputError(f"{what} {p}: unsupported file type {suffix or '(none)'!r}; expected one of "
