@@ -686,14 +686,17 @@ def _plain(v):
     return v
 
 
+def _material_to_json(m, permittivity) -> Any:
+    """A material as written in a project: its table name alone, or the fields given."""
+    if m.mass is None and m.g_factor is None and permittivity is None:
+        return m.name
+    return {k: _plain(v) for k, v in (("name", m.name), ("mass", m.mass), ("g_factor", m.g_factor),
+                                      ("permittivity", permittivity)) if v is not None}
+
+
 def project_to_dict(project: Project) -> dict:
     """The JSON document of ``project`` (current schema)."""
-    m = project.material
-    if m.mass is None and m.g_factor is None and m.permittivity is None:
-        material: Any = m.name
-    else:
-        material = {k: _plain(v) for k, v in (("name", m.name), ("mass", m.mass), ("g_factor", m.g_factor),
-                                              ("permittivity", m.permittivity)) if v is not None}
+    material = _material_to_json(project.material, project.material.permittivity)
     terms = []
     for t in project.potential:
         d: dict = {"kind": t.kind, "label": t.label, "enabled": t.enabled}
@@ -740,12 +743,7 @@ def project_to_dict(project: Project) -> dict:
 
 
 def _region_to_dict(reg: RegionSpec) -> dict:
-    m = reg.material
-    if m.mass is None and m.g_factor is None and reg.permittivity is None:
-        material: Any = m.name
-    else:
-        material = {k: _plain(v) for k, v in (("name", m.name), ("mass", m.mass), ("g_factor", m.g_factor),
-                                              ("permittivity", reg.permittivity)) if v is not None}
+    material = _material_to_json(reg.material, reg.permittivity)
     d = {"label": reg.label, "inside": reg.inside, "material": material}
     if reg.offset is not None:
         d["offset"] = reg.offset
