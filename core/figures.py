@@ -54,7 +54,7 @@ from .errors import InputError
 __all__ = ["Sheet", "Template", "TEMPLATES", "LAYOUTS", "DEFAULT_LAYOUT", "DEFAULT_SWEEP_LAYOUT",
            "SHEET_FORMAT", "parse_layout", "build_sheet", "sheet_figure", "render_sheet", "save_sheet",
            "load_sheet", "sheet_to_dict", "sheet_from_dict", "sheet_json_path", "project_hash",
-           "caption_lines", "FIGURE_FORMATS", "convergence_order_text"]
+           "caption_lines", "short_caption", "FIGURE_FORMATS", "convergence_order_text"]
 
 SHEET_FORMAT = "wellscape-figure-sheet"
 SHEET_FORMAT_VERSION = 1
@@ -190,8 +190,11 @@ def _columns(columns) -> Optional[int]:
     return int(columns)
 
 
+_PRETTY = {"um": "µm", "h*kHz": "h·kHz", "h*Hz": "h·Hz", "h*kHz/um": "h·kHz/µm"}
+
+
 def _pretty_unit(unit: str) -> str:
-    return {"um": "µm", "h*kHz": "h·kHz", "h*Hz": "h·Hz", "h*kHz/um": "h·kHz/µm"}.get(unit, unit)
+    return _PRETTY.get(unit, unit)
 
 
 def _label(name: str, unit: str) -> str:
@@ -349,6 +352,49 @@ def caption_lines(project, *, parameters: Optional[dict] = None, result=None, sw
     return lines
 
 
+def _sentences(caption: Sequence[str]) -> list:
+    """The sentences of the full caption record (lines after the title, split at ``".  "``)."""
+    out = []
+    for line in caption[1:]:
+        out.extend(part.strip().rstrip(".") for part in line.split(".  ") if part.strip())
+    return out
+
+
+def short_caption(caption: Sequence[str], *, with_title: bool = True) -> str:
+    """The caption drawn on a sheet, compact like a journal's: title, material, grid, scheme, fields,
+    sweep and project hash, from the full record ``caption`` (which the sheet file keeps whole)."""
+    words = {"Material": "", "Grid": "", "Kinetic scheme": "", "Fields": "", "Sweep": "", "hash": "", "Levels": ""}
+    for s in _sentences(caption):
+        head = s.split(":", 1)[0]
+        if s.startswith("Levels checked on ") and not words["Levels"]:
+            words["Levels"] = s[len("Levels checked on "):].split(" (")[0].split(":")[0]
+        elif head in words and not words[head]:
+            words[head] = s.split(":", 1)[1].strip()
+        elif "project hash" in s:
+            words["hash"] = s.rsplit("project hash", 1)[1].strip()
+    grid = re.match(r"(.*?) points on .*?, spacing (.*?), (\S+) boundaries", words["Grid"])
+    parts = []
+    if words["Material"]:
+        parts.append(words["Material"])
+    if grid:
+        parts.append(f"grid {grid.group(1)}, spacing {grid.group(2)}, {grid.group(3)} boundaries")
+    if words["Kinetic scheme"]:
+        parts.append(words["Kinetic scheme"].split(",")[0].split(";")[0] + " kinetic scheme")
+    if words["Fields"]:
+        parts.append(words["Fields"])
+    if words["Sweep"]:
+        parts.append("sweep " + words["Sweep"])
+    if words["hash"]:
+        parts.append(f"project {words['hash']} (full record in the .sheet.json)")
+    text = "; ".join(parts) + "." if parts else ""
+    if words["Levels"]:
+        text += (f" Levels checked on {words['Levels']}: {MARKS[RESOLVED]} resolved, {MARKS[NOT_RESOLVED]} "
+                 f"not resolved; bars: grid error.")
+    if with_title and caption and caption[0]:
+        text = f"{caption[0]}. {text}"
+    return text
+
+
 def _gate_caption(project, params) -> str:
     """``west, east -0.25 V; plunger 0.05 V``: gate voltages, gates at one voltage together."""
     from .potentials import gate_list
@@ -493,19 +539,32 @@ def _state_arrays(result, level: int, mode: str, three_d: str) -> tuple:
     return psi, mode, "", _power_label("ψ", L, power), note
 
 
+_CROP_TAIL = 0.0005   # |psi|^2 left outside a state panel on each side of each axis (99.9 % shown)
+
+
 def _crop_window(arrays: list, grid) -> tuple:
-    """Index ranges (i0, i1, j0, j1) holding every shown state, with a margin, as square as fits."""
+    """Index ranges (i0, i1, j0, j1) holding every shown state, with a margin, as square as fits.
+
+    Each state contributes the box that holds 99.9 % of its |psi|^2 (0.05 % cut from each side
+    of each axis's marginal distribution); the window is the union of these boxes, padded."""
     nx, ny = arrays[0].shape
-    weight = np.zeros((nx, ny))
+    lo_i, hi_i, lo_j, hi_j = nx, -1, ny, -1
     for a in arrays:
         dens = np.abs(a) ** 2 if np.any(a < 0) else np.abs(a)   # signed psi: crop on |psi|^2
-        m = float(dens.max())
-        if m > 0:
-            weight = np.maximum(weight, dens / m)
-    ii = np.nonzero(weight.max(axis=1) >= 2e-3)[0]
-    jj = np.nonzero(weight.max(axis=0) >= 2e-3)[0]
-    if ii.size == 0 or jj.size == 0:
+        total = float(dens.sum())
+        if not total > 0:
+            continue
+        for axis, (lo, hi) in ((1, (0, 0)), (0, (0, 0))):
+            cum = np.cumsum(dens.sum(axis=axis)) / total
+            first = int(np.searchsorted(cum, _CROP_TAIL))
+            last = int(np.searchsorted(cum, 1.0 - _CROP_TAIL))
+            if axis == 1:
+                lo_i, hi_i = min(lo_i, first), max(hi_i, min(last, nx - 1))
+            else:
+                lo_j, hi_j = min(lo_j, first), max(hi_j, min(last, ny - 1))
+    if hi_i < lo_i or hi_j < lo_j:
         return 0, nx, 0, ny
+    ii, jj = np.array([lo_i, hi_i]), np.array([lo_j, hi_j])
     hx, hy = grid.spacing[0], grid.spacing[1]
     cx, cy = 0.5 * (ii[0] + ii[-1]), 0.5 * (jj[0] + jj[-1])
     half = max((ii[-1] - ii[0]) * hx, (jj[-1] - jj[0]) * hy) * 0.5 * 1.15 + 2 * max(hx, hy)
@@ -838,21 +897,26 @@ def _draw_potential(fig, ax, p: dict, t: Template) -> None:
     ax.set_xlim(lo)
     ax.set_ylim(hi)
     if p["scale_bar"] > 0:
-        from mpl_toolkits.axes_grid1.anchored_artists import AnchoredSizeBar
-        from matplotlib.font_manager import FontProperties
-        bar = AnchoredSizeBar(ax.transData, p["scale_bar"], f"{_fmt_len(p['scale_bar'])} {p['length_unit']}",
-                              "lower left", pad=0.3, sep=3, color="black", frameon=True,
-                              size_vertical=(hi[1] - hi[0]) * 0.012,
-                              fontproperties=FontProperties(size=t.font_pt * 0.7))
-        bar.patch.set_alpha(0.75)
-        bar.patch.set_edgecolor("none")
-        ax.add_artist(bar)
-        ax._wellscape_scale_bar = bar  # noqa: SLF001
+        _scale_bar(ax, p["scale_bar"], p["length_unit"], hi, t)
     ax.set_xlabel(p["x_label"])
     ax.set_ylabel(p["y_label"])
     cb = fig.colorbar(im, cax=_side_axes(ax), extend="max" if float(v.max()) > vmax else "neither")
     cb.set_label(p["value_label"])
     ax._wellscape_colorbar = cb  # noqa: SLF001
+
+
+def _scale_bar(ax, length: float, unit: str, ylim, t: Template, *, dark: bool = False) -> None:
+    """A scale bar of ``length`` (data units) in the lower left corner, on a faint backing."""
+    from mpl_toolkits.axes_grid1.anchored_artists import AnchoredSizeBar
+    from matplotlib.font_manager import FontProperties
+    colour = "white" if dark else "black"
+    bar = AnchoredSizeBar(ax.transData, length, f"{_fmt_len(length)} {unit}", "lower left", pad=0.3, sep=2,
+                          color=colour, frameon=not dark, size_vertical=(ylim[1] - ylim[0]) * 0.012,
+                          fontproperties=FontProperties(size=t.font_pt * 0.7))
+    bar.patch.set_alpha(0.75)
+    bar.patch.set_edgecolor("none")
+    ax.add_artist(bar)
+    ax._wellscape_scale_bar = bar  # noqa: SLF001
 
 
 def _fit_colorbar_labels(fig, axes: list, t: Template) -> None:
@@ -925,6 +989,11 @@ def _draw_state(fig, ax, p: dict, t: Template) -> None:
     else:
         im = ax.imshow(v.T, origin="lower", extent=_extent(x, y), interpolation="none", cmap=_DENSITY_CMAP,
                        vmin=0.0, aspect="equal")
+    unit = re.search(r"\[(.*)\]", p["x_label"])
+    ext = _extent(x, y)
+    length = _nice_length(ext[1] - ext[0])
+    if unit and length > 0:
+        _scale_bar(ax, length, unit.group(1), ext[2:], t, dark=not signed)
     ax.set_xlabel(p["x_label"])
     ax.set_ylabel(p["y_label"])
     cb = fig.colorbar(im, cax=_side_axes(ax))
@@ -1020,6 +1089,14 @@ def _spread(positions: Sequence[float], heights: Sequence[float]) -> list:
     return pos
 
 
+def _energy_words(value: float, p: dict) -> str:
+    """An energy difference with its unit, in the readable sub-unit (µeV, h·Hz) for its size."""
+    from .formatting import readable_energy
+    raw = {v: k for k, v in _PRETTY.items()}.get(p["energy_unit"], p["energy_unit"])
+    factor, unit = readable_energy(value, raw)
+    return f"{value * factor:.2g} {_pretty_unit(unit)}"
+
+
 def _draw_levels_frame(fig, ax, p: dict, t: Template) -> None:
     """Axes, limits and labels of the level diagram; the levels follow once the layout is fixed."""
     e = p["energies"]
@@ -1080,14 +1157,24 @@ def _draw_levels(fig, ax, p: dict, t: Template) -> None:
         if len(c["groups"]) == 1 and n > 1:
             txt += f" (×{n})"
         elif len(c["groups"]) > 1:
-            txt += f"\nsplit {float(e[members].max() - e[members].min()):.2g}"
-            lines = 2
+            # levels the eye cannot separate but the grouping keeps apart: each named, with the splitting
+            rows = [f"{_span_text(g)}: {float(np.mean(e[g])):.{dec}f}" + (f" (×{len(g)})" if len(g) > 1 else "")
+                    for g in reversed(c["groups"])]
+            rows.append(f"split {_energy_words(float(e[members].max() - e[members].min()), p)}")
+            txt = "\n".join(rows)
+            lines = len(rows)
         pos.append(centre)
         heights.append(1.2 * label_pt * lines * per_pt)
         texts.append(txt)
     if p.get("splittings") is not None:
         _draw_verdicts(ax, p, t, clusters, (bar_x0, bar_x1), width_pt, per_pt, texts)
-    for yt, yb, txt in zip(_spread(pos, heights), pos, texts):
+    placed = _spread(pos, heights)
+    for _ in range(20):   # keep every label inside the axes' height (clear of the title and the axis label)
+        clamped = [min(max(y, ylim[0] + 0.5 * h), ylim[1] - 0.5 * h) for y, h in zip(placed, heights)]
+        if clamped == placed:
+            break
+        placed = _spread(clamped, heights)
+    for yt, yb, txt in zip(placed, pos, texts):
         a = ax.annotate(txt, xy=(bar_x1 + 0.1 * t.font_pt / width_pt, yb),
                         xytext=(bar_x1 + 0.8 * t.font_pt / width_pt, yt), va="center", ha="left",
                         fontsize=label_pt, annotation_clip=False, linespacing=1.1,
@@ -1422,7 +1509,7 @@ def _layout(fig) -> None:
 def _figure_in_context(sheet: Sheet, t: Template, columns: Optional[int]):
     from matplotlib.figure import Figure
     panels = sheet.panels
-    caption = _wrap_caption(sheet.caption, t)
+    caption = _wrap_caption([short_caption(sheet.caption, with_title=not sheet.title)], t)
     cap_h = (len(caption) * 1.3 * t.caption_pt + 0.6 * t.caption_pt) / 72.0
     title_h = (1.6 * t.suptitle_pt / 72.0) if sheet.title else 0.0
     rows, ncols, cols, cells = _arrangement(panels, t, columns)
