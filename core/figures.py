@@ -40,7 +40,6 @@ import json
 import math
 import os
 import re
-import textwrap
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Optional, Sequence, Union
@@ -860,11 +859,37 @@ def _grid_shape(n: int, t: Template, columns: Optional[int]) -> tuple:
     return best[1], best[2]
 
 
+def _text_width_pt(text: str, size: float, weight: str = "normal") -> float:
+    """Width of ``text`` set in the sheet's font at ``size`` points, measured from its glyph outlines."""
+    from matplotlib.font_manager import FontProperties
+    from matplotlib.textpath import TextPath
+    if not text:
+        return 0.0
+    ext = TextPath((0, 0), text, size=size, prop=FontProperties(weight=weight)).get_extents()
+    return float(ext.x1)
+
+
+def _wrap_measured(text: str, size: float, width_pt: float, weight: str = "normal") -> list:
+    """``text`` broken at spaces into lines no wider than ``width_pt`` (measured, not counted)."""
+    out: list = []
+    for words in (line.split(" ") for line in text.split("\n")):
+        line = ""
+        for w in words:
+            trial = f"{line} {w}" if line else w
+            if line and _text_width_pt(trial, size, weight) > width_pt:
+                out.append(line)
+                line = w
+            else:
+                line = trial
+        out.append(line)
+    return out
+
+
 def _wrap_caption(lines: Sequence[str], t: Template) -> list:
-    chars = max(40, int(t.width_in * 72 / (0.52 * t.caption_pt)) - 4)
+    width = t.width_in * 72.0 * 0.90 - 2.0   # starts 0.8 % in; margin for the rendered (hinted) text being wider
     out = []
     for line in lines:
-        out.extend(textwrap.wrap(line, chars) or [""])
+        out.extend(_wrap_measured(line, t.caption_pt, width) or [""])
     return out
 
 
@@ -903,6 +928,61 @@ def _draw_potential(fig, ax, p: dict, t: Template) -> None:
     cb = fig.colorbar(im, cax=_side_axes(ax), extend="max" if float(v.max()) > vmax else "neither")
     cb.set_label(p["value_label"])
     ax._wellscape_colorbar = cb  # noqa: SLF001
+
+
+def _keep_inside(fig, trim: list) -> bool:
+    """Add to ``trim`` (inches off the layout's left, bottom, right, top) whatever the drawn panels
+    reach past the figure's edges (the caption and sheet title excepted: they are placed outside the
+    layout).  Returns whether anything had to be trimmed."""
+    renderer = fig._get_renderer()  # noqa: SLF001
+    w, h = fig.get_size_inches()
+    boxes = [b for ax in fig.axes if ax.get_visible()
+             for b in [ax.get_tightbbox(renderer)] if b is not None and b.width > 0]
+    if not boxes:
+        return False
+    x0 = min(b.x0 for b in boxes) / fig.dpi
+    y1 = max(b.y1 for b in boxes) / fig.dpi
+    x1 = max(b.x1 for b in boxes) / fig.dpi
+    over = [max(0.0, -x0), 0.0, max(0.0, x1 - w), max(0.0, y1 - h)]
+    if max(over) <= 0.5 / fig.dpi:
+        return False
+    for i, o in enumerate(over):
+        if o > 0:
+            trim[i] += o + 1.0 / fig.dpi
+    return True
+
+
+def _clear_titles(fig, axes: list) -> bool:
+    """Raise a panel title that runs into a tick label at the top of its own axes or of its colour bar
+    (a title wider than its map reaches over the bar).  Returns whether a title moved (the layout must
+    run again)."""
+    renderer = fig._get_renderer()  # noqa: SLF001
+    moved = False
+    for ax in axes:
+        cb = getattr(ax, "_wellscape_colorbar", None)
+        if not ax.get_title():
+            continue
+        title = ax.title.get_window_extent(renderer)
+        need = 0.0
+        labels = [(ax, lab) for lab in ax.get_yticklabels()]
+        if cb is not None:
+            labels += [(cb.ax, lab) for lab in cb.ax.get_yticklabels()]
+        for owner, lab in labels:
+            ylo, yhi = sorted(owner.get_ylim())
+            if not ylo <= lab.get_position()[1] <= yhi:
+                continue                    # a tick outside the view is not drawn
+            if lab.get_text() and lab.get_visible():
+                b = lab.get_window_extent(renderer)
+                gap = 3.5 * fig.dpi / 72.0      # 3.5 pt clear: the title settles a little at the final draw
+                if b.x1 > title.x0 and b.x0 < title.x1 and b.y1 + gap > title.y0:
+                    need = max(need, b.y1 + gap - title.y0)
+        if need > 0:
+            import matplotlib
+            pad = getattr(ax, "_wellscape_title_pad", float(matplotlib.rcParams["axes.titlepad"]))
+            ax._wellscape_title_pad = pad + need * 72.0 / fig.dpi  # noqa: SLF001
+            ax.set_title(ax.get_title(), pad=ax._wellscape_title_pad)  # noqa: SLF001
+            moved = True
+    return moved
 
 
 def _scale_bar(ax, length: float, unit: str, ylim, t: Template, *, dark: bool = False) -> None:
@@ -1089,6 +1169,32 @@ def _spread(positions: Sequence[float], heights: Sequence[float]) -> list:
     return pos
 
 
+def _labels_that_fit(clusters: list, heights: list, highlight: set, room: float) -> list:
+    """Indices of the clusters that get a label: all when they fit in ``room``; otherwise those
+    holding a shown state first, then the lowest others, while the labels' heights fit."""
+    order = sorted(range(len(clusters)),
+                   key=lambda k: (not any(i in highlight for g in clusters[k]["groups"] for i in g), k))
+    keep, used = [], 0.0
+    for k in order:
+        if used + heights[k] <= 0.98 * room:
+            keep.append(k)
+            used += heights[k]
+    return sorted(keep)
+
+
+def _spread_within(pos: list, heights: list, limits) -> list:
+    """:func:`_spread`, then every label pushed inside ``limits`` (bottom, top) without overlapping."""
+    placed = _spread(pos, heights)
+    lo, hi = float(limits[0]), float(limits[1])
+    for i in range(len(placed)):        # upwards from the bottom edge
+        floor = lo + 0.5 * heights[i] if i == 0 else placed[i - 1] + 0.5 * (heights[i - 1] + heights[i])
+        placed[i] = max(placed[i], floor)
+    for i in reversed(range(len(placed))):   # downwards from the top edge
+        ceil = hi - 0.5 * heights[i] if i == len(placed) - 1 else placed[i + 1] - 0.5 * (heights[i + 1] + heights[i])
+        placed[i] = min(placed[i], ceil)
+    return placed
+
+
 def _energy_words(value: float, p: dict) -> str:
     """An energy difference with its unit, in the readable sub-unit (µeV, h·Hz) for its size."""
     from .formatting import readable_energy
@@ -1164,16 +1270,13 @@ def _draw_levels(fig, ax, p: dict, t: Template) -> None:
             txt = "\n".join(rows)
             lines = len(rows)
         pos.append(centre)
-        heights.append(1.2 * label_pt * lines * per_pt)
+        heights.append(1.4 * label_pt * lines * per_pt)
         texts.append(txt)
     if p.get("splittings") is not None:
         _draw_verdicts(ax, p, t, clusters, (bar_x0, bar_x1), width_pt, per_pt, texts)
-    placed = _spread(pos, heights)
-    for _ in range(20):   # keep every label inside the axes' height (clear of the title and the axis label)
-        clamped = [min(max(y, ylim[0] + 0.5 * h), ylim[1] - 0.5 * h) for y, h in zip(placed, heights)]
-        if clamped == placed:
-            break
-        placed = _spread(clamped, heights)
+    keep = _labels_that_fit(clusters, heights, highlight, ylim[1] - ylim[0])
+    pos, heights, texts = ([v[i] for i in keep] for v in (pos, heights, texts))
+    placed = _spread_within(pos, heights, ylim)
     for yt, yb, txt in zip(placed, pos, texts):
         a = ax.annotate(txt, xy=(bar_x1 + 0.1 * t.font_pt / width_pt, yb),
                         xytext=(bar_x1 + 0.8 * t.font_pt / width_pt, yt), va="center", ha="left",
@@ -1511,7 +1614,8 @@ def _figure_in_context(sheet: Sheet, t: Template, columns: Optional[int]):
     panels = sheet.panels
     caption = _wrap_caption([short_caption(sheet.caption, with_title=not sheet.title)], t)
     cap_h = (len(caption) * 1.3 * t.caption_pt + 0.6 * t.caption_pt) / 72.0
-    title_h = (1.6 * t.suptitle_pt / 72.0) if sheet.title else 0.0
+    title_lines = _wrap_measured(sheet.title, t.suptitle_pt, t.width_in * 72.0 * 0.9, "bold") if sheet.title else []
+    title_h = ((0.4 + 1.2 * len(title_lines)) * t.suptitle_pt / 72.0) if title_lines else 0.0
     rows, ncols, cols, cells = _arrangement(panels, t, columns)
     pad_w, pad_h = 0.05, 0.04
     if cols is None:
@@ -1522,11 +1626,14 @@ def _figure_in_context(sheet: Sheet, t: Template, columns: Optional[int]):
         height, ratios = _column_widths(cols, t, t.height_in, cap_h + title_h, est)
     fig = Figure(figsize=(t.width_in, height), dpi=100)
 
+    trim = [0.0, 0.0, 0.0, 0.0]   # inches taken off the layout's left, bottom, right, top (see _keep_inside)
+
     def set_rect(h):
-        bottom = cap_h / h
-        top = 1.0 - title_h / h
-        fig.set_layout_engine("constrained", rect=(0.0, bottom, 1.0, top - bottom), w_pad=pad_w, h_pad=pad_h,
-                              wspace=0.02, hspace=0.02)
+        bottom = (cap_h + trim[1]) / h
+        top = 1.0 - (title_h + trim[3]) / h
+        left, right = trim[0] / t.width_in, 1.0 - trim[2] / t.width_in
+        fig.set_layout_engine("constrained", rect=(left, bottom, right - left, top - bottom), w_pad=pad_w,
+                              h_pad=pad_h, wspace=0.02, hspace=0.02)
 
     set_rect(height)
     gs = fig.add_gridspec(rows, ncols, width_ratios=ratios)
@@ -1545,6 +1652,9 @@ def _figure_in_context(sheet: Sheet, t: Template, columns: Optional[int]):
             ax.tick_params(labelleft=False)
     _layout(fig)
     _fit_colorbar_labels(fig, axes, t)
+    if _clear_titles(fig, axes):
+        _layout(fig)
+        _fit_colorbar_labels(fig, axes, t)
     if cols is None and t.height_in is None:
         # second pass for a plain grid of free height: each row as tall as its tallest map needs
         height = _fit_row_heights(fig, gs, axes, cells, panels, rows, cap_h + title_h, pad_h)
@@ -1561,11 +1671,21 @@ def _figure_in_context(sheet: Sheet, t: Template, columns: Optional[int]):
         set_rect(height)
         gs.set_width_ratios(ratios)
     if sheet.title:
-        fig.text(0.5, 1.0 - 0.25 * title_h / height, sheet.title, ha="center", va="top", fontsize=t.suptitle_pt,
+        fig.text(0.5, 1.0 - 0.2 * t.suptitle_pt / 72.0 / height, "\n".join(title_lines), ha="center", va="top",
+                 fontsize=t.suptitle_pt, linespacing=1.1,
                  fontweight="bold")
     fig.text(0.008, cap_h / height - 0.2 * t.caption_pt / 72.0 / height, "\n".join(caption), ha="left", va="top",
              fontsize=t.caption_pt, color="0.2", linespacing=1.25)
     if cols is not None:
+        _layout(fig)
+        _fit_colorbar_labels(fig, axes, t)
+    for _ in range(3):
+        moved = _clear_titles(fig, axes)
+        if _keep_inside(fig, trim):
+            set_rect(fig.get_size_inches()[1])
+            moved = True
+        if not moved:
+            break
         _layout(fig)
         _fit_colorbar_labels(fig, axes, t)
     for ax, p in zip(axes, panels):
