@@ -925,8 +925,11 @@ def _draw_potential(fig, ax, p: dict, t: Template) -> None:
         _scale_bar(ax, p["scale_bar"], p["length_unit"], hi, t)
     ax.set_xlabel(p["x_label"])
     ax.set_ylabel(p["y_label"])
-    cb = fig.colorbar(im, cax=_side_axes(ax), extend="max" if float(v.max()) > vmax else "neither")
-    cb.set_label(p["value_label"])
+    capped = float(v.max()) > vmax
+    cb = fig.colorbar(im, cax=_side_axes(ax), extend="max" if capped else "neither")
+    unit = re.search(r"\[(.*)\]", p["value_label"])
+    cb.set_label(p["value_label"] + (f"\nclipped above {vmax:.3g}" + (f" {unit.group(1)}" if unit else "")
+                                     if capped else ""))
     ax._wellscape_colorbar = cb  # noqa: SLF001
 
 
@@ -956,6 +959,7 @@ def _clear_titles(fig, axes: list) -> bool:
     """Raise a panel title that runs into a tick label at the top of its own axes or of its colour bar
     (a title wider than its map reaches over the bar).  Returns whether a title moved (the layout must
     run again)."""
+    fig.draw_without_rendering()     # colour bars place their ticks (and extension arrows) when drawn
     renderer = fig._get_renderer()  # noqa: SLF001
     moved = False
     for ax in axes:
@@ -973,7 +977,7 @@ def _clear_titles(fig, axes: list) -> bool:
                 continue                    # a tick outside the view is not drawn
             if lab.get_text() and lab.get_visible():
                 b = lab.get_window_extent(renderer)
-                gap = 3.5 * fig.dpi / 72.0      # 3.5 pt clear: the title settles a little at the final draw
+                gap = 1.5 * fig.dpi / 72.0      # 1.5 pt clear
                 if b.x1 > title.x0 and b.x0 < title.x1 and b.y1 + gap > title.y0:
                     need = max(need, b.y1 + gap - title.y0)
         if need > 0:
@@ -1011,7 +1015,7 @@ def _fit_colorbar_labels(fig, axes: list, t: Template) -> None:
         size = t.font_pt
         for _ in range(8):
             need = label.get_window_extent(renderer).height
-            have = cb.ax.get_window_extent(renderer).height * 1.04
+            have = cb.ax.get_window_extent(renderer).height * 0.98   # never above the bar (titles sit there)
             if need <= have or size <= 0.72 * t.font_pt:
                 break
             size = max(0.72 * t.font_pt, size * have / need * 0.98)
@@ -1058,8 +1062,9 @@ def _draw_state(fig, ax, p: dict, t: Template) -> None:
         ax.set_xlim(p["s"][0], p["s"][-1])
         return
     x, y = p["x"], p["y"]
+    top, clipped = _percentile_top(np.abs(v))
     if signed:
-        m = float(np.abs(v).max()) or 1.0
+        m = top or 1.0
         im = ax.imshow(v.T, origin="lower", extent=_extent(x, y), interpolation="none", cmap=_SIGNED_CMAP,
                        vmin=-m, vmax=m, aspect="equal")
         if v.min() < 0 < v.max():
@@ -1068,7 +1073,7 @@ def _draw_state(fig, ax, p: dict, t: Template) -> None:
             ax.contour(x, y, masked, levels=[0.0], colors="black", linewidths=0.5 * t.line_width)
     else:
         im = ax.imshow(v.T, origin="lower", extent=_extent(x, y), interpolation="none", cmap=_DENSITY_CMAP,
-                       vmin=0.0, aspect="equal")
+                       vmin=0.0, vmax=top or None, aspect="equal")
     unit = re.search(r"\[(.*)\]", p["x_label"])
     ext = _extent(x, y)
     length = _nice_length(ext[1] - ext[0])
@@ -1076,9 +1081,30 @@ def _draw_state(fig, ax, p: dict, t: Template) -> None:
         _scale_bar(ax, length, unit.group(1), ext[2:], t, dark=not signed)
     ax.set_xlabel(p["x_label"])
     ax.set_ylabel(p["y_label"])
-    cb = fig.colorbar(im, cax=_side_axes(ax))
-    _scaled_colorbar(cb, float(np.abs(v).max()), p["value_label"])
+    cb = fig.colorbar(im, cax=_side_axes(ax), extend=("both" if signed else "max") if clipped else "neither")
+    _scaled_colorbar(cb, top, p["value_label"])
+    if clipped:
+        cb.set_label(cb.ax.yaxis.label.get_text() + f"\nclipped at the {_CLIP_PERCENTILE:g}th percentile")
     ax._wellscape_colorbar = cb  # noqa: SLF001
+
+
+_CLIP_PERCENTILE = 99.5   # colour scale of a state: up to this percentile of the panel's values ...
+_CLIP_FLOOR = 0.01        # (of the pixels above 1 % of the peak: the state, not the empty box around it)
+_CLIP_KEEP = 0.9          # ... unless that is within 10 % of the peak: then the peak (nothing clipped)
+
+
+def _percentile_top(a: np.ndarray) -> tuple:
+    """``(top, clipped)``: the top of a colour scale for the values ``a`` (>= 0), chosen from the data.
+    A few bright pixels (a sharp peak) would leave the rest of the state dark, so the scale ends at the
+    99.5th percentile of the pixels where the state is (above 1 % of its peak), and says so, when that
+    is well below the peak."""
+    peak = float(np.max(a)) if a.size else 0.0
+    if not peak > 0:
+        return peak, False
+    q = float(np.percentile(a[a >= _CLIP_FLOOR * peak], _CLIP_PERCENTILE))
+    if q >= _CLIP_KEEP * peak or q <= 0:
+        return peak, False
+    return q, True
 
 
 def _scaled_axis(axis, vmax: float, label: str) -> None:
@@ -1214,12 +1240,12 @@ def _draw_levels_frame(fig, ax, p: dict, t: Template) -> None:
     for side in ("top", "right", "bottom"):
         ax.spines[side].set_visible(False)
     ax.set_ylabel(p["y_label"])
-    xlabel = f"levels: energy [{p['energy_unit']}]"
+    # the energy unit is on the y axis once; below the diagram only the legend of a convergence check
     if p.get("splittings") is not None:
-        xlabel += f"\n{MARKS[RESOLVED]} resolved · {MARKS[NOT_RESOLVED]} not resolved"
+        xlabel = f"{MARKS[RESOLVED]} resolved · {MARKS[NOT_RESOLVED]} not resolved"
         if p.get("errors") is not None:
             xlabel += "\nbars: grid error"
-    ax.set_xlabel(xlabel, fontsize=t.font_pt * 0.75, color="0.35")
+        ax.set_xlabel(xlabel, fontsize=t.font_pt * 0.75, color="0.35")
 
 
 def _draw_levels(fig, ax, p: dict, t: Template) -> None:
@@ -1270,7 +1296,7 @@ def _draw_levels(fig, ax, p: dict, t: Template) -> None:
             txt = "\n".join(rows)
             lines = len(rows)
         pos.append(centre)
-        heights.append(1.4 * label_pt * lines * per_pt)
+        heights.append(1.3 * label_pt * lines * per_pt)
         texts.append(txt)
     if p.get("splittings") is not None:
         _draw_verdicts(ax, p, t, clusters, (bar_x0, bar_x1), width_pt, per_pt, texts)
@@ -1424,6 +1450,9 @@ def _aspect(p: dict) -> float:
     return float((x[-1] - x[0]) / (y[-1] - y[0])) if y[-1] > y[0] else 1.0
 
 
+_WIDE_MAP = 1.4   # a map this much wider than tall spans both columns of a two-column sheet
+
+
 def _arrangement(panels: Sequence[dict], t: Template, columns: Optional[int]) -> tuple:
     """(rows, column specs, [(row slice, column, x labels?, y labels?) per panel]), or rows,
     None, cells for a plain grid.
@@ -1438,6 +1467,11 @@ def _arrangement(panels: Sequence[dict], t: Template, columns: Optional[int]) ->
     n_states = sum(1 for p in panels if p["kind"] == "state")
     if columns or t.height_in is None or (n_states == 0 and n > 4):
         c, r = _grid_shape(n, t, columns)
+        if not columns and c == 2 and n > 2 and _is_map(panels[0]) and _aspect(panels[0]) >= _WIDE_MAP:
+            # a wide potential map across the whole width of a two-column sheet, the rest below it
+            cells = [(slice(0, 1), slice(0, 2), True, True)]
+            cells += [(slice(1 + i // 2, 2 + i // 2), i % 2, True, True) for i in range(n - 1)]
+            return 1 + math.ceil((n - 1) / 2), c, None, cells
         cells = [(slice(i // c, i // c + 1), i % c, True, True) for i in range(n)]
         return r, c, None, cells
     runs = []
