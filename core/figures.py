@@ -538,11 +538,12 @@ def _state_arrays(result, level: int, mode: str, three_d: str) -> tuple:
     return psi, mode, "", _power_label("ψ", L, power), note
 
 
+_CROP_ASPECT = 2.0    # the flattest window a state panel is cropped to
 _CROP_TAIL = 0.0005   # |psi|^2 left outside a state panel on each side of each axis (99.9 % shown)
 
 
 def _crop_window(arrays: list, grid) -> tuple:
-    """Index ranges (i0, i1, j0, j1) holding every shown state, with a margin, as square as fits.
+    """Index ranges (i0, i1, j0, j1) holding every shown state, with a margin, no flatter than 2 : 1.
 
     Each state contributes the box that holds 99.9 % of its |psi|^2 (0.05 % cut from each side
     of each axis's marginal distribution); the window is the union of these boxes, padded."""
@@ -566,11 +567,14 @@ def _crop_window(arrays: list, grid) -> tuple:
     ii, jj = np.array([lo_i, hi_i]), np.array([lo_j, hi_j])
     hx, hy = grid.spacing[0], grid.spacing[1]
     cx, cy = 0.5 * (ii[0] + ii[-1]), 0.5 * (jj[0] + jj[-1])
-    half = max((ii[-1] - ii[0]) * hx, (jj[-1] - jj[0]) * hy) * 0.5 * 1.15 + 2 * max(hx, hy)
-    i0 = max(0, int(math.floor(cx - half / hx)))
-    i1 = min(nx, int(math.ceil(cx + half / hx)) + 1)
-    j0 = max(0, int(math.floor(cy - half / hy)))
-    j1 = min(ny, int(math.ceil(cy + half / hy)) + 1)
+    half_x = (ii[-1] - ii[0]) * hx * 0.5 * 1.15 + 2 * max(hx, hy)
+    half_y = (jj[-1] - jj[0]) * hy * 0.5 * 1.15 + 2 * max(hx, hy)
+    # follow the density's shape, but no flatter than _CROP_ASPECT : 1 (a strip hides the state's shape)
+    half_x, half_y = max(half_x, half_y / _CROP_ASPECT), max(half_y, half_x / _CROP_ASPECT)
+    i0 = max(0, int(math.floor(cx - half_x / hx)))
+    i1 = min(nx, int(math.ceil(cx + half_x / hx)) + 1)
+    j0 = max(0, int(math.floor(cy - half_y / hy)))
+    j1 = min(ny, int(math.ceil(cy + half_y / hy)) + 1)
     return i0, i1, j0, j1
 
 
@@ -989,18 +993,45 @@ def _clear_titles(fig, axes: list) -> bool:
     return moved
 
 
-def _scale_bar(ax, length: float, unit: str, ylim, t: Template, *, dark: bool = False) -> None:
-    """A scale bar of ``length`` (data units) in the lower left corner, on a faint backing."""
+def _scale_bar_clear_of_state(fig, ax, p: dict, t: Template) -> None:
+    """Once the layout is fixed: move a state panel's scale bar to a corner where the state is faint
+    (below 5 % of its colour scale), or leave it out (the axes carry the lengths too)."""
+    bar = getattr(ax, "_wellscape_scale_bar", None)
+    if bar is None or "x" not in p:
+        return
+    renderer = fig._get_renderer()  # noqa: SLF001
+    v = np.abs(p["values"])
+    top = float(v.max()) or 1.0
+    x, y = p["x"], p["y"]
+    args = ax._wellscape_scale_bar_args  # noqa: SLF001
+    for loc in ("lower left", "lower right", "upper left", "upper right"):
+        bar.remove()
+        bar = _scale_bar(ax, *args, t, dark=ax._wellscape_scale_bar_dark, loc=loc)  # noqa: SLF001
+        box = bar.get_window_extent(renderer)
+        (x0, y0), (x1, y1) = ax.transData.inverted().transform([(box.x0, box.y0), (box.x1, box.y1)])
+        ii = (x >= x0) & (x <= x1)
+        jj = (y >= y0) & (y <= y1)
+        if not ii.any() or not jj.any() or float(v[np.ix_(ii, jj)].max()) < 0.05 * top:
+            return
+    bar.remove()
+    ax._wellscape_scale_bar = None  # noqa: SLF001
+
+
+def _scale_bar(ax, length: float, unit: str, ylim, t: Template, *, dark: bool = False, loc: str = "lower left"):
+    """A scale bar of ``length`` (data units) in a corner (``loc``), on a faint backing."""
     from mpl_toolkits.axes_grid1.anchored_artists import AnchoredSizeBar
     from matplotlib.font_manager import FontProperties
     colour = "white" if dark else "black"
-    bar = AnchoredSizeBar(ax.transData, length, f"{_fmt_len(length)} {unit}", "lower left", pad=0.3, sep=2,
+    ax._wellscape_scale_bar_args = (length, unit, ylim)  # noqa: SLF001
+    ax._wellscape_scale_bar_dark = dark  # noqa: SLF001
+    bar = AnchoredSizeBar(ax.transData, length, f"{_fmt_len(length)} {unit}", loc, pad=0.3, sep=2,
                           color=colour, frameon=not dark, size_vertical=(ylim[1] - ylim[0]) * 0.012,
                           fontproperties=FontProperties(size=t.font_pt * 0.7))
     bar.patch.set_alpha(0.75)
     bar.patch.set_edgecolor("none")
     ax.add_artist(bar)
     ax._wellscape_scale_bar = bar  # noqa: SLF001
+    return bar
 
 
 def _fit_colorbar_labels(fig, axes: list, t: Template) -> None:
@@ -1074,6 +1105,10 @@ def _draw_state(fig, ax, p: dict, t: Template) -> None:
     else:
         im = ax.imshow(v.T, origin="lower", extent=_extent(x, y), interpolation="none", cmap=_DENSITY_CMAP,
                        vmin=0.0, vmax=top or None, aspect="equal")
+    from matplotlib.ticker import MaxNLocator
+    few = 3 if t.name == "column" else 4       # a small map: few ticks, so that their labels keep apart
+    ax.xaxis.set_major_locator(MaxNLocator(nbins=few, min_n_ticks=2))
+    ax.yaxis.set_major_locator(MaxNLocator(nbins=few, min_n_ticks=2))
     unit = re.search(r"\[(.*)\]", p["x_label"])
     ext = _extent(x, y)
     length = _nice_length(ext[1] - ext[0])
@@ -1727,6 +1762,8 @@ def _figure_in_context(sheet: Sheet, t: Template, columns: Optional[int]):
             _draw_levels(fig, ax, p, t)
         elif p["kind"] == "potential":
             _label_gates(fig, ax, p, t)
+        elif p["kind"] == "state":
+            _scale_bar_clear_of_state(fig, ax, p, t)
     # the layout is final: keep it as it is when the file is written (saves a layout pass)
     fig.set_layout_engine("none")
     fig._wellscape_panels = axes  # noqa: SLF001 - handy for callers that inspect the drawing
