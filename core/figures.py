@@ -542,7 +542,7 @@ _CROP_ASPECT = 2.0    # the flattest window a state panel is cropped to
 _CROP_TAIL = 0.0005   # |psi|^2 left outside a state panel on each side of each axis (99.9 % shown)
 
 
-def _crop_window(arrays: list, grid) -> tuple:
+def _crop_window(arrays: list, grid, flattest: float = _CROP_ASPECT) -> tuple:
     """Index ranges (i0, i1, j0, j1) holding every shown state, with a margin, no flatter than 2 : 1.
 
     Each state contributes the box that holds 99.9 % of its |psi|^2 (0.05 % cut from each side
@@ -570,7 +570,7 @@ def _crop_window(arrays: list, grid) -> tuple:
     half_x = (ii[-1] - ii[0]) * hx * 0.5 * 1.15 + 2 * max(hx, hy)
     half_y = (jj[-1] - jj[0]) * hy * 0.5 * 1.15 + 2 * max(hx, hy)
     # follow the density's shape, but no flatter than _CROP_ASPECT : 1 (a strip hides the state's shape)
-    half_x, half_y = max(half_x, half_y / _CROP_ASPECT), max(half_y, half_x / _CROP_ASPECT)
+    half_x, half_y = max(half_x, half_y / flattest), max(half_y, half_x / flattest)
     i0 = max(0, int(math.floor(cx - half_x / hx)))
     i1 = min(nx, int(math.ceil(cx + half_x / hx)) + 1)
     j0 = max(0, int(math.floor(cy - half_y / hy)))
@@ -578,7 +578,8 @@ def _crop_window(arrays: list, grid) -> tuple:
     return i0, i1, j0, j1
 
 
-def _state_panels(result, levels: Sequence[int], mode: str, three_d: str, crop: bool) -> list:
+def _state_panels(result, levels: Sequence[int], mode: str, three_d: str, crop: bool,
+                  flattest: float = _CROP_ASPECT) -> list:
     from .analysis import mirror_parity, parity_label
     grid = result.grid
     u = result.units
@@ -595,7 +596,7 @@ def _state_panels(result, levels: Sequence[int], mode: str, three_d: str, crop: 
     raw = [_state_arrays(result, lv, mode, three_d) for lv in levels]
     window = None
     if grid.ndim >= 2 and crop:
-        window = _crop_window([r[0] for r in raw], grid)
+        window = _crop_window([r[0] for r in raw], grid, flattest)
     panels = []
     for lv, (vals, used, plane, vlabel, note), p in zip(levels, raw, par):
         grp = group_of.get(lv, (lv,))
@@ -797,7 +798,9 @@ def build_sheet(result=None, *, sweep=None, layout: Optional[str] = None, templa
                     raise InputError(f"layout {layout!r} asks for more states than were solved ({count})")
                 next_level = levels[-1] + 1
             shown.extend(levels)
-            panels.extend(_state_panels(result, levels, wavefunction, three_d, crop))
+            # a slide's fixed height suits square state maps; a journal sheet's height follows them
+            panels.extend(_state_panels(result, levels, wavefunction, three_d, crop,
+                                        1.0 if tpl.height_in is not None else _CROP_ASPECT))
     for i, p in enumerate(panels):
         if p is None:
             panels[i] = _levels_panel(result, shown, convergence)
