@@ -363,7 +363,11 @@ def short_caption(caption: Sequence[str], *, with_title: bool = True) -> str:
     """The caption drawn on a sheet, compact like a journal's: title, material, grid, scheme, fields,
     sweep and project hash, from the full record ``caption`` (which the sheet file keeps whole)."""
     words = {"Material": "", "Grid": "", "Kinetic scheme": "", "Fields": "", "Sweep": "", "hash": "", "Levels": ""}
+    keep = []        # sentences the sheet must show whole: panels from two project states, marks' keys
     for s in _sentences(caption):
+        if s.startswith(_CAPTION_KEEP):
+            keep.append(s)
+            continue
         head = s.split(":", 1)[0]
         if s.startswith("Levels checked on ") and not words["Levels"]:
             words["Levels"] = s[len("Levels checked on "):].split(" (")[0].split(":")[0]
@@ -389,9 +393,14 @@ def short_caption(caption: Sequence[str], *, with_title: bool = True) -> str:
     if words["Levels"]:
         text += (f" Levels checked on {words['Levels']}: {MARKS[RESOLVED]} resolved, {MARKS[NOT_RESOLVED]} "
                  f"not resolved; bars: grid error.")
+    for s in keep:
+        text += f" {s}."
     if with_title and caption and caption[0]:
         text = f"{caption[0]}. {text}"
     return text
+
+
+_CAPTION_KEEP = ("Panels from two project states", "▲")
 
 
 def _gate_caption(project, params) -> str:
