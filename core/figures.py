@@ -40,7 +40,6 @@ import json
 import math
 import os
 import re
-import textwrap
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Optional, Sequence, Union
@@ -54,7 +53,7 @@ from .errors import InputError
 __all__ = ["Sheet", "Template", "TEMPLATES", "LAYOUTS", "DEFAULT_LAYOUT", "DEFAULT_SWEEP_LAYOUT",
            "SHEET_FORMAT", "parse_layout", "build_sheet", "sheet_figure", "render_sheet", "save_sheet",
            "load_sheet", "sheet_to_dict", "sheet_from_dict", "sheet_json_path", "project_hash",
-           "caption_lines", "FIGURE_FORMATS", "convergence_order_text"]
+           "caption_lines", "short_caption", "FIGURE_FORMATS", "convergence_order_text"]
 
 SHEET_FORMAT = "wellscape-figure-sheet"
 SHEET_FORMAT_VERSION = 1
@@ -188,6 +187,8 @@ def _columns(columns) -> Optional[int]:
     if isinstance(columns, bool) or not isinstance(columns, (int, np.integer)) or not 1 <= int(columns) <= 8:
         raise InputError(f"columns: expected a whole number from 1 to 8, got {columns!r}")
     return int(columns)
+
+
 
 
 def _pretty_unit(unit: str) -> str:
@@ -340,6 +341,58 @@ def caption_lines(project, *, parameters: Optional[dict] = None, result=None, sw
     return lines
 
 
+def _sentences(caption: Sequence[str]) -> list:
+    """The sentences of the full caption record (lines after the title, split at ``".  "``)."""
+    out = []
+    for line in caption[1:]:
+        out.extend(part.strip().rstrip(".") for part in line.split(".  ") if part.strip())
+    return out
+
+
+def short_caption(caption: Sequence[str], *, with_title: bool = True) -> str:
+    """The caption drawn on a sheet, compact like a journal's: title, material, grid, scheme, fields,
+    sweep and project hash, from the full record ``caption`` (which the sheet file keeps whole)."""
+    words = {"Material": "", "Grid": "", "Kinetic scheme": "", "Fields": "", "Sweep": "", "hash": "", "Levels": ""}
+    keep = []        # sentences the sheet must show whole: panels from two project states, marks' keys
+    for s in _sentences(caption):
+        if s.startswith(_CAPTION_KEEP):
+            keep.append(s)
+            continue
+        head = s.split(":", 1)[0]
+        if s.startswith("Levels checked on ") and not words["Levels"]:
+            words["Levels"] = s[len("Levels checked on "):].split(" (")[0].split(":")[0]
+        elif head in words and not words[head]:
+            words[head] = s.split(":", 1)[1].strip()
+        elif "project hash" in s:
+            words["hash"] = s.rsplit("project hash", 1)[1].strip()
+    grid = re.match(r"(.*?) points on .*?, spacing (.*?), (\S+) boundaries", words["Grid"])
+    parts = []
+    if words["Material"]:
+        parts.append(words["Material"])
+    if grid:
+        parts.append(f"grid {grid.group(1)}, spacing {grid.group(2)}, {grid.group(3)} boundaries")
+    if words["Kinetic scheme"]:
+        parts.append(words["Kinetic scheme"].split(",")[0].split(";")[0] + " kinetic scheme")
+    if words["Fields"]:
+        parts.append(words["Fields"])
+    if words["Sweep"]:
+        parts.append("sweep " + words["Sweep"])
+    if words["hash"]:
+        parts.append(f"project {words['hash']} (full record in the .sheet.json)")
+    text = "; ".join(parts) + "." if parts else ""
+    if words["Levels"]:
+        text += (f" Levels checked on {words['Levels']}: {MARKS[RESOLVED]} resolved, {MARKS[NOT_RESOLVED]} "
+                 f"not resolved; bars: grid error.")
+    for s in keep:
+        text += f" {s}."
+    if with_title and caption and caption[0]:
+        text = f"{caption[0]}. {text}"
+    return text
+
+
+_CAPTION_KEEP = ("Panels from two project states", "▲")
+
+
 def _gate_caption(project, params) -> str:
     """``west, east -0.25 V; plunger 0.05 V``: gate voltages, gates at one voltage together."""
     from .potentials import gate_list
@@ -484,30 +537,48 @@ def _state_arrays(result, level: int, mode: str, three_d: str) -> tuple:
     return psi, mode, "", _power_label("ψ", L, power), note
 
 
-def _crop_window(arrays: list, grid) -> tuple:
-    """Index ranges (i0, i1, j0, j1) holding every shown state, with a margin, as square as fits."""
+_CROP_ASPECT = 2.0    # the flattest window a state panel is cropped to
+_CROP_TAIL = 0.0005   # |psi|^2 left outside a state panel on each side of each axis (99.9 % shown)
+
+
+def _crop_window(arrays: list, grid, flattest: float = _CROP_ASPECT) -> tuple:
+    """Index ranges (i0, i1, j0, j1) holding every shown state, with a margin, no flatter than 2 : 1.
+
+    Each state contributes the box that holds 99.9 % of its |psi|^2 (0.05 % cut from each side
+    of each axis's marginal distribution); the window is the union of these boxes, padded."""
     nx, ny = arrays[0].shape
-    weight = np.zeros((nx, ny))
+    lo_i, hi_i, lo_j, hi_j = nx, -1, ny, -1
     for a in arrays:
         dens = np.abs(a) ** 2 if np.any(a < 0) else np.abs(a)   # signed psi: crop on |psi|^2
-        m = float(dens.max())
-        if m > 0:
-            weight = np.maximum(weight, dens / m)
-    ii = np.nonzero(weight.max(axis=1) >= 2e-3)[0]
-    jj = np.nonzero(weight.max(axis=0) >= 2e-3)[0]
-    if ii.size == 0 or jj.size == 0:
+        total = float(dens.sum())
+        if not total > 0:
+            continue
+        for axis, (lo, hi) in ((1, (0, 0)), (0, (0, 0))):
+            cum = np.cumsum(dens.sum(axis=axis)) / total
+            first = int(np.searchsorted(cum, _CROP_TAIL))
+            last = int(np.searchsorted(cum, 1.0 - _CROP_TAIL))
+            if axis == 1:
+                lo_i, hi_i = min(lo_i, first), max(hi_i, min(last, nx - 1))
+            else:
+                lo_j, hi_j = min(lo_j, first), max(hi_j, min(last, ny - 1))
+    if hi_i < lo_i or hi_j < lo_j:
         return 0, nx, 0, ny
+    ii, jj = np.array([lo_i, hi_i]), np.array([lo_j, hi_j])
     hx, hy = grid.spacing[0], grid.spacing[1]
     cx, cy = 0.5 * (ii[0] + ii[-1]), 0.5 * (jj[0] + jj[-1])
-    half = max((ii[-1] - ii[0]) * hx, (jj[-1] - jj[0]) * hy) * 0.5 * 1.15 + 2 * max(hx, hy)
-    i0 = max(0, int(math.floor(cx - half / hx)))
-    i1 = min(nx, int(math.ceil(cx + half / hx)) + 1)
-    j0 = max(0, int(math.floor(cy - half / hy)))
-    j1 = min(ny, int(math.ceil(cy + half / hy)) + 1)
+    half_x = (ii[-1] - ii[0]) * hx * 0.5 * 1.15 + 2 * max(hx, hy)
+    half_y = (jj[-1] - jj[0]) * hy * 0.5 * 1.15 + 2 * max(hx, hy)
+    # follow the density's shape, but no flatter than _CROP_ASPECT : 1 (a strip hides the state's shape)
+    half_x, half_y = max(half_x, half_y / flattest), max(half_y, half_x / flattest)
+    i0 = max(0, int(math.floor(cx - half_x / hx)))
+    i1 = min(nx, int(math.ceil(cx + half_x / hx)) + 1)
+    j0 = max(0, int(math.floor(cy - half_y / hy)))
+    j1 = min(ny, int(math.ceil(cy + half_y / hy)) + 1)
     return i0, i1, j0, j1
 
 
-def _state_panels(result, levels: Sequence[int], mode: str, three_d: str, crop: bool) -> list:
+def _state_panels(result, levels: Sequence[int], mode: str, three_d: str, crop: bool,
+                  flattest: float = _CROP_ASPECT) -> list:
     from .analysis import mirror_parity, parity_label
     grid = result.grid
     u = result.units
@@ -524,7 +595,7 @@ def _state_panels(result, levels: Sequence[int], mode: str, three_d: str, crop: 
     raw = [_state_arrays(result, lv, mode, three_d) for lv in levels]
     window = None
     if grid.ndim >= 2 and crop:
-        window = _crop_window([r[0] for r in raw], grid)
+        window = _crop_window([r[0] for r in raw], grid, flattest)
     panels = []
     for lv, (vals, used, plane, vlabel, note), p in zip(levels, raw, par):
         grp = group_of.get(lv, (lv,))
@@ -760,7 +831,9 @@ def build_sheet(result=None, *, sweep=None, layout: Optional[str] = None, templa
                     raise InputError(f"layout {layout!r} asks for more states than were solved ({count})")
                 next_level = levels[-1] + 1
             shown.extend(levels)
-            panels.extend(_state_panels(result, levels, wavefunction, three_d, crop))
+            # a slide's fixed height suits square state maps; a journal sheet's height follows them
+            panels.extend(_state_panels(result, levels, wavefunction, three_d, crop,
+                                        1.0 if tpl.height_in is not None else _CROP_ASPECT))
     for i, p in enumerate(panels):
         if p is None:
             panels[i] = _levels_panel(result, shown, convergence)
@@ -834,11 +907,37 @@ def _grid_shape(n: int, t: Template, columns: Optional[int]) -> tuple:
     return best[1], best[2]
 
 
+def _text_width_pt(text: str, size: float, weight: str = "normal") -> float:
+    """Width of ``text`` set in the sheet's font at ``size`` points, measured from its glyph outlines."""
+    from matplotlib.font_manager import FontProperties
+    from matplotlib.textpath import TextPath
+    if not text:
+        return 0.0
+    ext = TextPath((0, 0), text, size=size, prop=FontProperties(weight=weight)).get_extents()
+    return float(ext.x1)
+
+
+def _wrap_measured(text: str, size: float, width_pt: float, weight: str = "normal") -> list:
+    """``text`` broken at spaces into lines no wider than ``width_pt`` (measured, not counted)."""
+    out: list = []
+    for words in (line.split(" ") for line in text.split("\n")):
+        line = ""
+        for w in words:
+            trial = f"{line} {w}" if line else w
+            if line and _text_width_pt(trial, size, weight) > width_pt:
+                out.append(line)
+                line = w
+            else:
+                line = trial
+        out.append(line)
+    return out
+
+
 def _wrap_caption(lines: Sequence[str], t: Template) -> list:
-    chars = max(40, int(t.width_in * 72 / (0.52 * t.caption_pt)) - 4)
+    width = t.width_in * 72.0 * 0.90 - 2.0   # starts 0.8 % in; margin for the rendered (hinted) text being wider
     out = []
     for line in lines:
-        out.extend(textwrap.wrap(line, chars) or [""])
+        out.extend(_wrap_measured(line, t.caption_pt, width) or [""])
     return out
 
 
@@ -871,21 +970,112 @@ def _draw_potential(fig, ax, p: dict, t: Template) -> None:
     ax.set_xlim(lo)
     ax.set_ylim(hi)
     if p["scale_bar"] > 0:
-        from mpl_toolkits.axes_grid1.anchored_artists import AnchoredSizeBar
-        from matplotlib.font_manager import FontProperties
-        bar = AnchoredSizeBar(ax.transData, p["scale_bar"], f"{_fmt_len(p['scale_bar'])} {p['length_unit']}",
-                              "lower left", pad=0.3, sep=3, color="black", frameon=True,
-                              size_vertical=(hi[1] - hi[0]) * 0.012,
-                              fontproperties=FontProperties(size=t.font_pt * 0.7))
-        bar.patch.set_alpha(0.75)
-        bar.patch.set_edgecolor("none")
-        ax.add_artist(bar)
-        ax._wellscape_scale_bar = bar  # noqa: SLF001
+        _scale_bar(ax, p["scale_bar"], p["length_unit"], hi, t)
     ax.set_xlabel(p["x_label"])
     ax.set_ylabel(p["y_label"])
-    cb = fig.colorbar(im, cax=_side_axes(ax), extend="max" if float(v.max()) > vmax else "neither")
-    cb.set_label(p["value_label"])
+    capped = float(v.max()) > vmax
+    cb = fig.colorbar(im, cax=_side_axes(ax), extend="max" if capped else "neither")
+    unit = re.search(r"\[(.*)\]", p["value_label"])
+    cb.set_label(p["value_label"] + (f"\nclipped above {vmax:.3g}" + (f" {unit.group(1)}" if unit else "")
+                                     if capped else ""))
     ax._wellscape_colorbar = cb  # noqa: SLF001
+
+
+def _keep_inside(fig, trim: list) -> bool:
+    """Add to ``trim`` (inches off the layout's left, bottom, right, top) whatever the drawn panels
+    reach past the figure's edges (the caption and sheet title excepted: they are placed outside the
+    layout).  Returns whether anything had to be trimmed."""
+    renderer = fig._get_renderer()  # noqa: SLF001
+    w, h = fig.get_size_inches()
+    boxes = [b for ax in fig.axes if ax.get_visible()
+             for b in [ax.get_tightbbox(renderer)] if b is not None and b.width > 0]
+    if not boxes:
+        return False
+    x0 = min(b.x0 for b in boxes) / fig.dpi
+    y1 = max(b.y1 for b in boxes) / fig.dpi
+    x1 = max(b.x1 for b in boxes) / fig.dpi
+    over = [max(0.0, -x0), 0.0, max(0.0, x1 - w), max(0.0, y1 - h)]
+    if max(over) <= 0.5 / fig.dpi:
+        return False
+    for i, o in enumerate(over):
+        if o > 0:
+            trim[i] += o + 1.0 / fig.dpi
+    return True
+
+
+def _clear_titles(fig, axes: list) -> bool:
+    """Raise a panel title that runs into a tick label at the top of its own axes or of its colour bar
+    (a title wider than its map reaches over the bar).  Returns whether a title moved (the layout must
+    run again)."""
+    fig.draw_without_rendering()     # colour bars place their ticks (and extension arrows) when drawn
+    renderer = fig._get_renderer()  # noqa: SLF001
+    moved = False
+    for ax in axes:
+        cb = getattr(ax, "_wellscape_colorbar", None)
+        if not ax.get_title():
+            continue
+        title = ax.title.get_window_extent(renderer)
+        need = 0.0
+        labels = [(ax, lab) for lab in ax.get_yticklabels()]
+        if cb is not None:
+            labels += [(cb.ax, lab) for lab in cb.ax.get_yticklabels()]
+        for owner, lab in labels:
+            ylo, yhi = sorted(owner.get_ylim())
+            if not ylo <= lab.get_position()[1] <= yhi:
+                continue                    # a tick outside the view is not drawn
+            if lab.get_text() and lab.get_visible():
+                b = lab.get_window_extent(renderer)
+                gap = 1.5 * fig.dpi / 72.0      # 1.5 pt clear
+                if b.x1 > title.x0 and b.x0 < title.x1 and b.y1 + gap > title.y0:
+                    need = max(need, b.y1 + gap - title.y0)
+        if need > 0:
+            import matplotlib
+            pad = getattr(ax, "_wellscape_title_pad", float(matplotlib.rcParams["axes.titlepad"]))
+            ax._wellscape_title_pad = pad + need * 72.0 / fig.dpi  # noqa: SLF001
+            ax.set_title(ax.get_title(), pad=ax._wellscape_title_pad)  # noqa: SLF001
+            moved = True
+    return moved
+
+
+def _scale_bar_clear_of_state(fig, ax, p: dict, t: Template) -> None:
+    """Once the layout is fixed: move a state panel's scale bar to a corner where the state is faint
+    (below 5 % of its colour scale), or leave it out (the axes carry the lengths too)."""
+    bar = getattr(ax, "_wellscape_scale_bar", None)
+    if bar is None or "x" not in p:
+        return
+    renderer = fig._get_renderer()  # noqa: SLF001
+    v = np.abs(p["values"])
+    top = float(v.max()) or 1.0
+    x, y = p["x"], p["y"]
+    args = ax._wellscape_scale_bar_args  # noqa: SLF001
+    for loc in ("lower left", "lower right", "upper left", "upper right"):
+        bar.remove()
+        bar = _scale_bar(ax, *args, t, dark=ax._wellscape_scale_bar_dark, loc=loc)  # noqa: SLF001
+        box = bar.get_window_extent(renderer)
+        (x0, y0), (x1, y1) = ax.transData.inverted().transform([(box.x0, box.y0), (box.x1, box.y1)])
+        ii = (x >= x0) & (x <= x1)
+        jj = (y >= y0) & (y <= y1)
+        if not ii.any() or not jj.any() or float(v[np.ix_(ii, jj)].max()) < 0.05 * top:
+            return
+    bar.remove()
+    ax._wellscape_scale_bar = None  # noqa: SLF001
+
+
+def _scale_bar(ax, length: float, unit: str, ylim, t: Template, *, dark: bool = False, loc: str = "lower left"):
+    """A scale bar of ``length`` (data units) in a corner (``loc``), on a faint backing."""
+    from mpl_toolkits.axes_grid1.anchored_artists import AnchoredSizeBar
+    from matplotlib.font_manager import FontProperties
+    colour = "white" if dark else "black"
+    ax._wellscape_scale_bar_args = (length, unit, ylim)  # noqa: SLF001
+    ax._wellscape_scale_bar_dark = dark  # noqa: SLF001
+    bar = AnchoredSizeBar(ax.transData, length, f"{_fmt_len(length)} {unit}", loc, pad=0.3, sep=2,
+                          color=colour, frameon=not dark, size_vertical=(ylim[1] - ylim[0]) * 0.012,
+                          fontproperties=FontProperties(size=t.font_pt * 0.7))
+    bar.patch.set_alpha(0.75)
+    bar.patch.set_edgecolor("none")
+    ax.add_artist(bar)
+    ax._wellscape_scale_bar = bar  # noqa: SLF001
+    return bar
 
 
 def _fit_colorbar_labels(fig, axes: list, t: Template) -> None:
@@ -900,7 +1090,7 @@ def _fit_colorbar_labels(fig, axes: list, t: Template) -> None:
         size = t.font_pt
         for _ in range(8):
             need = label.get_window_extent(renderer).height
-            have = cb.ax.get_window_extent(renderer).height * 1.04
+            have = cb.ax.get_window_extent(renderer).height * 0.98   # never above the bar (titles sit there)
             if need <= have or size <= 0.72 * t.font_pt:
                 break
             size = max(0.72 * t.font_pt, size * have / need * 0.98)
@@ -947,8 +1137,9 @@ def _draw_state(fig, ax, p: dict, t: Template) -> None:
         ax.set_xlim(p["s"][0], p["s"][-1])
         return
     x, y = p["x"], p["y"]
+    top, clipped = _percentile_top(np.abs(v))
     if signed:
-        m = float(np.abs(v).max()) or 1.0
+        m = top or 1.0
         im = ax.imshow(v.T, origin="lower", extent=_extent(x, y), interpolation="none", cmap=_SIGNED_CMAP,
                        vmin=-m, vmax=m, aspect="equal")
         if v.min() < 0 < v.max():
@@ -957,12 +1148,42 @@ def _draw_state(fig, ax, p: dict, t: Template) -> None:
             ax.contour(x, y, masked, levels=[0.0], colors="black", linewidths=0.5 * t.line_width)
     else:
         im = ax.imshow(v.T, origin="lower", extent=_extent(x, y), interpolation="none", cmap=_DENSITY_CMAP,
-                       vmin=0.0, aspect="equal")
+                       vmin=0.0, vmax=top or None, aspect="equal")
+    from matplotlib.ticker import MaxNLocator
+    few = 3 if t.name == "column" else 4       # a small map: few ticks, so that their labels keep apart
+    ax.xaxis.set_major_locator(MaxNLocator(nbins=few, min_n_ticks=2))
+    ax.yaxis.set_major_locator(MaxNLocator(nbins=few, min_n_ticks=2))
+    unit = re.search(r"\[(.*)\]", p["x_label"])
+    ext = _extent(x, y)
+    length = _nice_length(ext[1] - ext[0])
+    if unit and length > 0:
+        _scale_bar(ax, length, unit.group(1), ext[2:], t, dark=not signed)
     ax.set_xlabel(p["x_label"])
     ax.set_ylabel(p["y_label"])
-    cb = fig.colorbar(im, cax=_side_axes(ax))
-    _scaled_colorbar(cb, float(np.abs(v).max()), p["value_label"])
+    cb = fig.colorbar(im, cax=_side_axes(ax), extend=("both" if signed else "max") if clipped else "neither")
+    _scaled_colorbar(cb, top, p["value_label"])
+    if clipped:
+        cb.set_label(cb.ax.yaxis.label.get_text() + f"\nclipped at the {_CLIP_PERCENTILE:g}th percentile")
     ax._wellscape_colorbar = cb  # noqa: SLF001
+
+
+_CLIP_PERCENTILE = 99.5   # colour scale of a state: up to this percentile of the panel's values ...
+_CLIP_FLOOR = 0.01        # (of the pixels above 1 % of the peak: the state, not the empty box around it)
+_CLIP_KEEP = 0.9          # ... unless that is within 10 % of the peak: then the peak (nothing clipped)
+
+
+def _percentile_top(a: np.ndarray) -> tuple:
+    """``(top, clipped)``: the top of a colour scale for the values ``a`` (>= 0), chosen from the data.
+    A few bright pixels (a sharp peak) would leave the rest of the state dark, so the scale ends at the
+    99.5th percentile of the pixels where the state is (above 1 % of its peak), and says so, when that
+    is well below the peak."""
+    peak = float(np.max(a)) if a.size else 0.0
+    if not peak > 0:
+        return peak, False
+    q = float(np.percentile(a[a >= _CLIP_FLOOR * peak], _CLIP_PERCENTILE))
+    if q >= _CLIP_KEEP * peak or q <= 0:
+        return peak, False
+    return q, True
 
 
 def _scaled_axis(axis, vmax: float, label: str) -> None:
@@ -1053,6 +1274,39 @@ def _spread(positions: Sequence[float], heights: Sequence[float]) -> list:
     return pos
 
 
+def _labels_that_fit(clusters: list, heights: list, highlight: set, room: float) -> list:
+    """Indices of the clusters that get a label: all when they fit in ``room``; otherwise those
+    holding a shown state first, then the lowest others, while the labels' heights fit."""
+    order = sorted(range(len(clusters)),
+                   key=lambda k: (not any(i in highlight for g in clusters[k]["groups"] for i in g), k))
+    keep, used = [], 0.0
+    for k in order:
+        if used + heights[k] <= 0.98 * room:
+            keep.append(k)
+            used += heights[k]
+    return sorted(keep)
+
+
+def _spread_within(pos: list, heights: list, limits) -> list:
+    """:func:`_spread`, then every label pushed inside ``limits`` (bottom, top) without overlapping."""
+    placed = _spread(pos, heights)
+    lo, hi = float(limits[0]), float(limits[1])
+    for i in range(len(placed)):        # upwards from the bottom edge
+        floor = lo + 0.5 * heights[i] if i == 0 else placed[i - 1] + 0.5 * (heights[i - 1] + heights[i])
+        placed[i] = max(placed[i], floor)
+    for i in reversed(range(len(placed))):   # downwards from the top edge
+        ceil = hi - 0.5 * heights[i] if i == len(placed) - 1 else placed[i + 1] - 0.5 * (heights[i + 1] + heights[i])
+        placed[i] = min(placed[i], ceil)
+    return placed
+
+
+def _raw_unit(p: dict) -> str:
+    """The energy unit of a panel as the unit system names it (panels store it as written)."""
+    from .formatting import UNIT_TEXT
+    shown = p["energy_unit"]
+    return next((k for k, v in UNIT_TEXT.items() if v == shown and v), shown)
+
+
 def _draw_levels_frame(fig, ax, p: dict, t: Template) -> None:
     """Axes, limits and labels of the level diagram; the levels follow once the layout is fixed."""
     e = p["energies"]
@@ -1064,12 +1318,12 @@ def _draw_levels_frame(fig, ax, p: dict, t: Template) -> None:
     for side in ("top", "right", "bottom"):
         ax.spines[side].set_visible(False)
     ax.set_ylabel(p["y_label"])
-    xlabel = f"levels: energy [{p['energy_unit']}]"
+    # the energy unit is on the y axis once; below the diagram only the legend of a convergence check
     if p.get("splittings") is not None:
-        xlabel += f"\n{MARKS[RESOLVED]} resolved · {MARKS[NOT_RESOLVED]} not resolved"
+        xlabel = f"{MARKS[RESOLVED]} resolved · {MARKS[NOT_RESOLVED]} not resolved"
         if p.get("errors") is not None:
             xlabel += "\nbars: grid error"
-    ax.set_xlabel(xlabel, fontsize=t.font_pt * 0.75, color="0.35")
+        ax.set_xlabel(xlabel, fontsize=t.font_pt * 0.75, color="0.35")
 
 
 def _draw_levels(fig, ax, p: dict, t: Template) -> None:
@@ -1113,18 +1367,25 @@ def _draw_levels(fig, ax, p: dict, t: Template) -> None:
         if len(c["groups"]) == 1 and n > 1:
             txt += f" (×{n})"
         elif len(c["groups"]) > 1:
+            # levels the eye cannot separate but the grouping keeps apart: each named, with the splitting
             from .labels import splitting_text
-            txt += f"\nΔE = {splitting_text(float(e[members].max() - e[members].min()), p['energy_unit'], 2)}"
-            lines = 2
+            rows = [f"{_span_text(g)}: {float(np.mean(e[g])):.{dec}f}" + (f" (×{len(g)})" if len(g) > 1 else "")
+                    for g in reversed(c["groups"])]
+            rows.append(f"split {splitting_text(float(e[members].max() - e[members].min()), _raw_unit(p), 3)}")
+            txt = "\n".join(rows)
+            lines = len(rows)
         if set(members) & set(p.get("box_states", ())):
             txt += "\n▲ box state (not bound)"
             lines += 1
         pos.append(centre)
-        heights.append(1.2 * label_pt * lines * per_pt)
+        heights.append(1.3 * label_pt * lines * per_pt)
         texts.append(txt)
     if p.get("splittings") is not None:
         _draw_verdicts(ax, p, t, clusters, (bar_x0, bar_x1), width_pt, per_pt, texts)
-    for yt, yb, txt in zip(_spread(pos, heights), pos, texts):
+    keep = _labels_that_fit(clusters, heights, highlight, ylim[1] - ylim[0])
+    pos, heights, texts = ([v[i] for i in keep] for v in (pos, heights, texts))
+    placed = _spread_within(pos, heights, ylim)
+    for yt, yb, txt in zip(placed, pos, texts):
         a = ax.annotate(txt, xy=(bar_x1 + 0.1 * t.font_pt / width_pt, yb),
                         xytext=(bar_x1 + 0.8 * t.font_pt / width_pt, yt), va="center", ha="left",
                         fontsize=label_pt, annotation_clip=False, linespacing=1.1,
@@ -1271,6 +1532,9 @@ def _aspect(p: dict) -> float:
     return float((x[-1] - x[0]) / (y[-1] - y[0])) if y[-1] > y[0] else 1.0
 
 
+_WIDE_MAP = 1.4   # a map this much wider than tall spans both columns of a two-column sheet
+
+
 def _arrangement(panels: Sequence[dict], t: Template, columns: Optional[int]) -> tuple:
     """(rows, column specs, [(row slice, column, x labels?, y labels?) per panel]), or rows,
     None, cells for a plain grid.
@@ -1285,6 +1549,11 @@ def _arrangement(panels: Sequence[dict], t: Template, columns: Optional[int]) ->
     n_states = sum(1 for p in panels if p["kind"] == "state")
     if columns or t.height_in is None or (n_states == 0 and n > 4):
         c, r = _grid_shape(n, t, columns)
+        if not columns and c == 2 and n > 2 and _is_map(panels[0]) and _aspect(panels[0]) >= _WIDE_MAP:
+            # a wide potential map across the whole width of a two-column sheet, the rest below it
+            cells = [(slice(0, 1), slice(0, 2), True, True)]
+            cells += [(slice(1 + i // 2, 2 + i // 2), i % 2, True, True) for i in range(n - 1)]
+            return 1 + math.ceil((n - 1) / 2), c, None, cells
         cells = [(slice(i // c, i // c + 1), i % c, True, True) for i in range(n)]
         return r, c, None, cells
     runs = []
@@ -1459,9 +1728,10 @@ def _layout(fig) -> None:
 def _figure_in_context(sheet: Sheet, t: Template, columns: Optional[int]):
     from matplotlib.figure import Figure
     panels = sheet.panels
-    caption = _wrap_caption(sheet.caption, t)
+    caption = _wrap_caption([short_caption(sheet.caption, with_title=not sheet.title)], t)
     cap_h = (len(caption) * 1.3 * t.caption_pt + 0.6 * t.caption_pt) / 72.0
-    title_h = (1.6 * t.suptitle_pt / 72.0) if sheet.title else 0.0
+    title_lines = _wrap_measured(sheet.title, t.suptitle_pt, t.width_in * 72.0 * 0.9, "bold") if sheet.title else []
+    title_h = ((0.4 + 1.2 * len(title_lines)) * t.suptitle_pt / 72.0) if title_lines else 0.0
     rows, ncols, cols, cells = _arrangement(panels, t, columns)
     pad_w, pad_h = 0.05, 0.04
     if cols is None:
@@ -1472,11 +1742,14 @@ def _figure_in_context(sheet: Sheet, t: Template, columns: Optional[int]):
         height, ratios = _column_widths(cols, t, t.height_in, cap_h + title_h, est)
     fig = Figure(figsize=(t.width_in, height), dpi=100)
 
+    trim = [0.0, 0.0, 0.0, 0.0]   # inches taken off the layout's left, bottom, right, top (see _keep_inside)
+
     def set_rect(h):
-        bottom = cap_h / h
-        top = 1.0 - title_h / h
-        fig.set_layout_engine("constrained", rect=(0.0, bottom, 1.0, top - bottom), w_pad=pad_w, h_pad=pad_h,
-                              wspace=0.02, hspace=0.02)
+        bottom = (cap_h + trim[1]) / h
+        top = 1.0 - (title_h + trim[3]) / h
+        left, right = trim[0] / t.width_in, 1.0 - trim[2] / t.width_in
+        fig.set_layout_engine("constrained", rect=(left, bottom, right - left, top - bottom), w_pad=pad_w,
+                              h_pad=pad_h, wspace=0.02, hspace=0.02)
 
     set_rect(height)
     gs = fig.add_gridspec(rows, ncols, width_ratios=ratios)
@@ -1495,6 +1768,9 @@ def _figure_in_context(sheet: Sheet, t: Template, columns: Optional[int]):
             ax.tick_params(labelleft=False)
     _layout(fig)
     _fit_colorbar_labels(fig, axes, t)
+    if _clear_titles(fig, axes):
+        _layout(fig)
+        _fit_colorbar_labels(fig, axes, t)
     if cols is None and t.height_in is None:
         # second pass for a plain grid of free height: each row as tall as its tallest map needs
         height = _fit_row_heights(fig, gs, axes, cells, panels, rows, cap_h + title_h, pad_h)
@@ -1511,11 +1787,21 @@ def _figure_in_context(sheet: Sheet, t: Template, columns: Optional[int]):
         set_rect(height)
         gs.set_width_ratios(ratios)
     if sheet.title:
-        fig.text(0.5, 1.0 - 0.25 * title_h / height, sheet.title, ha="center", va="top", fontsize=t.suptitle_pt,
+        fig.text(0.5, 1.0 - 0.2 * t.suptitle_pt / 72.0 / height, "\n".join(title_lines), ha="center", va="top",
+                 fontsize=t.suptitle_pt, linespacing=1.1,
                  fontweight="bold")
     fig.text(0.008, cap_h / height - 0.2 * t.caption_pt / 72.0 / height, "\n".join(caption), ha="left", va="top",
              fontsize=t.caption_pt, color="0.2", linespacing=1.25)
     if cols is not None:
+        _layout(fig)
+        _fit_colorbar_labels(fig, axes, t)
+    for _ in range(3):
+        moved = _clear_titles(fig, axes)
+        if _keep_inside(fig, trim):
+            set_rect(fig.get_size_inches()[1])
+            moved = True
+        if not moved:
+            break
         _layout(fig)
         _fit_colorbar_labels(fig, axes, t)
     for ax, p in zip(axes, panels):
@@ -1523,6 +1809,8 @@ def _figure_in_context(sheet: Sheet, t: Template, columns: Optional[int]):
             _draw_levels(fig, ax, p, t)
         elif p["kind"] == "potential":
             _label_gates(fig, ax, p, t)
+        elif p["kind"] == "state":
+            _scale_bar_clear_of_state(fig, ax, p, t)
     # the layout is final: keep it as it is when the file is written (saves a layout pass)
     fig.set_layout_engine("none")
     fig._wellscape_panels = axes  # noqa: SLF001 - handy for callers that inspect the drawing

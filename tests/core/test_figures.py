@@ -215,8 +215,10 @@ def test_caption_names_units_scheme_version_and_hash(osc, sheet, fig):
     assert f"Wellscape {__version__}" in text
     assert sheet.project_hash in text and re.fullmatch(r"[0-9a-f]{12}", sheet.project_hash)
     assert "GaAs" in text and "36 × 36" in text and "idealised" in text
-    shown = "\n".join(t.get_text() for t in fig.texts)
-    assert "meV" in shown and osc.scheme in shown
+    shown = " ".join(t.get_text() for t in fig.texts).replace("\n", " ")
+    # the sheet carries the short caption; the full record (units, version, parameters) stays in the file
+    assert osc.scheme in shown and "GaAs" in shown and "36 × 36" in shown and sheet.project_hash in shown
+    assert "idealised" not in shown and "Parameters" not in shown
 
 
 def test_hash_follows_the_exact_inputs(osc):
@@ -513,3 +515,20 @@ def test_bad_verdicts_in_a_sheet_file_get_a_clear_error(fd2_checked, tmp_path, m
     path.write_text(json.dumps(doc))
     with pytest.raises(InputError, match=message):
         load_sheet(path)
+
+
+def test_short_caption_keeps_what_the_reader_needs_and_leaves_the_record_to_the_file():
+    """The sheet's caption: material, grid, scheme, fields and hash; a warning that panels come from
+    two project states, or the key of a mark, is kept whole; parameters and version stay in the file."""
+    from core.figures import short_caption
+    full = ["A dot", "Material: GaAs, m* = 0.067 m0.  Grid: 10 × 10 points on [-1, 1] × [-1, 1] nm, spacing 0.2, "
+            "0.2 nm, hard-wall boundaries.", "Kinetic scheme: fd2 (2nd-order finite differences), set in the project; "
+            "4 levels solved.  Fields: B = (0, 0, 0) T.  Parameters: a = 1.",
+            "Units: lengths in nm.  Wellscape 9.9, project hash 0123456789ab.",
+            "Panels from two project states: the fan from state aa, every other panel from state bb."]
+    text = short_caption(full)
+    assert text.startswith("A dot. GaAs, m* = 0.067 m0; grid 10 × 10, spacing 0.2, 0.2 nm, hard-wall boundaries")
+    assert "fd2 (2nd-order finite differences) kinetic scheme" in text and "B = (0, 0, 0) T" in text
+    assert "0123456789ab" in text and "Panels from two project states: the fan from state aa" in text
+    assert "Parameters" not in text and "9.9" not in text
+    assert not short_caption(full, with_title=False).startswith("A dot")
