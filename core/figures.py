@@ -1535,6 +1535,14 @@ def _aspect(p: dict) -> float:
 _WIDE_MAP = 1.4   # a map this much wider than tall spans both columns of a two-column sheet
 
 
+def _widen_last(cells: list, panels: Sequence[dict], filled: int, c: int) -> None:
+    """A plot (fan, level diagram, cut) left alone on the last row of a grid takes the whole row
+    (a narrow fan squeezed its tick labels into each other and left half the row empty)."""
+    if c > 1 and filled % c == 1 and panels[-1]["kind"] in ("fan", "levels", "cut"):
+        rows, _col, xl, yl = cells[-1]
+        cells[-1] = (rows, slice(0, c), xl, yl)
+
+
 def _arrangement(panels: Sequence[dict], t: Template, columns: Optional[int]) -> tuple:
     """(rows, column specs, [(row slice, column, x labels?, y labels?) per panel]), or rows,
     None, cells for a plain grid.
@@ -1553,8 +1561,10 @@ def _arrangement(panels: Sequence[dict], t: Template, columns: Optional[int]) ->
             # a wide potential map across the whole width of a two-column sheet, the rest below it
             cells = [(slice(0, 1), slice(0, 2), True, True)]
             cells += [(slice(1 + i // 2, 2 + i // 2), i % 2, True, True) for i in range(n - 1)]
+            _widen_last(cells, panels, n - 1, 2)
             return 1 + math.ceil((n - 1) / 2), c, None, cells
         cells = [(slice(i // c, i // c + 1), i % c, True, True) for i in range(n)]
+        _widen_last(cells, panels, n, c)
         return r, c, None, cells
     runs = []
     for p in panels:
