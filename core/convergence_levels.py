@@ -23,6 +23,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+from scipy.optimize import brentq
 
 __all__ = ["richardson", "observed_order", "LevelJudgement", "judge_level", "SIGNIFICANT",
            "CONVERGED", "CONVERGES", "NOT_MONOTONIC", "GROWING", "TWO_GRIDS", "NOT_FOUND", "FEW_GRIDS"]
@@ -71,15 +72,7 @@ def observed_order(energies, spacings, noise: float = 0.0) -> float:
         return lo
     if ratio >= f(hi):
         return float("inf")
-    for _ in range(200):
-        mid = 0.5 * (lo + hi)
-        if f(mid) < ratio:
-            lo = mid
-        else:
-            hi = mid
-        if hi - lo < 1e-10:
-            break
-    return 0.5 * (lo + hi)
+    return float(brentq(lambda p: f(p) - ratio, lo, hi, xtol=1e-10))
 
 
 @dataclass(frozen=True)

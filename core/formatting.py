@@ -12,7 +12,7 @@ from __future__ import annotations
 import math
 
 __all__ = ["format_uncertain", "format_value", "format_measured", "format_bound", "readable_energy", "format_energy",
-           "ENERGY_SUBUNITS", "UNIT_TEXT", "pretty_unit"]
+           "format_energy_bound", "ENERGY_SUBUNITS", "UNIT_TEXT", "pretty_unit"]
 
 #: how a unit is written for a reader (``um`` -> ``µm``, ``h*kHz`` -> ``h·kHz``, dimensionless ``1`` -> nothing)
 UNIT_TEXT = {"um": "µm", "h*kHz": "h·kHz", "h*Hz": "h·Hz", "h*kHz/um": "h·kHz/µm", "1": "",
@@ -124,5 +124,3 @@ def format_energy_bound(bound: float, unit: str) -> str:
     factor, shown_unit = readable_energy(bound, unit)
     return format_bound(bound * factor, shown_unit)
 
-
-__all__.append("format_energy_bound")

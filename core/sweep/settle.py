@@ -68,6 +68,7 @@ class _Pair:
     e: np.ndarray
     psi: np.ndarray
     err: np.ndarray        # Davis-Kahan bound on each state's error angle
+    point: Optional[PointData] = None   # the solve it came from (a warm start for values near it)
 
     @property
     def d(self) -> float:
@@ -87,7 +88,7 @@ def _pair_at(point: PointData, levels, dv: float) -> _Pair:
     psi = point.states[lv].reshape(2, -1) * math.sqrt(dv)
     if spin is not None:                    # spinor: orbital part times a spin label
         psi = [(psi[0], spin[lv[0]]), (psi[1], spin[lv[1]])]
-    return _Pair(point.value, np.asarray(e, dtype=float), psi, np.asarray(err))
+    return _Pair(point.value, np.asarray(e, dtype=float), psi, np.asarray(err), point)
 
 
 def _overlaps(p: _Pair, q: _Pair) -> np.ndarray:
@@ -125,7 +126,6 @@ class Settler:
         self.solve = solve
         self.should_stop = should_stop
         self.used = 0
-        self._extra_points = []
 
     # --- helpers -------------------------------------------------------------------------------
     def _pair(self, c: Anticrossing, p: int) -> _Pair:
@@ -135,14 +135,13 @@ class Settler:
     def _can_solve(self) -> bool:
         return self.solve is not None and self.used < self.budget and not (self.should_stop and self.should_stop())
 
-    def _solve_pair(self, x: float, near: _Pair, near_point: PointData) -> Optional[_Pair]:
-        """Solve at ``x`` and return the two levels that span the reference pair's subspace best."""
+    def _solve_pair(self, x: float, near: _Pair) -> Optional[_Pair]:
+        """Solve at ``x`` (warm from ``near``'s solve) and return the two levels that span ``near``'s
+        subspace best."""
         self.used += 1
-        spin = near_point.observables.get("spin")
-        start = near_point.states if spin is None else near_point.states[np.asarray(spin) > 0]
+        spin = near.point.observables.get("spin")
+        start = near.point.states if spin is None else near.point.states[np.asarray(spin) > 0]
         pt = self.solve(float(x), start)
-        self._last_point = pt
-        self._extra_points.append(pt)
         ref = near.psi if not isinstance(near.psi, list) else np.array([v for v, _ in near.psi])
         q, _ = np.linalg.qr(ref.T)
         flat = pt.states.reshape(pt.energies.size, -1) * math.sqrt(self.dv)
@@ -185,7 +184,6 @@ class Settler:
 
     def _bisect(self, c: Anticrossing, left: _Pair, right: _Pair) -> Anticrossing:
         samples = []
-        near_point = {id(left): self.points[c.bracket[0]], id(right): self.points[c.bracket[1]]}
         while True:
             g_lo, g_mid, g_hi = _gap_interval(left, right)
             # crossing point: where the linearly interpolated separation changes sign
@@ -195,8 +193,7 @@ class Settler:
                 s = (math.sqrt(max(left.d**2 - g_mid**2, 0)) + math.sqrt(max(right.d**2 - g_mid**2, 0))) / step
                 xc = left.x + math.sqrt(max(left.d**2 - g_mid**2, 0)) / max(s, 1e-300)
                 c2 = replace(c, fit={"centre": xc, "gap": g_mid, "slope": s, "from": "mixing"}, at=xc, gap=g_mid)
-                return self._refine_anticrossing(c2, left, right, [left, right], extra=samples,
-                                                 near={**near_point})
+                return self._refine_anticrossing(c2, left, right, [left, right], extra=samples)
             if g_hi <= self.resolution:
                 return replace(c, kind="crossing", at=x0, at_uncertainty=self._crossing_uncertainty(c, x0, step), gap=0.0, gap_bound=g_hi,
                                sampled_gap=min(c.sampled_gap, left.d, right.d), smallest_step=step,
@@ -211,7 +208,7 @@ class Settler:
                                reason="the mixing of the states does not yet decide between a crossing and an "
                                       "anticrossing", samples=tuple(samples))
             nearer = left if abs(x0 - left.x) <= abs(right.x - x0) else right
-            new = self._solve_pair(x0, nearer, near_point[id(nearer)])
+            new = self._solve_pair(x0, nearer)
             if new is None:
                 return replace(c, kind="not settled", at=x0, at_uncertainty=step / 2, gap=g_lo, gap_bound=g_hi,
                                evidence="a third level takes part", refinements=len(samples) + 1,
@@ -226,14 +223,13 @@ class Settler:
             # which side is the new value on? the lower state keeps the left's character on its side
             o = _overlaps(left, new)
             on_left = o[0, 0] + o[1, 1] >= o[0, 1] + o[1, 0]
-            near_point[id(new)] = self._last_point
             if on_left:
                 left = new
             else:
                 right = new
 
     def _refine_anticrossing(self, c: Anticrossing, left: _Pair, right: _Pair, pairs: list, *,
-                             extra=(), near=None) -> Anticrossing:
+                             extra=()) -> Anticrossing:
         samples = list(extra)
         fit = dict(c.fit)
         x0, s, gap = float(fit.get("centre", c.at)), float(abs(fit.get("slope", 0.0))), float(fit.get("gap", c.gap))
@@ -251,8 +247,7 @@ class Settler:
                 if min(abs(x - xx) for xx in pts) < 0.25 * w or not self._can_solve():
                     continue
                 ref = min(pts.values(), key=lambda p: abs(p.x - x))
-                point = self._nearest_point(ref.x)
-                new = self._solve_pair(x, ref, point)
+                new = self._solve_pair(x, ref)
                 if new is None:
                     continue
                 pts[new.x] = new
@@ -356,9 +351,3 @@ class Settler:
         r = roots[np.argmin(np.abs(roots))]
         return float(min(max(abs(r), 1e-9 * step), step / 2))
 
-    # the solver callback stores the PointData of its last solve here
-    _last_point: Optional[PointData] = None
-
-    def _nearest_point(self, x: float) -> PointData:
-        cands = list(self.points) + self._extra_points
-        return min(cands, key=lambda p: abs(p.value - x))
