@@ -28,7 +28,6 @@ import subprocess
 import sys
 import threading
 from pathlib import Path
-from typing import Optional
 
 from PySide6.QtCore import QObject, Signal
 
@@ -125,7 +124,7 @@ class NumberChecks(QObject):
     changed = Signal()                    # what applies to the current project or result changed
     running_changed = Signal()            # a check started or its thread ended
 
-    def __init__(self, session, parent: Optional[QObject] = None):
+    def __init__(self, session, parent: QObject | None = None):
         super().__init__(parent if parent is not None else session)
         self.session = session
         #: automatic count after a (non-live) solve when the factorisation should take at most this
@@ -174,7 +173,7 @@ class NumberChecks(QObject):
         counted, cert, _limit = self._certificate
         return cert if counted is result else None
 
-    def skipped_as_too_long(self, result=None) -> Optional[float]:
+    def skipped_as_too_long(self, result=None) -> float | None:
         """The estimated seconds of a count that the automatic check after a solve skipped because it
         would take longer than :attr:`auto_count_seconds` (None if it was not skipped for that)."""
         cert = self.certificate_for(result)
@@ -183,7 +182,7 @@ class NumberChecks(QObject):
         limit = self._certificate[2]
         return float(cert.estimate.seconds) if limit is not None and cert.estimate.seconds > limit else None
 
-    def running(self, kind: Optional[str] = None) -> bool:
+    def running(self, kind: str | None = None) -> bool:
         if kind is None:
             return any(j is not None for j in self._jobs.values())
         return self._jobs.get(kind) is not None
@@ -208,7 +207,7 @@ class NumberChecks(QObject):
         return True
 
     # ------------------------------------------------------------------ level counts
-    def verify_count(self, result=None, *, max_seconds: Optional[float] = None) -> bool:
+    def verify_count(self, result=None, *, max_seconds: float | None = None) -> bool:
         """Count the levels below the top of ``result`` (default: the session's latest) independently.
 
         ``max_seconds`` refuses (with a "not certified" certificate, no error) a factorisation
@@ -275,7 +274,7 @@ class NumberChecks(QObject):
         self.started.emit(kind)
         self.running_changed.emit()
 
-    def _sender_job(self) -> Optional[Job]:
+    def _sender_job(self) -> Job | None:
         job = self.sender()
         return job if isinstance(job, Job) else None
 
@@ -325,7 +324,7 @@ class NumberChecks(QObject):
             if result is self.session.result:
                 self.verify_count(result, max_seconds=max_seconds)
 
-    def cancel(self, kind: Optional[str] = None) -> None:
+    def cancel(self, kind: str | None = None) -> None:
         """Stop the running check(s)."""
         if kind in (None, COUNT):
             self._pending_count = None

@@ -11,8 +11,8 @@ import argparse
 import json
 import sys
 import time
+from collections.abc import Sequence
 from pathlib import Path
-from typing import Optional, Sequence
 
 import numpy as np
 
@@ -25,7 +25,7 @@ EXIT_USER_ERROR = 2
 class _Progress:
     """A one-line progress bar on a terminal; silent when stderr is not a terminal."""
 
-    def __init__(self, label: str, enabled: Optional[bool] = None):
+    def __init__(self, label: str, enabled: bool | None = None):
         self.label = label
         self.enabled = sys.stderr.isatty() if enabled is None else enabled
         self.t0 = time.perf_counter()
@@ -114,10 +114,10 @@ def _jsonable(obj):
 # --- commands ----------------------------------------------------------------------------------
 
 def cmd_solve(args) -> int:
+    from core import __version__
     from core.project import project_to_dict
     from core.report import format_level_table, level_rows, levels_csv
     from core.study import solve_project
-    from core import __version__
 
     project, overrides = _apply_sets(_load(args.project), args.set)
     bar = _Progress("solving", enabled=None if not args.json else False)
@@ -233,12 +233,11 @@ def cmd_potential(args) -> int:
 
 def cmd_check(args) -> int:
     from core.eigensolve import solver_memory_bytes
+    from core.estimate import estimate_solve
     from core.potentials import evaluate_potential
     from core.resources import available_memory_bytes, format_bytes
     from core.study import project_scheme
     from core.units import get_units
-
-    from core.estimate import estimate_solve
 
     project = _load(args.project)
     g = project.grid
@@ -338,7 +337,7 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
-def main(argv: Optional[Sequence[str]] = None) -> int:
+def main(argv: Sequence[str] | None = None) -> int:
     from core.errors import WellscapeError
 
     parser = build_parser()

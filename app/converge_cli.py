@@ -63,7 +63,7 @@ def format_report(report, *, marks=None, title: str = "", certificate=None, timi
 
 
 def cmd_converge(args) -> int:
-    from app.cli import _UsageError, _apply_sets, _jsonable, _load, _Progress
+    from app.cli import _apply_sets, _jsonable, _load, _Progress, _UsageError
     from core.convergence import convergence_study
     from core.estimate import estimate_convergence
 

@@ -12,8 +12,8 @@ from __future__ import annotations
 import argparse
 import math
 import sys
+from collections.abc import Sequence
 from pathlib import Path
-from typing import Optional, Sequence
 
 _LAYOUT_HELP = ("panels joined by '+': potential, cut, levels, fan, statesN (N states); e.g. "
                 "potential+states4+levels (the default), potential+states2+fan (the default with --sweep), "
@@ -61,7 +61,7 @@ def _fail(message: str):
     raise InputError(message)
 
 
-def _parse_states(text: Optional[str]) -> Optional[list]:
+def _parse_states(text: str | None) -> list | None:
     if text is None:
         return None
     out = []
@@ -92,7 +92,7 @@ def _parse_dpi(text: str) -> float:
     return dpi
 
 
-def _parse_columns(text: Optional[str]) -> Optional[int]:
+def _parse_columns(text: str | None) -> int | None:
     if text is None:
         return None
     if not text.strip().isdigit() or not 1 <= int(text) <= 8:
@@ -133,7 +133,7 @@ def _describe(out: Path) -> str:
 
 
 def cmd_figure(args) -> int:
-    from core.figures import build_sheet, load_sheet, parse_layout, save_sheet, TEMPLATES
+    from core.figures import TEMPLATES, build_sheet, load_sheet, parse_layout, save_sheet
 
     out = _check_output(args.output)
     dpi = _parse_dpi(args.dpi)
@@ -173,7 +173,7 @@ def cmd_figure(args) -> int:
 
     if not args.project:
         _fail("give a PROJECT file to draw, or --from SHEET.json to redraw a sheet")
-    from app.cli import _Progress, _apply_sets, _load
+    from app.cli import _apply_sets, _load, _Progress
 
     project, overrides = _apply_sets(_load(args.project), args.set)
     states = _parse_states(args.states)
@@ -224,7 +224,7 @@ def cmd_figure(args) -> int:
     return 0
 
 
-def _report(fig_path: Path, data_path: Optional[Path], dpi: float, sheet) -> None:
+def _report(fig_path: Path, data_path: Path | None, dpi: float, sheet) -> None:
     size = _describe(fig_path)
     panels = ", ".join(p["kind"] for p in sheet.panels)
     line = f"wrote {fig_path} ({size}; {len(sheet.panels)} panels: {panels}; project hash {sheet.project_hash})"
@@ -233,7 +233,7 @@ def _report(fig_path: Path, data_path: Optional[Path], dpi: float, sheet) -> Non
         print(f"wrote {data_path} (the plotted values; redraw with: wellscape figure --from {data_path} -o FILE)")
 
 
-def main(argv: Optional[Sequence[str]] = None) -> int:
+def main(argv: Sequence[str] | None = None) -> int:
     """Run ``figure`` on its own (the same handling of errors as ``wellscape``)."""
     from core.errors import WellscapeError
     try:

@@ -8,14 +8,28 @@ from __future__ import annotations
 
 import sys
 import traceback
+from collections.abc import Callable
 from pathlib import Path
-from typing import Callable, Optional
 
 from PySide6.QtCore import QElapsedTimer, Qt, QTimer
 from PySide6.QtGui import QAction, QKeySequence
-from PySide6.QtWidgets import (QApplication, QDialog, QFileDialog, QFrame, QHBoxLayout, QLabel, QMainWindow,
-                               QMessageBox, QProgressBar, QPushButton, QSplitter, QTabWidget, QTextBrowser,
-                               QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (
+    QApplication,
+    QDialog,
+    QFileDialog,
+    QFrame,
+    QHBoxLayout,
+    QLabel,
+    QMainWindow,
+    QMessageBox,
+    QProgressBar,
+    QPushButton,
+    QSplitter,
+    QTabWidget,
+    QTextBrowser,
+    QVBoxLayout,
+    QWidget,
+)
 
 from core.errors import WellscapeError
 
@@ -76,7 +90,7 @@ def _about_text() -> str:
 class WorkStrip(QFrame):
     """The strip under the views: message, progress, elapsed time, Solve and Cancel."""
 
-    def __init__(self, parent: Optional[QWidget] = None):
+    def __init__(self, parent: QWidget | None = None):
         super().__init__(parent)
         self.setFrameShape(QFrame.Shape.StyledPanel)
         self.message = QLabel("Ready.")
@@ -125,8 +139,8 @@ def _placeholder(title: str, reason: str) -> QWidget:
 class MainWindow(QMainWindow):
     """One project per window."""
 
-    def __init__(self, session: Optional[Session] = None, *, confirm_close: Optional[Callable] = None,
-                 ask_restore: Optional[Callable] = None):
+    def __init__(self, session: Session | None = None, *, confirm_close: Callable | None = None,
+                 ask_restore: Callable | None = None):
         super().__init__()
         configure_pyqtgraph()
         self.session = session if session is not None else Session(self)
@@ -187,7 +201,7 @@ class MainWindow(QMainWindow):
         self._tick = QTimer(self)
         self._tick.setInterval(100)
         self._tick.timeout.connect(self._update_elapsed)
-        self._help: Optional[QDialog] = None
+        self._help: QDialog | None = None
 
         self._build_menus()
         s = self.session

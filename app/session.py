@@ -29,9 +29,9 @@ import dataclasses
 import math
 import os
 import time
+from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Optional, Sequence
 
 import numpy as np
 from PySide6.QtCore import QObject, QSettings, QStandardPaths, QTimer, Signal
@@ -39,8 +39,8 @@ from PySide6.QtGui import QUndoCommand, QUndoStack
 
 from core.atomic import clean_stale_temporaries
 from core.errors import InputError, WellscapeError
-from core.project import (MapTerm, Project, load_project, new_project as core_new_project, project_from_dict,
-                          project_to_dict, save_project)
+from core.project import MapTerm, Project, load_project, project_from_dict, project_to_dict, save_project
+from core.project import new_project as core_new_project
 
 from .workers import Job, describe_error
 
@@ -119,7 +119,7 @@ def _pid_alive(pid: int) -> bool:
     return True
 
 
-def _start_time(pid: int) -> Optional[str]:
+def _start_time(pid: int) -> str | None:
     """The start time of process ``pid`` (clock ticks since boot, /proc), or None where unknown."""
     try:
         with open(f"/proc/{int(pid)}/stat", encoding="ascii", errors="replace") as fh:
@@ -160,7 +160,7 @@ class RecoveryEntry:
 
     key: str
     file: Path
-    original: Optional[Path]
+    original: Path | None
     saved_at: str
     title: str
 
@@ -171,8 +171,8 @@ class _ProjectCommand(QUndoCommand):
 
     MERGE_ID = 0x5745
 
-    def __init__(self, session: "Session", old: Project, new: Project, text: str,
-                 merge_key: Optional[tuple] = None, open_chain: bool = False):
+    def __init__(self, session: Session, old: Project, new: Project, text: str,
+                 merge_key: tuple | None = None, open_chain: bool = False):
         super().__init__(text)
         self._session = session
         self.old = old
@@ -251,12 +251,12 @@ class Session(QObject):
     stale_changed = Signal()          # the project, the result or the sweep changed: is what is shown current?
     two_electron_changed = Signal()   # the two-electron levels (or the message why there are none) changed
 
-    def __init__(self, parent: Optional[QObject] = None, *, project: Optional[Project] = None,
-                 settings: Optional[QSettings] = None, recovery_dir: Optional[Path] = None,
+    def __init__(self, parent: QObject | None = None, *, project: Project | None = None,
+                 settings: QSettings | None = None, recovery_dir: Path | None = None,
                  autosave_ms: int = 4000):
         super().__init__(parent)
         self._project: Project = project if project is not None else core_new_project()
-        self._path: Optional[Path] = None
+        self._path: Path | None = None
         self.result = None
         self.sweep_result = None
         #: core.two_electron.TwoElectronResult of the latest result when the project has two electrons
@@ -265,7 +265,7 @@ class Session(QObject):
         self.two_electron_message = ""
         self._two_electron_fingerprint = ""     # the project state the two-electron levels were solved for
         self._selected = 0
-        self._degeneracy_tolerance: Optional[float] = None
+        self._degeneracy_tolerance: float | None = None
         self.undo_stack = QUndoStack(self)
         self._force_dirty = False
         self._dirty = False
@@ -273,24 +273,24 @@ class Session(QObject):
         self.undo_stack.indexChanged.connect(self._update_dirty)
 
         self._potential = None
-        self._potential_error: Optional[str] = None
-        self._potential_for: Optional[Project] = None
+        self._potential_error: str | None = None
+        self._potential_for: Project | None = None
         self._fingerprint: tuple = (None, "")           # (project, its core.provenance.fingerprint)
 
         self._generation = 0
-        self._solve_job: Optional[Job] = None
-        self._solve_mode: Optional[str] = None
-        self._pending_mode: Optional[str] = None
-        self._sweep_job: Optional[Job] = None
+        self._solve_job: Job | None = None
+        self._solve_mode: str | None = None
+        self._pending_mode: str | None = None
+        self._sweep_job: Job | None = None
         self._finished_jobs: list = []
         self._aux_jobs: list = []         # background work whose results nobody waits for (warm-up)
         self._analyses: dict = {}
-        self.last_solve_seconds: Optional[float] = None
-        self._result_mode: Optional[str] = None       # how the latest result was started: live (warm) or cold
+        self.last_solve_seconds: float | None = None
+        self._result_mode: str | None = None       # how the latest result was started: live (warm) or cold
         #: residual tolerance of the warm-started solves during a drag (never tighter than the project's);
         #: 1e-5 halves their cost against 1e-7 and still gives energies to ~1e-9 of the energy scale
         #: (measured on the elliptical sample at 128^2); the confirming solve uses the project's own
-        self.live_tolerance: Optional[float] = 1e-5
+        self.live_tolerance: float | None = 1e-5
         #: True while a parameter slider is being dragged (views may then repaint less often)
         self.live_dragging = False
 
@@ -302,7 +302,7 @@ class Session(QObject):
         self._recovery_key = _process_key(os.getpid())
         self._recovery_file = self._recovery_dir / f"unsaved-{self._recovery_key}.json"
         clean_stale_temporaries(self._recovery_dir, any_name=True)   # left by a window killed mid-write
-        self._autosaved: Optional[Project] = None
+        self._autosaved: Project | None = None
         self._autosave_error_shown = False
         self._autosave_timer = QTimer(self)
         self._autosave_timer.setInterval(max(200, int(autosave_ms)))
@@ -320,7 +320,7 @@ class Session(QObject):
         return self._project
 
     @property
-    def path(self) -> Optional[Path]:
+    def path(self) -> Path | None:
         return self._path
 
     @property
@@ -337,7 +337,7 @@ class Session(QObject):
         return get_units(self._project.units)
 
     @property
-    def potential(self) -> Optional[np.ndarray]:
+    def potential(self) -> np.ndarray | None:
         """V on ``project.grid`` (energy unit), cached; None if it cannot be evaluated
         (then :attr:`potential_error` says why)."""
         if self._potential_for is not self._project:
@@ -345,7 +345,7 @@ class Session(QObject):
         return self._potential
 
     @property
-    def potential_error(self) -> Optional[str]:
+    def potential_error(self) -> str | None:
         if self._potential_for is not self._project:
             self._evaluate_potential()
         return self._potential_error
@@ -363,12 +363,12 @@ class Session(QObject):
         self._potential_for = project
 
     @property
-    def degeneracy_tolerance(self) -> Optional[float]:
+    def degeneracy_tolerance(self) -> float | None:
         """Levels closer than this (energy unit) count as degenerate; None: the solver's own."""
         return self._degeneracy_tolerance
 
     @degeneracy_tolerance.setter
-    def degeneracy_tolerance(self, value: Optional[float]) -> None:
+    def degeneracy_tolerance(self, value: float | None) -> None:
         if value is not None:
             value = float(value)
             if not (math.isfinite(value) and value >= 0):
@@ -377,7 +377,7 @@ class Session(QObject):
             self._degeneracy_tolerance = value
             self.degeneracy_changed.emit()
 
-    def effective_degeneracy_tolerance(self) -> Optional[float]:
+    def effective_degeneracy_tolerance(self) -> float | None:
         """The tolerance in use: the user's; else one built from the error estimates of a convergence
         study of this result's project (:func:`core.convergence.default_degeneracy_tolerance`); else
         the latest solve's (None before any solve)."""
@@ -388,7 +388,7 @@ class Session(QObject):
         tol = self.error_based_tolerance()
         return tol if tol is not None else float(self.result.spectrum.degeneracy_tolerance)
 
-    def error_based_tolerance(self) -> Optional[float]:
+    def error_based_tolerance(self) -> float | None:
         """The degeneracy tolerance built from a convergence study of the latest result's project, if any."""
         report = self.checks.report_for(self.result) if self.result is not None else None
         if report is None:
@@ -398,7 +398,7 @@ class Session(QObject):
         return tol if tol > 0 else None
 
     @property
-    def result_mode(self) -> Optional[str]:
+    def result_mode(self) -> str | None:
         """How the latest result was started: "live" (a warm solve during a slider drag), "settle"
         (the confirming solve after one) or "manual"; None before any solve."""
         return self._result_mode
@@ -543,7 +543,7 @@ class Session(QObject):
             self.potential_changed.emit()
         self.stale_changed.emit()
 
-    def _replace_all(self, project: Project, path: Optional[Path], *, dirty: bool = False) -> None:
+    def _replace_all(self, project: Project, path: Path | None, *, dirty: bool = False) -> None:
         """A different project (new, open, restore): no undo history, no results."""
         self._generation += 1
         self._cancel_jobs()
@@ -801,7 +801,7 @@ class Session(QObject):
         if job is not None and job.tag[0] == self._generation:
             self.estimated.emit(estimate)
 
-    def _current_job(self) -> Optional[Job]:
+    def _current_job(self) -> Job | None:
         job = self.sender()
         return job if isinstance(job, Job) else self._solve_job
 
@@ -902,8 +902,8 @@ class Session(QObject):
         job.start()
 
     # ------------------------------------------------------------------ sweeps
-    def run_sweep(self, parameter: str, values: Sequence[float], states: Optional[int] = None, *,
-                  keep_states: Optional[bool] = None) -> bool:
+    def run_sweep(self, parameter: str, values: Sequence[float], states: int | None = None, *,
+                  keep_states: bool | None = None) -> bool:
         """Sweep one parameter in the background (:func:`core.sweep.run_sweep`).
 
         Returns False (and emits ``sweep_failed``) if the request is refused at once.

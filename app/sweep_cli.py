@@ -114,7 +114,7 @@ def probe_scheduler(address: str, timeout: float, error) -> None:
 
     try:
         asyncio.run(asyncio.wait_for(ask(), timeout))
-    except (asyncio.TimeoutError, TimeoutError):
+    except TimeoutError:
         raise error(f"--cluster: the scheduler at {address} did not connect and answer within {timeout:g} s; "
                     f"check the address, or drop --cluster and use --workers N") from None
     except Exception as exc:        # refused, reset, not a scheduler: the reason, never a traceback
@@ -125,7 +125,7 @@ def probe_scheduler(address: str, timeout: float, error) -> None:
 
 
 def cmd_sweep(args) -> int:
-    from app.cli import _Progress, _UsageError, _apply_sets, _load, _parse_sets
+    from app.cli import _apply_sets, _load, _parse_sets, _Progress, _UsageError
     from core.sweep import run_sweep, save_sweep
 
     _check_arguments(args, _UsageError)

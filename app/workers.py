@@ -30,7 +30,7 @@ import threading
 import time
 import traceback
 import weakref
-from typing import Callable, Optional
+from collections.abc import Callable
 
 from PySide6.QtCore import QThread, Signal
 
@@ -73,7 +73,7 @@ def guard_singleton_refcounts() -> bool:
 
 guard_singleton_refcounts()
 
-_JOBS: "weakref.WeakSet[Job]" = weakref.WeakSet()
+_JOBS: weakref.WeakSet[Job] = weakref.WeakSet()
 _JOBS_LOCK = threading.Lock()
 
 
@@ -171,7 +171,7 @@ class Job(QThread):
         self._notes = bool(notes)
         self._stop = threading.Event()
         self._last_progress = 0.0
-        self.started_at: Optional[float] = None
+        self.started_at: float | None = None
         self.setObjectName(f"wellscape-{kind}")
         with _JOBS_LOCK:
             _JOBS.add(self)
@@ -185,7 +185,7 @@ class Job(QThread):
     def cancel_requested(self) -> bool:
         return self._stop.is_set()
 
-    def join(self, timeout_s: Optional[float] = None) -> bool:
+    def join(self, timeout_s: float | None = None) -> bool:
         """Wait for the thread to end; True if it did."""
         if timeout_s is None:
             return bool(self.wait())

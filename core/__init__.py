@@ -18,8 +18,7 @@ import os as _os
 # before numpy is first imported).
 _os.environ.setdefault("OPENBLAS_THREAD_TIMEOUT", "4")
 
-from .errors import (Cancelled, FormulaError, InputError, MemoryLimitError, NotConverged,  # noqa: E402
-                     ProjectError, WellscapeError)
+from .errors import Cancelled, FormulaError, InputError, MemoryLimitError, NotConverged, ProjectError, WellscapeError  # noqa: E402
 from .grid import Grid  # noqa: E402
 from .units import UNIT_SYSTEMS, UnitSystem, get_units  # noqa: E402
 

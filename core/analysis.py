@@ -32,8 +32,8 @@ O(k * N * n) for k states of N points.
 """
 from __future__ import annotations
 
+from collections.abc import Sequence
 from functools import lru_cache
-from typing import Sequence
 
 import numpy as np
 

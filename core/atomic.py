@@ -10,8 +10,8 @@ import os
 import re
 import tempfile
 import time
+from collections.abc import Callable
 from pathlib import Path
-from typing import Callable, Optional, Union
 
 from .errors import InputError
 
@@ -42,7 +42,7 @@ def _pid_alive(pid: int) -> bool:
 _OWN_TMP_GRACE_S = 60.0
 
 
-def clean_stale_temporaries(path: Union[str, os.PathLike], *, any_name: bool = False) -> int:
+def clean_stale_temporaries(path: str | os.PathLike, *, any_name: bool = False) -> int:
     """Remove temporary files that a killed save of ``path`` left beside it; returns how many.
 
     A temporary file is named ``.NAME.PID.XXXX.SUFFIX``: it is stale when process PID is gone
@@ -76,8 +76,8 @@ def clean_stale_temporaries(path: Union[str, os.PathLike], *, any_name: bool = F
     return removed
 
 
-def atomic_write(path: Union[str, os.PathLike], write: Optional[Callable[[str], None]] = None, *,
-                 data: Optional[bytes] = None, suffix: Optional[str] = None, verb: str = "write") -> Path:
+def atomic_write(path: str | os.PathLike, write: Callable[[str], None] | None = None, *,
+                 data: bytes | None = None, suffix: str | None = None, verb: str = "write") -> Path:
     """Write ``data`` (bytes, flushed and synced) or call ``write(tmp_path)``, then move it to ``path``.
 
     When ``path`` is a symbolic link, the file it points to is written (the link stays a link).

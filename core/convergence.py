@@ -41,13 +41,22 @@ from __future__ import annotations
 
 import math
 import time
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field, replace
-from typing import Callable, Mapping, Optional
 
 import numpy as np
 
-from .convergence_levels import (CONVERGED, CONVERGES, GROWING, NOT_FOUND, NOT_MONOTONIC, SIGNIFICANT, judge_level,
-                                 observed_order, richardson)
+from .convergence_levels import (
+    CONVERGED,
+    CONVERGES,
+    GROWING,
+    NOT_FOUND,
+    NOT_MONOTONIC,
+    SIGNIFICANT,
+    judge_level,
+    observed_order,
+    richardson,
+)
 from .convergence_match import interpolate_states, match_levels
 from .eigensolve import energy_scale
 from .errors import Cancelled, InputError, NotConverged
@@ -75,8 +84,8 @@ TOO_COARSE = "the grid is too coarse to judge these levels"
 #: of the gap on each side of a pair could already move a level halfway to its neighbour)
 JUDGE_FRACTION = 0.25
 
-ProgressFn = Optional[Callable[[str, float], None]]
-StopFn = Optional[Callable[[], bool]]
+ProgressFn = Callable[[str, float], None] | None
+StopFn = Callable[[], bool] | None
 
 
 def study_states(levels: int) -> int:
@@ -142,7 +151,7 @@ class CoarseCluster:
     gap: float
     target: float
     order: float
-    needed: Optional[Grid] = None
+    needed: Grid | None = None
     estimate: object = None
 
 
@@ -177,8 +186,8 @@ class ConvergenceReport:
     wall_time: float
     statuses: tuple = ()
     extra: dict = field(default_factory=dict)
-    noise: Optional[np.ndarray] = None
-    order_errors: Optional[np.ndarray] = None
+    noise: np.ndarray | None = None
+    order_errors: np.ndarray | None = None
     pairs: tuple = ()
     coarse: tuple = ()
     complete: bool = True
@@ -357,7 +366,7 @@ class PartialConvergence:
 
     grids: tuple
     results: tuple
-    report: Optional[ConvergenceReport]
+    report: ConvergenceReport | None
     interrupted: object = None
 
 
@@ -487,10 +496,10 @@ def _warnings(n, scheme, expected, p_med, count, ref_index) -> list:
     return out
 
 
-def convergence_study(project: Project, *, factor: float = 1.5, grids: int = 3, levels: Optional[int] = None,
-                      parameters: Optional[Mapping[str, float]] = None, progress: ProgressFn = None,
+def convergence_study(project: Project, *, factor: float = 1.5, grids: int = 3, levels: int | None = None,
+                      parameters: Mapping[str, float] | None = None, progress: ProgressFn = None,
                       should_stop: StopFn = None, refine: str = "coarser",
-                      scheme: Optional[str] = None) -> ConvergenceReport:
+                      scheme: str | None = None) -> ConvergenceReport:
     """Solve ``project`` on ``grids`` grids and extrapolate each level to zero spacing.
 
     Parameters

@@ -17,9 +17,17 @@ import math
 
 import numpy as np
 
+from .convergence import (
+    CONVERGES,
+    DEGENERATE,
+    JUDGE_FRACTION,
+    MARKS,
+    NOT_RESOLVED,
+    RESOLVED,
+    TOO_COARSE,
+    default_degeneracy_tolerance,
+)
 from .formatting import _fixed, _rounded_uncertainty, format_bound, format_uncertain, format_value  # noqa: F401
-from .convergence import (CONVERGES, DEGENERATE, JUDGE_FRACTION, MARKS, NOT_RESOLVED, RESOLVED, TOO_COARSE,
-                          default_degeneracy_tolerance)
 
 __all__ = ["coarse_words", "format_uncertain", "format_value", "format_bound", "format_spacing", "format_order", "level_status",
            "order_words", "summary_words", "verdict_legend", "format_report"]

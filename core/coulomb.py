@@ -17,7 +17,7 @@ Arrays on a grid are indexed ``[x, y(, z)]``; blocks of orbitals ``[orbital, x, 
 """
 from __future__ import annotations
 
-from typing import Callable, Optional
+from collections.abc import Callable
 
 import numpy as np
 from scipy import constants as sc
@@ -49,7 +49,7 @@ def _padded_shape(grid: Grid) -> tuple:
     return tuple(sfft.next_fast_len(2 * n) for n in grid.shape)
 
 
-def singular_weight(spacing, *, widths: Optional[tuple] = None) -> float:
+def singular_weight(spacing, *, widths: tuple | None = None) -> float:
     """The weight of the singular point in the corrected trapezoidal rule for 1/|r| on a grid.
 
     sum_{j != 0} f(r_j) / |r_j| dV + w0 f(0) dV approximates int f(r) / |r| d^dr with an error of
@@ -119,8 +119,8 @@ _CHUNK = 16
 
 
 def coulomb_tensor(grid: Grid, orbitals: np.ndarray, strength: float, *,
-                   progress: Optional[Callable[[str, float], None]] = None,
-                   should_stop: Optional[Callable[[], bool]] = None) -> np.ndarray:
+                   progress: Callable[[str, float], None] | None = None,
+                   should_stop: Callable[[], bool] | None = None) -> np.ndarray:
     """V[a, b, c, d] = <ab|V|cd> for orbitals ``[orbital, x, y(, z)]`` normalised with sum |phi|^2 dV = 1.
 
     ``strength`` is e^2/(4 pi eps0 eps_r) in energy * length.  Returns a real array for real

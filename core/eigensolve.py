@@ -26,11 +26,10 @@ from __future__ import annotations
 import functools
 import math
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field, replace
-from typing import Callable, Optional
 
 import numpy as np
-import scipy.linalg as sla
 
 from .errors import Cancelled, InputError, NotConverged
 from .grid import Grid
@@ -48,13 +47,13 @@ _MAX_DEGREE = 120
 #: a started solve widens its first Rayleigh-Ritz with the residuals of the wanted vectors whose
 #: residual exceeds this many tolerances
 _WIDEN_FACTOR = 100.0
-ProgressFn = Optional[Callable[[str, float], None]]
+ProgressFn = Callable[[str, float], None] | None
 
 
 class _FilterStopped(Exception):
     """should_stop() returned True inside a filter pass (turned into Cancelled with a partial result)."""
 
-StopFn = Optional[Callable[[], bool]]
+StopFn = Callable[[], bool] | None
 
 
 def group_levels(energies, tolerance: float) -> tuple:
@@ -99,7 +98,7 @@ class Spectrum:
     method: str = "chebyshev"
     notes: tuple = ()
     extra: dict = field(default_factory=dict)
-    guard_states: Optional[np.ndarray] = None   # Ritz vectors beyond the returned ones, for warm starts
+    guard_states: np.ndarray | None = None   # Ritz vectors beyond the returned ones, for warm starts
 
     @property
     def groups(self) -> tuple:
@@ -116,7 +115,7 @@ class Spectrum:
             return self.states
         return np.concatenate([self.states, self.guard_states])
 
-    def with_notes(self, *notes: str, **changes) -> "Spectrum":
+    def with_notes(self, *notes: str, **changes) -> Spectrum:
         return replace(self, notes=self.notes + tuple(notes), **changes)
 
 
@@ -240,8 +239,8 @@ def _scaled_gram(g: np.ndarray) -> tuple:
     return scale, gs, bool(np.abs(gs - np.eye(len(g))).max() < 1e-13)
 
 
-def _orthonormalize(y: np.ndarray, rng, locked: Optional[np.ndarray] = None,
-                    joined: Optional[np.ndarray] = None) -> np.ndarray:
+def _orthonormalize(y: np.ndarray, rng, locked: np.ndarray | None = None,
+                    joined: np.ndarray | None = None) -> np.ndarray:
     """Orthonormalise the rows of ``y`` in place against ``locked`` and each other (SVQB, repeated until clean).
 
     Against ``locked`` this is classical Gram-Schmidt twice: a first pass removes the large
@@ -291,7 +290,7 @@ def _coarse_points(n: int, periodic: bool) -> int:
     return n // 2 if periodic else (n + 1) // 2 - 1
 
 
-def _linear_1d(x_from: np.ndarray, x_to: np.ndarray, period: Optional[float], walls: Optional[tuple]) -> np.ndarray:
+def _linear_1d(x_from: np.ndarray, x_to: np.ndarray, period: float | None, walls: tuple | None) -> np.ndarray:
     """Dense matrix of linear interpolation from points ``x_from`` to ``x_to`` (zero at hard walls if given)."""
     mat = np.zeros((x_to.size, x_from.size))
     if period is not None:
@@ -329,7 +328,7 @@ def _apply_axis(mat: np.ndarray, x: np.ndarray, axis: int) -> np.ndarray:
     return np.ascontiguousarray(np.moveaxis(out, -1, axis))
 
 
-def _coarse_start(h: Hamiltonian, k: int, guard, tol, deg, should_stop, progress) -> Optional[np.ndarray]:
+def _coarse_start(h: Hamiltonian, k: int, guard, tol, deg, should_stop, progress) -> np.ndarray | None:
     from .hamiltonian import rebuild_on_grid
     g = h.grid
     pts = [_coarse_points(n, per) for n, per in zip(g.shape, g.periodic)]
@@ -406,7 +405,7 @@ def _dense_solve(h: Hamiltonian, k: int, t0: float, tol: float, deg_rel: float, 
 #: second BLAS thread gains little; but BLAS worker threads that spin after a call compete with the
 #: compiled kernel's threads, and on a busy 2-core machine a product whose thread was descheduled
 #: was measured 10-100x slower.  One thread avoids both.  None leaves BLAS as configured.
-_BLAS_THREADS: Optional[int] = 1
+_BLAS_THREADS: int | None = 1
 
 
 def _residual_norms(q: np.ndarray, hq: np.ndarray, theta: np.ndarray) -> np.ndarray:
@@ -434,8 +433,8 @@ def _blas_threads_limited(solve):
 
 
 @_blas_threads_limited
-def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Optional[int] = None,
-                  start: Optional[np.ndarray] = None, progress: ProgressFn = None,
+def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: int | None = None,
+                  start: np.ndarray | None = None, progress: ProgressFn = None,
                   should_stop: StopFn = None, degeneracy_tolerance: float = DEFAULT_DEGENERACY_TOLERANCE,
                   max_iterations: int = 300, dense_limit: int = 1200, seed: int = 12345,
                   check_memory_first: bool = True, coarse_start: bool = True,
@@ -735,7 +734,6 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: Opt
     deg_abs = 0.0
     while True:
         all_theta = np.concatenate([locked_theta, theta])
-        all_res = np.concatenate([locked_res, res])
         scale = energy_scale(all_theta[:need])
         tol_abs = tol * scale
         deg_abs = degeneracy_tolerance * scale

@@ -19,8 +19,8 @@ from __future__ import annotations
 
 import math
 import time
+from collections.abc import Mapping
 from dataclasses import dataclass, field
-from typing import Mapping, Optional
 
 import numpy as np
 
@@ -63,7 +63,7 @@ def record_solve(scheme: str, grid: Grid, complex_: bool, states: int, seconds: 
 
 def _coarse_started(grid: Grid) -> bool:
     """True when a cold solve on ``grid`` starts on a grid half as fine (as core.eigensolve decides)."""
-    from .eigensolve import _coarse_points     # the eigensolver's own rule, not a copy of it
+    from .eigensolve import _coarse_points  # the eigensolver's own rule, not a copy of it
     return grid.size >= 30000 and all(_coarse_points(n, per) >= 16 for n, per in zip(grid.shape, grid.periodic))
 
 
@@ -96,8 +96,8 @@ class Estimate:
     states: int
     memory_bytes: int             # peak
     available_bytes: int
-    seconds: Optional[float]      # None when no rate was measured
-    apply_rate: Optional[float]   # measured single-vector applications x points per second
+    seconds: float | None      # None when no rate was measured
+    apply_rate: float | None   # measured single-vector applications x points per second
     fits: bool
     suggestion: str = ""
     details: tuple = ()           # one line per solve, for the curious
@@ -113,7 +113,7 @@ class Estimate:
         t = "" if self.seconds is None else f", roughly {_format_seconds(self.seconds)}"
         return f"about {format_bytes(self.memory_bytes)}{t}"
 
-    def check(self) -> "Estimate":
+    def check(self) -> Estimate:
         """Raise :class:`MemoryLimitError` with the suggestion when the request will not fit; else return self."""
         if not self.fits:
             raise MemoryLimitError(f"{self.what} needs about {format_bytes(self.memory_bytes)}, but only "
@@ -204,7 +204,6 @@ def _suggestion(grid: Grid, states: int, complex_: bool, scheme: str, budget: fl
                 largest_factor: float = 1.0) -> str:
     """Concrete ways to fit in ``budget`` bytes: coarser grid, spectral scheme, fewer states."""
     parts = []
-    n = grid.size
     scale = max(largest_factor, 1e-300)
 
     def fits(points, k) -> bool:
@@ -237,9 +236,9 @@ def _suggestion(grid: Grid, states: int, complex_: bool, scheme: str, budget: fl
 
 # --- public estimates ----------------------------------------------------------------------------------
 
-def estimate_solve(project: Project, *, states: Optional[int] = None, grid: Optional[Grid] = None,
-                   scheme: Optional[str] = None, parameters: Optional[Mapping[str, float]] = None,
-                   measure: bool = True, solves: int = 1, what: Optional[str] = None) -> Estimate:
+def estimate_solve(project: Project, *, states: int | None = None, grid: Grid | None = None,
+                   scheme: str | None = None, parameters: Mapping[str, float] | None = None,
+                   measure: bool = True, solves: int = 1, what: str | None = None) -> Estimate:
     """Estimate one solve of ``project`` (or ``solves`` cold solves of the same size).
 
     ``measure=False`` skips building the Hamiltonian: memory only, no time.
@@ -287,8 +286,8 @@ def estimate_solve(project: Project, *, states: Optional[int] = None, grid: Opti
                     extra={"scheme": h.scheme, "applications": apps, "complex": cplx})
 
 
-def estimate_sweep(project: Project, points: int, *, states: Optional[int] = None,
-                   parameters: Optional[Mapping[str, float]] = None, measure: bool = True) -> Estimate:
+def estimate_sweep(project: Project, points: int, *, states: int | None = None,
+                   parameters: Mapping[str, float] | None = None, measure: bool = True) -> Estimate:
     """Estimate a sweep of ``points`` solves (warm-started after the first: counted as 40% of a cold solve)."""
     if int(points) < 1:
         raise InputError(f"a sweep needs at least one point, got {points!r}")
@@ -324,8 +323,8 @@ def convergence_grids(grid: Grid, factor: float = 1.5, grids: int = 3, refine: s
     return tuple(out)
 
 
-def estimate_convergence(project: Project, *, factor: float = 1.5, grids: int = 3, levels: Optional[int] = None,
-                         parameters: Optional[Mapping[str, float]] = None, refine: str = "coarser",
+def estimate_convergence(project: Project, *, factor: float = 1.5, grids: int = 3, levels: int | None = None,
+                         parameters: Mapping[str, float] | None = None, refine: str = "coarser",
                          measure: bool = True) -> Estimate:
     """Estimate a convergence study: one solve per grid (memory of the largest, time of all)."""
     from .convergence import study_states

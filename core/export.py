@@ -15,8 +15,8 @@ import csv
 import io
 import json
 import os
+from collections.abc import Sequence
 from pathlib import Path
-from typing import Optional, Sequence, Union
 
 import numpy as np
 
@@ -28,7 +28,7 @@ __all__ = ["levels_csv_text", "write_levels_csv", "write_states_npz", "read_stat
            "parameter_unit", "STATES_FORMAT"]
 
 STATES_FORMAT = "wellscape-states"
-PathLike = Union[str, os.PathLike]
+PathLike = str | os.PathLike
 
 
 # --- helpers ---------------------------------------------------------------------------------
@@ -45,8 +45,9 @@ def _write_text(path: PathLike, text: str) -> Path:
     return _atomic(path, write)
 
 
-def _project_json(project, parameters: Optional[dict] = None) -> str:
+def _project_json(project, parameters: dict | None = None) -> str:
     import dataclasses
+
     from .project import project_to_dict
     if parameters:
         project = dataclasses.replace(project, parameters={k: float(v) for k, v in parameters.items()})
@@ -109,7 +110,7 @@ def write_levels_csv(result, path: PathLike) -> Path:
 
 # --- states ----------------------------------------------------------------------------------
 
-def write_states_npz(result, path: PathLike, *, levels: Optional[Sequence[int]] = None,
+def write_states_npz(result, path: PathLike, *, levels: Sequence[int] | None = None,
                      compressed: bool = True) -> Path:
     """Write the states of a solve (all, or ``levels``) with their energies, the grid's axes
     and units, the project (JSON, parameters as solved) and the Wellscape version.
@@ -311,7 +312,7 @@ def hdf5_available() -> bool:
     return True
 
 
-def write_hdf5(path: PathLike, *, result=None, sweep=None, levels: Optional[Sequence[int]] = None) -> Path:
+def write_hdf5(path: PathLike, *, result=None, sweep=None, levels: Sequence[int] | None = None) -> Path:
     """Write a solve and/or a sweep into one HDF5 file (needs the optional h5py package).
 
     Layout: ``/solve`` with datasets ``energies``, ``states`` [level, x, y(, z)],

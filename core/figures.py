@@ -40,9 +40,10 @@ import json
 import math
 import os
 import re
+from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Optional, Sequence, Union
+from typing import Any
 
 import numpy as np
 
@@ -71,7 +72,7 @@ class Template:
 
     name: str
     width_in: float
-    height_in: Optional[float]
+    height_in: float | None
     font_pt: float
     title_pt: float
     caption_pt: float
@@ -118,21 +119,21 @@ class Sheet:
     caption: tuple
     layout: str
     template: str = "slide"
-    columns: Optional[int] = None
+    columns: int | None = None
     title: str = ""
     units: dict = dataclasses.field(default_factory=dict)
-    project: Optional[dict] = None
+    project: dict | None = None
     project_hash: str = ""
     wellscape_version: str = ""
 
-    def single_panel(self, index: int) -> "Sheet":
+    def single_panel(self, index: int) -> Sheet:
         """A sheet of panel ``index`` alone, with the same caption (to export one view)."""
         if not isinstance(index, (int, np.integer)) or not 0 <= int(index) < len(self.panels):
             raise InputError(f"panel {index!r}: the sheet has panels 0–{len(self.panels) - 1}")
         p = self.panels[int(index)]
         return dataclasses.replace(self, panels=(p,), layout=p["kind"], columns=None)
 
-    def with_options(self, **changes) -> "Sheet":
+    def with_options(self, **changes) -> Sheet:
         """A copy with other ``template``, ``columns`` or ``title`` (the plotted values stay)."""
         allowed = {"template", "columns", "title"}
         bad = set(changes) - allowed
@@ -181,7 +182,7 @@ def _template(name) -> Template:
         raise InputError(f"unknown template {name!r}; choose one of {', '.join(TEMPLATES)}") from None
 
 
-def _columns(columns) -> Optional[int]:
+def _columns(columns) -> int | None:
     if columns is None:
         return None
     if isinstance(columns, bool) or not isinstance(columns, (int, np.integer)) or not 1 <= int(columns) <= 8:
@@ -248,7 +249,7 @@ _MULT_NAMES = {2: "doublet", 3: "triplet", 4: "quartet"}
 
 # --- hashing and the caption ---------------------------------------------------------------
 
-def project_hash(project_doc: dict, extra: Optional[dict] = None) -> str:
+def project_hash(project_doc: dict, extra: dict | None = None) -> str:
     """Short SHA-256 (12 hex digits) of a project document (canonical JSON) and ``extra``."""
     payload = {"project": project_doc}
     if extra:
@@ -257,7 +258,7 @@ def project_hash(project_doc: dict, extra: Optional[dict] = None) -> str:
     return hashlib.sha256(text.encode("utf-8")).hexdigest()[:12]
 
 
-def _project_doc(project, parameters: Optional[dict] = None) -> dict:
+def _project_doc(project, parameters: dict | None = None) -> dict:
     from .project import project_to_dict
     if parameters:
         project = dataclasses.replace(project, parameters={k: float(v) for k, v in parameters.items()})
@@ -279,7 +280,7 @@ def _num(v) -> str:
     return f"{float(v):.6g}"
 
 
-def caption_lines(project, *, parameters: Optional[dict] = None, result=None, sweep=None,
+def caption_lines(project, *, parameters: dict | None = None, result=None, sweep=None,
                   hash_text: str = "") -> list:
     """The caption of a sheet: material, grid, scheme, fields, units, version and project hash."""
     from . import __version__
@@ -553,7 +554,7 @@ def _crop_window(arrays: list, grid, flattest: float = _CROP_ASPECT) -> tuple:
         total = float(dens.sum())
         if not total > 0:
             continue
-        for axis, (lo, hi) in ((1, (0, 0)), (0, (0, 0))):
+        for axis, _ in ((1, (0, 0)), (0, (0, 0))):
             cum = np.cumsum(dens.sum(axis=axis)) / total
             first = int(np.searchsorted(cum, _CROP_TAIL))
             last = int(np.searchsorted(cum, 1.0 - _CROP_TAIL))
@@ -674,7 +675,7 @@ def convergence_order_text(report) -> str:
     return f"Richardson extrapolation, {order_words(report)}"
 
 
-def _fan_panel(sweep, parameter_unit: Optional[str]) -> dict:
+def _fan_panel(sweep, parameter_unit: str | None) -> dict:
     from .units import get_units
     values = np.asarray(sweep.values, dtype=float).ravel()
     if values.size < 2:
@@ -750,10 +751,10 @@ def _panel_states(panels: list, result, sweep, mixed_states: str) -> str:
             f"other panel from state {solved}, which differs by {diff}.")
 
 
-def build_sheet(result=None, *, sweep=None, layout: Optional[str] = None, template: str = "slide",
-                states: Optional[Sequence[int]] = None, wavefunction: str = "density",
-                three_d: str = "projection", columns: Optional[int] = None, crop: bool = True,
-                parameter_unit: Optional[str] = None, title: Optional[str] = None,
+def build_sheet(result=None, *, sweep=None, layout: str | None = None, template: str = "slide",
+                states: Sequence[int] | None = None, wavefunction: str = "density",
+                three_d: str = "projection", columns: int | None = None, crop: bool = True,
+                parameter_unit: str | None = None, title: str | None = None,
                 convergence=None, mixed_states: str = "refuse") -> Sheet:
     """Extract what a figure sheet plots from a solve (and a sweep) into a :class:`Sheet`.
 
@@ -889,7 +890,7 @@ def _rc(t: Template) -> dict:
             "axes.formatter.limits": (-4, 5), "image.origin": "lower"}
 
 
-def _grid_shape(n: int, t: Template, columns: Optional[int]) -> tuple:
+def _grid_shape(n: int, t: Template, columns: int | None) -> tuple:
     if columns:
         c = min(columns, n)
         return c, math.ceil(n / c)
@@ -1063,8 +1064,8 @@ def _scale_bar_clear_of_state(fig, ax, p: dict, t: Template) -> None:
 
 def _scale_bar(ax, length: float, unit: str, ylim, t: Template, *, dark: bool = False, loc: str = "lower left"):
     """A scale bar of ``length`` (data units) in a corner (``loc``), on a faint backing."""
-    from mpl_toolkits.axes_grid1.anchored_artists import AnchoredSizeBar
     from matplotlib.font_manager import FontProperties
+    from mpl_toolkits.axes_grid1.anchored_artists import AnchoredSizeBar
     colour = "white" if dark else "black"
     ax._wellscape_scale_bar_args = (length, unit, ylim)  # noqa: SLF001
     ax._wellscape_scale_bar_dark = dark  # noqa: SLF001
@@ -1543,7 +1544,7 @@ def _widen_last(cells: list, panels: Sequence[dict], filled: int, c: int) -> Non
         cells[-1] = (rows, slice(0, c), xl, yl)
 
 
-def _arrangement(panels: Sequence[dict], t: Template, columns: Optional[int]) -> tuple:
+def _arrangement(panels: Sequence[dict], t: Template, columns: int | None) -> tuple:
     """(rows, column specs, [(row slice, column, x labels?, y labels?) per panel]), or rows,
     None, cells for a plain grid.
 
@@ -1597,7 +1598,7 @@ def _arrangement(panels: Sequence[dict], t: Template, columns: Optional[int]) ->
     return rows, len(cols), cols, cells
 
 
-def _column_widths(cols: list, t: Template, height_in: Optional[float], fixed_h: float,
+def _column_widths(cols: list, t: Template, height_in: float | None, fixed_h: float,
                    overheads: dict) -> tuple:
     """(figure height, inner column widths in inches) so that equal-aspect maps fill their cells.
 
@@ -1735,7 +1736,7 @@ def _layout(fig) -> None:
     fig.get_layout_engine().execute(fig)
 
 
-def _figure_in_context(sheet: Sheet, t: Template, columns: Optional[int]):
+def _figure_in_context(sheet: Sheet, t: Template, columns: int | None):
     from matplotlib.figure import Figure
     panels = sheet.panels
     caption = _wrap_caption([short_caption(sheet.caption, with_title=not sheet.title)], t)
@@ -1827,7 +1828,7 @@ def _figure_in_context(sheet: Sheet, t: Template, columns: Optional[int]):
     return fig
 
 
-def sheet_figure(sheet: Sheet, *, template: Optional[str] = None, columns: Optional[int] = None):
+def sheet_figure(sheet: Sheet, *, template: str | None = None, columns: int | None = None):
     """Draw ``sheet`` into a new :class:`matplotlib.figure.Figure` (no GUI, no pyplot).
 
     The figure's panels (one Axes per panel, in order) are in ``figure._wellscape_panels``.
@@ -1840,7 +1841,7 @@ def sheet_figure(sheet: Sheet, *, template: Optional[str] = None, columns: Optio
         return _figure_in_context(sheet, t, _columns(columns) if columns is not None else sheet.columns)
 
 
-def _format_of(path: Path, fmt: Optional[str]) -> str:
+def _format_of(path: Path, fmt: str | None) -> str:
     f = (fmt or path.suffix.lstrip(".")).lower()
     if f not in FIGURE_FORMATS:
         raise InputError(f"{path.name}: unknown figure type {('.' + f) if f else '(no extension)'}; "
@@ -1848,8 +1849,8 @@ def _format_of(path: Path, fmt: Optional[str]) -> str:
     return f
 
 
-def render_sheet(sheet: Sheet, path: Union[str, os.PathLike], *, dpi: float = 200, format: Optional[str] = None,
-                 template: Optional[str] = None, columns: Optional[int] = None) -> Path:
+def render_sheet(sheet: Sheet, path: str | os.PathLike, *, dpi: float = 200, format: str | None = None,
+                 template: str | None = None, columns: int | None = None) -> Path:
     """Draw ``sheet`` into ``path`` (.png, .pdf or .svg) and return the path.
 
     ``dpi`` sets the PNG's pixel size (width = template width x dpi); PDF and SVG stay
@@ -1858,6 +1859,7 @@ def render_sheet(sheet: Sheet, path: Union[str, os.PathLike], *, dpi: float = 20
     """
     import matplotlib
     from matplotlib.backends.backend_agg import FigureCanvasAgg
+
     from . import __version__
     p = Path(path)
     fmt = _format_of(p, format)
@@ -1892,14 +1894,14 @@ def render_sheet(sheet: Sheet, path: Union[str, os.PathLike], *, dpi: float = 20
     return atomic_write(p, draw, suffix=f".{fmt}")
 
 
-def sheet_json_path(figure_path: Union[str, os.PathLike]) -> Path:
+def sheet_json_path(figure_path: str | os.PathLike) -> Path:
     """Where the data of a figure goes: ``sheet.pdf`` -> ``sheet.sheet.json``."""
     p = Path(figure_path)
     return p.with_name(p.stem + ".sheet.json")
 
 
-def save_sheet(sheet: Sheet, path: Union[str, os.PathLike], *, dpi: float = 200, format: Optional[str] = None,
-               template: Optional[str] = None, columns: Optional[int] = None, data: bool = True) -> tuple:
+def save_sheet(sheet: Sheet, path: str | os.PathLike, *, dpi: float = 200, format: str | None = None,
+               template: str | None = None, columns: int | None = None, data: bool = True) -> tuple:
     """Render ``sheet`` into ``path`` and write its data beside it (``NAME.sheet.json``).
 
     Returns ``(figure path, data path or None)``.  An existing file at the data path is
@@ -2253,7 +2255,7 @@ def sheet_from_dict(data: Any, *, source: str = "sheet") -> Sheet:
                  wellscape_version=r.text(d.get("wellscape_version", ""), "wellscape_version", limit=40))
 
 
-def load_sheet(path: Union[str, os.PathLike]) -> Sheet:
+def load_sheet(path: str | os.PathLike) -> Sheet:
     """Read and validate ``NAME.sheet.json``; raises :class:`InputError` naming any problem."""
     from .jsonfile import parse_json, read_text_file
     p = Path(path)

@@ -22,8 +22,8 @@ import hashlib
 import math
 import threading
 from collections import OrderedDict
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
-from typing import Iterable, Sequence
 
 import numpy as np
 
@@ -331,7 +331,7 @@ class Gate:
         object.__setattr__(self, "vertices", validate_polygon(self.vertices, label=self.label))
 
     @classmethod
-    def from_rectangle(cls, label: str, voltage: float, corners: Sequence[float]) -> "Gate":
+    def from_rectangle(cls, label: str, voltage: float, corners: Sequence[float]) -> Gate:
         """A rectangular gate from two opposite corners ``(x0, y0, x1, y1)`` (any order)."""
         try:
             x0, y0, x1, y1 = (float(c) for c in corners)
@@ -367,7 +367,7 @@ class Gate:
 #: slider re-sums cached arrays instead of re-evaluating the closed forms (256^2, five gates:
 #: 41 ms -> under 1 ms).
 UNIT_CACHE_BYTES = 256 * 2**20
-_unit_cache: "OrderedDict[tuple, np.ndarray]" = OrderedDict()
+_unit_cache: OrderedDict[tuple, np.ndarray] = OrderedDict()
 _unit_cache_bytes = 0
 _unit_cache_lock = threading.Lock()
 
@@ -385,7 +385,7 @@ def clear_unit_cache() -> None:
         _unit_cache_bytes = 0
 
 
-def cached_unit_potential(gate: "Gate", x: np.ndarray, y: np.ndarray, depth: float,
+def cached_unit_potential(gate: Gate, x: np.ndarray, y: np.ndarray, depth: float,
                           keys: tuple = ()) -> np.ndarray:
     """``gate.unit_potential(x, y, depth=depth)``, from the cache when the same outline, depth and
     points were asked for before.  The array returned is read-only (shared between callers)."""

@@ -14,8 +14,8 @@ Conventions (stable; other tools rely on them):
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass, field
-from typing import Sequence
 
 import numpy as np
 
@@ -185,7 +185,7 @@ class Grid:
             env["r"] = np.sqrt(r2)
         return env
 
-    def refined(self, factor: float) -> "Grid":
+    def refined(self, factor: float) -> Grid:
         """The same box with ``factor`` times as many intervals per axis (factor < 1 coarsens)."""
         pts = []
         for n, b in zip(self.points, self.boundary):
@@ -194,7 +194,7 @@ class Grid:
             pts.append(new if b == PERIODIC else new - 1)
         return Grid(self.lower, self.upper, pts, self.boundary)
 
-    def with_points(self, points: Sequence[int]) -> "Grid":
+    def with_points(self, points: Sequence[int]) -> Grid:
         return Grid(self.lower, self.upper, points, self.boundary)
 
     def to_dict(self) -> dict:

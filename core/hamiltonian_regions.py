@@ -22,6 +22,7 @@ constant-coefficient 1D matrices.
 from __future__ import annotations
 
 from dataclasses import dataclass
+
 import numpy as np
 import scipy.sparse as sp
 
@@ -161,7 +162,7 @@ class RegionHamiltonian(Hamiltonian):
         return sp.csr_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
                              shape=(n, n))
 
-    def rebuild(self, grid: Grid, potential: np.ndarray) -> "RegionHamiltonian":
+    def rebuild(self, grid: Grid, potential: np.ndarray) -> RegionHamiltonian:
         """The same materials, field and gauge on another grid, with the potential given there."""
         return build_region_hamiltonian(grid, potential, self.material_map, units=self.units,
                                         magnetic_field=self.magnetic_field if self.phases is not None else None,

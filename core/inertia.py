@@ -33,7 +33,6 @@ from __future__ import annotations
 import math
 import time
 from dataclasses import dataclass
-from typing import Optional
 
 import numpy as np
 import scipy.linalg as sla
@@ -140,16 +139,16 @@ class CountCertificate:
     """
 
     certified: bool
-    count_below: Optional[int]
+    count_below: int | None
     expected: int
-    shift: Optional[float]
+    shift: float | None
     reason: str
     method: str = ""
     seconds: float = 0.0
-    estimate: Optional[FactorEstimate] = None
+    estimate: FactorEstimate | None = None
 
     @property
-    def missing(self) -> Optional[int]:
+    def missing(self) -> int | None:
         """Levels below the shift that the solve did not return (negative: returned levels not found)."""
         return None if self.count_below is None else self.count_below - self.expected
 
@@ -172,7 +171,7 @@ class CountCertificate:
 
 # --- cost estimate ----------------------------------------------------------------------------------
 
-def _halfwidth(scheme: str) -> Optional[int]:
+def _halfwidth(scheme: str) -> int | None:
     if scheme in FD_COEFFICIENTS:
         return len(FD_COEFFICIENTS[scheme]) - 1
     return None
@@ -273,8 +272,8 @@ def _dense_inertia(a: np.ndarray) -> tuple:
     return int(neg), (lu, d, perm)
 
 
-def count_below(h, shift: float, *, max_memory_bytes: Optional[float] = None,
-                max_seconds: Optional[float] = None, seed: int = 7) -> InertiaCount:
+def count_below(h, shift: float, *, max_memory_bytes: float | None = None,
+                max_seconds: float | None = None, seed: int = 7) -> InertiaCount:
     """Number of eigenvalues of ``h`` below ``shift`` (energy unit), by Sylvester's law of inertia.
 
     ``h`` is a :class:`Hamiltonian` (or a scipy sparse / numpy Hermitian matrix).  Raises
@@ -406,8 +405,8 @@ def choose_shift(h: Hamiltonian, spectrum: Spectrum) -> tuple:
     return primary, tight, nxt
 
 
-def certify_count(hamiltonian: Hamiltonian, spectrum: Spectrum, *, shift: Optional[float] = None,
-                  max_memory_bytes: Optional[float] = None, max_seconds: Optional[float] = None,
+def certify_count(hamiltonian: Hamiltonian, spectrum: Spectrum, *, shift: float | None = None,
+                  max_memory_bytes: float | None = None, max_seconds: float | None = None,
                   backward_safety: float = 1e-3) -> CountCertificate:
     """Check independently that ``spectrum`` holds every eigenvalue of ``hamiltonian`` up to its top level.
 

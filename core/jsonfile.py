@@ -5,14 +5,14 @@ import json
 import os
 import re
 from pathlib import Path
-from typing import Any, Union
+from typing import Any
 
 from .errors import InputError
 
 __all__ = ["read_text_file", "parse_json", "repair_text"]
 
 
-def read_text_file(path: Union[str, os.PathLike], *, kind: str, max_bytes: int, error=InputError,
+def read_text_file(path: str | os.PathLike, *, kind: str, max_bytes: int, error=InputError,
                    too_big_hint: str = "") -> str:
     """The UTF-8 text of a small file, or ``error`` naming the problem (missing, folder, too big, not UTF-8)."""
     p = Path(path)

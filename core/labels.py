@@ -15,7 +15,7 @@ exists, and close levels are told apart by their splitting.
 """
 from __future__ import annotations
 
-from typing import Optional, Sequence
+from collections.abc import Sequence
 
 import numpy as np
 
@@ -77,8 +77,12 @@ def level_labels(result, groups) -> list:
     ``lz_text`` ("" unless L_z labels the multiplet, see the module docstring), ``lz_centre``,
     ``position`` (mean <r> per axis), ``box`` and ``box_reason`` (:func:`core.bound.box_states`).
     Observables that cannot be computed are left empty: a label is never a reason to fail."""
-    from .analysis import (angular_momentum_z_multiplet, angular_momentum_z_uncertainty, mirror_parity,
-                           position_expectation)
+    from .analysis import (
+        angular_momentum_z_multiplet,
+        angular_momentum_z_uncertainty,
+        mirror_parity,
+        position_expectation,
+    )
     grid, states = result.grid, result.states
     energies = np.asarray(result.energies)
     try:
@@ -137,7 +141,7 @@ def clusters(energies: Sequence[float], resolution: float) -> list:
     return out
 
 
-def cluster_text(energies: Sequence[float], members: Sequence[int], energy_unit: str) -> Optional[str]:
+def cluster_text(energies: Sequence[float], members: Sequence[int], energy_unit: str) -> str | None:
     """``ΔE = 38.7 µeV`` for a cluster of two multiplets; the adjacent splittings for more; None for one."""
     if len(members) < 2:
         return None

@@ -18,9 +18,9 @@ name the file and the layer or polygon number, never the file's content.
 from __future__ import annotations
 
 import os
+from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Optional, Sequence
 
 import numpy as np
 
@@ -44,7 +44,7 @@ class LayerChoice:
     """A GDSII layer number and, optionally, one datatype (None: every datatype of the layer)."""
 
     layer: int
-    datatype: Optional[int] = None
+    datatype: int | None = None
 
     def __str__(self) -> str:
         return f"{self.layer}" if self.datatype is None else f"{self.layer}/{self.datatype}"
@@ -104,7 +104,7 @@ def layout_unit_scale(path, length_si: float) -> float:
     return float(_read_library(Path(os.fspath(path))).unit) / float(length_si)
 
 
-def _pick_cell(lib, path: Path, cell: Optional[str]):
+def _pick_cell(lib, path: Path, cell: str | None):
     if cell is not None:
         for c in lib.cells:
             if c.name == cell:
@@ -128,7 +128,7 @@ def _is_rectangle(v: np.ndarray) -> bool:
 
 
 def read_layout_gates(path, layers: Sequence[LayerChoice], *, scale: float, origin=(0.0, 0.0),
-                      voltage=0.0, cell: Optional[str] = None) -> tuple:
+                      voltage=0.0, cell: str | None = None) -> tuple:
     """The polygons of ``layers`` in ``cell`` (default: the only top cell) as a tuple of GateSpec.
 
     Each gate is labelled ``L<layer>/<datatype> #<n>`` (n counts from 1 per layer) and held at
@@ -210,6 +210,7 @@ def project_with_gates(gates: Sequence[GateSpec], *, depth=None, into=None, labe
     on each side, for the user to adjust.
     """
     from dataclasses import replace
+
     from .grid import Grid
     from .project import GatesTerm, MaterialSpec, Project, project_from_dict, project_to_dict
     if not gates:

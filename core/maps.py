@@ -403,7 +403,7 @@ def interpolate_map(values, *, lower, upper, grid: Grid, scale: float = 1.0,
         axes.append(np.clip(points, lo[a], hi[a]))
 
     nodes = tuple(np.linspace(lo[a], hi[a], data.shape[a]) for a in range(ndim))
-    from scipy.interpolate import RegularGridInterpolator   # ~0.3 s to import: only when a map is read
+    from scipy.interpolate import RegularGridInterpolator  # ~0.3 s to import: only when a map is read
     interpolant = RegularGridInterpolator(nodes, data, method=method, bounds_error=True)
 
     # Evaluate the grid's points (the same points as grid.mesh()) in slabs along x so the

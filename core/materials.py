@@ -113,7 +113,7 @@ class Material:
         """Geometric mean (m_x m_y m_z)^(1/3) in m0 (per valley)."""
         return math.prod(self.masses) ** (1.0 / 3.0)
 
-    def with_valley_axis(self, axis: str) -> "Material":
+    def with_valley_axis(self, axis: str) -> Material:
         """Return a copy with the longitudinal (distinct) mass on ``axis`` ("x", "y" or "z").
 
         Meaningful for uniaxial materials (Si, Ge) whose default valley has its

@@ -29,7 +29,6 @@ import os
 import re
 from collections import OrderedDict
 from pathlib import Path
-from typing import Optional
 
 import numpy as np
 
@@ -49,7 +48,7 @@ MAX_FILE_BYTES = 128 * 2**20
 MAX_POINTS = 1_000_000
 
 
-def resolve_data_path(file: str, base_dir: Optional[str], *, what: str = "points file") -> Path:
+def resolve_data_path(file: str, base_dir: str | None, *, what: str = "points file") -> Path:
     """``file`` resolved against ``base_dir`` (the current folder when None), refused if it leaves it."""
     if not isinstance(file, str) or not file.strip():
         raise InputError(f"{what}: expected a file name")
@@ -130,7 +129,7 @@ def _declared_points(p: Path) -> int:
     return sum(int(m) for m in _POINT_COUNTS[p.suffix.lower()].findall(head))
 
 
-def _load_mesh(p: Path, what: str, array_name: Optional[str]) -> tuple:
+def _load_mesh(p: Path, what: str, array_name: str | None) -> tuple:
     try:
         import meshio
     except ImportError:
@@ -170,7 +169,7 @@ def _load_mesh(p: Path, what: str, array_name: Optional[str]) -> tuple:
     return np.asarray(pts, dtype=float), np.asarray(values, dtype=float)
 
 
-def load_points_file(path, *, ndim: int, array_name: Optional[str] = None,
+def load_points_file(path, *, ndim: int, array_name: str | None = None,
                      what: str = "points file") -> tuple:
     """``(points, values)``: an ``(n, ndim)`` float array of positions and ``n`` finite values of V."""
     p = Path(os.fspath(path))
@@ -204,7 +203,7 @@ def load_points_file(path, *, ndim: int, array_name: Optional[str] = None,
     return np.ascontiguousarray(points), np.ascontiguousarray(values)
 
 
-def interpolate_points(points, values, grid: Grid, *, fill: Optional[float] = None) -> np.ndarray:
+def interpolate_points(points, values, grid: Grid, *, fill: float | None = None) -> np.ndarray:
     """V on the points of ``grid``, linear inside the convex hull of ``points``.
 
     Outside the hull the result is ``fill``; without one, :class:`InputError` says how many
@@ -214,7 +213,7 @@ def interpolate_points(points, values, grid: Grid, *, fill: Optional[float] = No
     return _fill_outside(_linear(points, np.asarray(values, dtype=float), grid), fill, points.shape[0], "data")
 
 
-def _fill_outside(out: np.ndarray, fill: Optional[float], n: int, source: str) -> np.ndarray:
+def _fill_outside(out: np.ndarray, fill: float | None, n: int, source: str) -> np.ndarray:
     """``out`` with its NaNs (grid points outside the hull) set to ``fill``, or the one-line error."""
     outside = np.isnan(out)
     count = int(np.count_nonzero(outside))
@@ -254,11 +253,11 @@ def _linear(points: np.ndarray, values: np.ndarray, grid: Grid) -> np.ndarray:
     return out
 
 
-_CACHE: "OrderedDict[tuple, tuple]" = OrderedDict()
+_CACHE: OrderedDict[tuple, tuple] = OrderedDict()
 
 
-def points_on_grid(file: str, base_dir: Optional[str], grid: Grid, *, array_name: Optional[str] = None,
-                   fill: Optional[float] = None) -> np.ndarray:
+def points_on_grid(file: str, base_dir: str | None, grid: Grid, *, array_name: str | None = None,
+                   fill: float | None = None) -> np.ndarray:
     """Read ``file`` (relative to ``base_dir``) and interpolate it onto ``grid`` (a fresh array).
 
     The interpolated values are kept for the last few (file, grid) pairs so that moving a slider

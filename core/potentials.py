@@ -8,8 +8,7 @@ from __future__ import annotations
 
 import os
 from collections import OrderedDict
-from pathlib import Path
-from typing import Mapping, Optional
+from collections.abc import Mapping
 
 import numpy as np
 
@@ -20,8 +19,8 @@ from .grid import Grid
 from .limits import MASS_RANGE, MAX_ENERGY, MAX_MAGNETIC_FIELD, POTENTIAL_WORK_ARRAYS
 from .maps import confined_map_path, interpolate_map, load_map_file
 from .materials import get_material
-from .resources import check_memory
 from .project import FieldTerm, FormulaTerm, GatesTerm, MapTerm, PointsTerm, Project
+from .resources import check_memory
 from .units import get_units
 
 __all__ = ["resolve_parameters", "resolve_value", "evaluate_potential", "evaluate_terms", "gate_list",
@@ -29,7 +28,7 @@ __all__ = ["resolve_parameters", "resolve_value", "evaluate_potential", "evaluat
            "potential_memory_bytes", "check_potential_memory"]
 
 
-def resolve_parameters(project: Project, overrides: Optional[Mapping[str, float]] = None) -> dict:
+def resolve_parameters(project: Project, overrides: Mapping[str, float] | None = None) -> dict:
     """Project parameters with ``overrides`` applied; unknown override names are refused."""
     params = dict(project.parameters)
     for name, value in (overrides or {}).items():
@@ -101,7 +100,7 @@ LINK_RULE = "cell"
 __all__ += ["project_material_map", "LINK_RULE"]
 
 
-def project_material_map(project: Project, params: Mapping[str, float], *, link_rule: Optional[str] = None):
+def project_material_map(project: Project, params: Mapping[str, float], *, link_rule: str | None = None):
     """The project's materials as a :class:`core.regions.MaterialMap`, or None without regions."""
     if not project.regions:
         return None
@@ -126,7 +125,7 @@ def project_material_map(project: Project, params: Mapping[str, float], *, link_
                                      masses, offsets, params, link_rule=link_rule or LINK_RULE)
 
 
-def project_g_factor(project: Project, params: Mapping[str, float]) -> Optional[float]:
+def project_g_factor(project: Project, params: Mapping[str, float]) -> float | None:
     m = project.material
     if m.g_factor is not None:
         return resolve_value(m.g_factor, params, "material.g_factor")
@@ -192,10 +191,10 @@ def gate_list(term: GatesTerm, params: Mapping[str, float], path: str = "potenti
     return out
 
 
-_MAP_CACHE: "OrderedDict[tuple, np.ndarray]" = OrderedDict()
+_MAP_CACHE: OrderedDict[tuple, np.ndarray] = OrderedDict()
 
 
-def _map_values(term: MapTerm, base_dir: Optional[str], path: str) -> np.ndarray:
+def _map_values(term: MapTerm, base_dir: str | None, path: str) -> np.ndarray:
     try:
         p = confined_map_path(term.file, base_dir)
     except InputError as exc:
@@ -219,7 +218,7 @@ def _map_values(term: MapTerm, base_dir: Optional[str], path: str) -> np.ndarray
     return values
 
 
-def _points_values(term: PointsTerm, base_dir: Optional[str], grid: Grid, params, path: str) -> np.ndarray:
+def _points_values(term: PointsTerm, base_dir: str | None, grid: Grid, params, path: str) -> np.ndarray:
     """Energy of a points term on the grid: scale * V, with V interpolated (core.points_map)."""
     from .points_map import points_on_grid
     scale = resolve_value(term.scale, params, f"{path}.scale")
@@ -232,8 +231,8 @@ def _points_values(term: PointsTerm, base_dir: Optional[str], grid: Grid, params
     return values
 
 
-def evaluate_terms(project: Project, *, grid: Optional[Grid] = None,
-                   parameters: Optional[Mapping[str, float]] = None, include_disabled: bool = False) -> list:
+def evaluate_terms(project: Project, *, grid: Grid | None = None,
+                   parameters: Mapping[str, float] | None = None, include_disabled: bool = False) -> list:
     """``[(index, term, array or None)]`` for every term (None for disabled ones unless asked)."""
     grid = grid or project.grid
     check_potential_memory(grid, sum(1 for t in project.potential if t.enabled or include_disabled))
@@ -304,8 +303,8 @@ def _check_magnitude(arr: np.ndarray, path: str, unit: str) -> None:
                            f"reach (the low levels would drown in rounding); check its units and size", path=path)
 
 
-def evaluate_potential(project: Project, *, grid: Optional[Grid] = None,
-                       parameters: Optional[Mapping[str, float]] = None) -> np.ndarray:
+def evaluate_potential(project: Project, *, grid: Grid | None = None,
+                       parameters: Mapping[str, float] | None = None) -> np.ndarray:
     """Sum of the enabled terms on ``grid`` (default: the project's grid) and the regions' band
     offsets, energy unit."""
     grid = grid or project.grid

@@ -37,9 +37,10 @@ import json
 import math
 import os
 import re
+from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 from pathlib import Path
-from typing import Any, Callable, Optional, Union
+from typing import Any
 
 from .atomic import atomic_write
 from .errors import FormulaError, InputError, ProjectError
@@ -61,7 +62,7 @@ ELECTRON_COUNTS = (1, 2)
 MAX_FILE_BYTES = 20 * 2**20
 #: states one solve may ask for (each is a grid-sized vector, and the dense steps grow as its cube)
 MAX_STATES = 10_000
-Value = Union[float, str]
+Value = float | str
 
 # --- migrations ---------------------------------------------------------------------------------
 
@@ -95,10 +96,10 @@ def _v1_to_v2(data: dict) -> dict:
 class MaterialSpec:
     """A material from the table (``name``), or a custom mass; ``mass``/``g_factor`` override the table."""
 
-    name: Optional[str] = None
-    mass: Optional[Union[Value, tuple]] = None
-    g_factor: Optional[Value] = None
-    permittivity: Optional[Value] = None     # static relative permittivity (two-electron repulsion)
+    name: str | None = None
+    mass: Value | tuple | None = None
+    g_factor: Value | None = None
+    permittivity: Value | None = None     # static relative permittivity (two-electron repulsion)
 
 
 @dataclass(frozen=True)
@@ -110,16 +111,16 @@ class RegionSpec:
     label: str
     inside: str
     material: MaterialSpec
-    offset: Optional[Value] = None
-    permittivity: Optional[Value] = None
+    offset: Value | None = None
+    permittivity: Value | None = None
 
 
 @dataclass(frozen=True)
 class GateSpec:
     label: str
     voltage: Value
-    polygon: Optional[tuple] = None      # ((x, y), ...) in the length unit
-    rectangle: Optional[tuple] = None    # (x0, y0, x1, y1)
+    polygon: tuple | None = None      # ((x, y), ...) in the length unit
+    rectangle: tuple | None = None    # (x0, y0, x1, y1)
 
 
 @dataclass(frozen=True)
@@ -135,7 +136,7 @@ class GatesTerm:
     label: str
     depth: Value
     gates: tuple
-    lever: Optional[Value] = None        # energy unit per volt; None: the particle's charge (-1000 meV/V)
+    lever: Value | None = None        # energy unit per volt; None: the particle's charge (-1000 meV/V)
     enabled: bool = True
     kind: str = field(default="gates", init=False)
 
@@ -147,7 +148,7 @@ class MapTerm:
     lower: tuple
     upper: tuple
     scale: Value = 1.0
-    array: Optional[str] = None
+    array: str | None = None
     method: str = "linear"
     enabled: bool = True
     kind: str = field(default="map", init=False)
@@ -164,8 +165,8 @@ class PointsTerm:
     label: str
     file: str
     scale: Value = 1.0
-    fill: Optional[Value] = None
-    array: Optional[str] = None
+    fill: Value | None = None
+    array: str | None = None
     enabled: bool = True
     kind: str = field(default="points", init=False)
 
@@ -204,16 +205,16 @@ class Project:
     parameter_ranges: dict = field(default_factory=dict)
     regions: tuple = ()
     schema_version: int = CURRENT_SCHEMA_VERSION
-    base_dir: Optional[str] = field(default=None, compare=False)
+    base_dir: str | None = field(default=None, compare=False)
     warnings: tuple = field(default=(), compare=False)
-    migrated_from: Optional[int] = field(default=None, compare=False)
+    migrated_from: int | None = field(default=None, compare=False)
     electrons: int = 1                       # 1, or 2 for two interacting electrons (core.two_electron)
 
     @property
     def ndim(self) -> int:
         return self.grid.ndim
 
-    def with_parameters(self, **values) -> "Project":
+    def with_parameters(self, **values) -> Project:
         params = dict(self.parameters)
         for k, v in values.items():
             if k not in params:
@@ -283,7 +284,7 @@ class _Reader:
         self.fail(path, f"expected a number{' or a formula of parameters' if allow_formula else ''}, "
                         f"got {self.show(value)}")
 
-    def integer(self, value, path: str, *, minimum: int, maximum: Optional[int] = None) -> int:
+    def integer(self, value, path: str, *, minimum: int, maximum: int | None = None) -> int:
         if (isinstance(value, bool) or not isinstance(value, (int, float))
                 or (isinstance(value, float) and (not math.isfinite(value) or value != int(value)))):
             self.fail(path, f"expected an integer >= {minimum}, got {self.show(value)}")
@@ -342,7 +343,7 @@ _CONTROL_IN_LINE = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029]")
 _CONTROL_IN_TEXT = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f]")
 
 
-def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
+def project_from_dict(data: Any, *, base_dir: str | None = None) -> Project:
     """Validate a decoded JSON document and build a :class:`Project` (migrating older schemas)."""
     project = _project_from_dict(data, base_dir=base_dir)
     warnings = list(project.warnings)
@@ -354,7 +355,7 @@ def project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
 _TOP_KEYS = _TOP_KEYS + ("regions",)        # material regions (optional), read by project_from_dict
 
 
-def _project_from_dict(data: Any, *, base_dir: Optional[str] = None) -> Project:
+def _project_from_dict(data: Any, *, base_dir: str | None = None) -> Project:
     """Every part of a project but its regions."""
     r = _Reader()
     data = r.obj(data, "project")
@@ -775,11 +776,11 @@ def project_to_json(project: Project) -> str:
     return repair_text(_dump(project_to_dict(project)) + "\n")
 
 
-def project_from_json(text: str, *, base_dir: Optional[str] = None, source: str = "project") -> Project:
+def project_from_json(text: str, *, base_dir: str | None = None, source: str = "project") -> Project:
     return project_from_dict(parse_json(text, source=source, error=ProjectError), base_dir=base_dir)
 
 
-def load_project(path: Union[str, os.PathLike]) -> Project:
+def load_project(path: str | os.PathLike) -> Project:
     """Read and validate a project file. Raises ProjectError (or InputError) naming the problem."""
     p = Path(path)
     text = read_text_file(p, kind="project file", max_bytes=MAX_FILE_BYTES, error=ProjectError,
@@ -787,7 +788,7 @@ def load_project(path: Union[str, os.PathLike]) -> Project:
     return project_from_json(text, base_dir=str(p.resolve().parent), source=str(p))
 
 
-def save_project(project: Project, path: Union[str, os.PathLike]) -> Path:
+def save_project(project: Project, path: str | os.PathLike) -> Path:
     """Write ``project`` atomically (temporary file in the same folder, then ``os.replace``).
 
     If ``path`` holds a project in an older schema, a copy is kept as ``path + ".bak"`` first.

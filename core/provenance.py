@@ -20,8 +20,8 @@ import dataclasses
 import hashlib
 import json
 import os
+from collections.abc import Mapping
 from pathlib import Path
-from typing import Mapping, Optional
 
 __all__ = ["fingerprint", "physics_document", "result_fingerprint", "sweep_fingerprint",
            "project_fingerprint_for_sweep", "sweep_matches", "sweep_changes", "changes", "map_file_hashes", "FINGERPRINT_DIGITS"]
@@ -65,8 +65,8 @@ def _file_hash(path: Path) -> str:
     return h
 
 
-def physics_document(project, *, parameters: Optional[Mapping[str, float]] = None, grid=None,
-                     exclude_parameter: Optional[str] = None) -> dict:
+def physics_document(project, *, parameters: Mapping[str, float] | None = None, grid=None,
+                     exclude_parameter: str | None = None) -> dict:
     """The part of the project document that decides the physics (see the module docstring).
 
     ``parameters`` replaces the project's values (the values as solved); ``grid`` its grid;
@@ -97,8 +97,8 @@ def physics_document(project, *, parameters: Optional[Mapping[str, float]] = Non
     return doc
 
 
-def fingerprint(project, *, parameters: Optional[Mapping[str, float]] = None, grid=None,
-                exclude_parameter: Optional[str] = None) -> str:
+def fingerprint(project, *, parameters: Mapping[str, float] | None = None, grid=None,
+                exclude_parameter: str | None = None) -> str:
     """Short SHA-256 (12 hex digits) of :func:`physics_document` (canonical JSON)."""
     doc = physics_document(project, parameters=parameters, grid=grid, exclude_parameter=exclude_parameter)
     text = json.dumps(doc, sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
@@ -126,11 +126,11 @@ def sweep_fingerprint(sweep) -> str:
             or fingerprint(sweep.project, exclude_parameter=_swept_name(sweep.project, str(sweep.parameter))))
 
 
-def project_fingerprint_for_sweep(project, target: str, *, parameters: Optional[Mapping[str, float]] = None) -> str:
+def project_fingerprint_for_sweep(project, target: str, *, parameters: Mapping[str, float] | None = None) -> str:
     """The fingerprint :func:`sweep_fingerprint` gives a sweep of ``target`` run on ``project``
     (with ``parameters`` as solved); ``""`` when ``project`` cannot sweep ``target`` at all."""
     from .errors import InputError
-    from .sweep.targets import prepare_target   # the one place that turns a field or gate into a swept parameter
+    from .sweep.targets import prepare_target  # the one place that turns a field or gate into a swept parameter
     if parameters is not None:
         project = dataclasses.replace(project, parameters={str(k): float(v) for k, v in parameters.items()})
     try:
@@ -140,7 +140,7 @@ def project_fingerprint_for_sweep(project, target: str, *, parameters: Optional[
     return fingerprint(prepared, exclude_parameter=name)
 
 
-def sweep_changes(sweep, project, *, parameters: Optional[Mapping[str, float]] = None) -> list:
+def sweep_changes(sweep, project, *, parameters: Mapping[str, float] | None = None) -> list:
     """What differs in the physics between the project ``sweep`` ran on and ``project`` (with
     ``parameters``), the swept quantity aside; [] when the sweep matches it."""
     from .errors import InputError
@@ -160,7 +160,7 @@ def sweep_changes(sweep, project, *, parameters: Optional[Mapping[str, float]] =
     return changes(a, b)
 
 
-def sweep_matches(sweep, project, *, parameters: Optional[Mapping[str, float]] = None) -> bool:
+def sweep_matches(sweep, project, *, parameters: Mapping[str, float] | None = None) -> bool:
     """True when ``sweep`` ran on ``project`` (with ``parameters``) apart from the swept quantity."""
     return project_fingerprint_for_sweep(project, str(sweep.parameter), parameters=parameters) == \
         sweep_fingerprint(sweep)
@@ -171,7 +171,7 @@ _SECTION_NAMES = {"units": "unit system", "material": "material", "grid": "grid"
                   "solver": "solver settings"}
 
 
-def changes(old, new, *, old_parameters: Optional[Mapping[str, float]] = None, old_grid=None,
+def changes(old, new, *, old_parameters: Mapping[str, float] | None = None, old_grid=None,
             limit: int = 4) -> list:
     """What differs in the physics between two projects, in a few words per item
     (``["VB = -0.18 (was -0.03)", "magnetic field"]``); [] when they are the same state."""

@@ -29,13 +29,13 @@ thinner than a grid spacing lying between two points is not seen.
 """
 from __future__ import annotations
 
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-from typing import Mapping, Sequence
 
 import numpy as np
 
 from .errors import FormulaError, ProjectError
-from .formula import Formula, parse_formula
+from .formula import parse_formula
 from .grid import Grid
 
 __all__ = ["MaterialMap", "LINK_RULES", "electron_volt_in"]
@@ -76,7 +76,7 @@ class MaterialMap:
 
     @classmethod
     def from_formulas(cls, labels: Sequence[str], formulas: Sequence[str], masses, offsets,
-                      parameters: Mapping[str, float], **kw) -> "MaterialMap":
+                      parameters: Mapping[str, float], **kw) -> MaterialMap:
         parsed = []
         for k, text in enumerate(formulas):
             try:

@@ -3,7 +3,6 @@ from __future__ import annotations
 
 import csv
 import io
-from typing import Optional
 
 import numpy as np
 
@@ -31,7 +30,7 @@ def multiplet_parity_label(parities: list, members) -> str:
     return " ".join(parts)
 
 
-def level_rows(result: StudyResult, *, tolerance: Optional[float] = None) -> list:
+def level_rows(result: StudyResult, *, tolerance: float | None = None) -> list:
     """One dict per multiplet: first/last index, multiplicity, energy, spacing to the ground level,
     mean position, parity label; ``bound`` False and ``box_state`` (why, in words) for a box state
     (:func:`core.bound.box_states`)."""
@@ -89,7 +88,7 @@ def format_spin_table(result: StudyResult) -> str:
     return "\n".join(lines)
 
 
-def format_level_table(result: StudyResult, *, tolerance: Optional[float] = None) -> str:
+def format_level_table(result: StudyResult, *, tolerance: float | None = None) -> str:
     """Plain-text table of the multiplets (energy unit and length unit in the header)."""
     u = result.units
     rows = level_rows(result, tolerance=tolerance)

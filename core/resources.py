@@ -2,7 +2,6 @@
 from __future__ import annotations
 
 import os
-from typing import Optional
 
 from .errors import MemoryLimitError
 
@@ -24,7 +23,7 @@ def _machine_available() -> int:
         return 1 << 62
 
 
-def _cgroup_room() -> Optional[int]:
+def _cgroup_room() -> int | None:
     """What this process's control group (cgroup v2 memory.max) still allows, or None without a limit."""
     try:
         with open("/sys/fs/cgroup/memory.max", encoding="ascii") as fh:
@@ -38,7 +37,7 @@ def _cgroup_room() -> Optional[int]:
         return None
 
 
-def _address_space_room() -> Optional[int]:
+def _address_space_room() -> int | None:
     """What the address-space limit (``ulimit -v``, RLIMIT_AS) still allows, or None without one."""
     try:
         import resource

@@ -1,8 +1,8 @@
 """One-call solves for notebooks: ``solve_states(grid, potential, states=...)``."""
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import replace
-from typing import Callable, Optional, Union
 
 import numpy as np
 
@@ -60,12 +60,12 @@ def choose_scheme(grid: Grid, potential: np.ndarray) -> tuple:
     return "spectral", f"the potential is smooth on this grid (second/first difference ratio {worst:.2f})"
 
 
-def solve_states(grid: Grid, potential: Union[np.ndarray, Callable, float], *, states: int,
+def solve_states(grid: Grid, potential: np.ndarray | Callable | float, *, states: int,
                  mass=1.0, units="dimensionless", scheme: str = "auto",
                  tolerance: float = DEFAULT_TOLERANCE, magnetic_field=None, gauge: str = "symmetric",
-                 gauge_centre=None, start: Optional[np.ndarray] = None,
-                 progress: Optional[Callable[[str, float], None]] = None,
-                 should_stop: Optional[Callable[[], bool]] = None,
+                 gauge_centre=None, start: np.ndarray | None = None,
+                 progress: Callable[[str, float], None] | None = None,
+                 should_stop: Callable[[], bool] | None = None,
                  degeneracy_tolerance: float = DEFAULT_DEGENERACY_TOLERANCE) -> Spectrum:
     """Find the lowest ``states`` bound states of ``potential`` on ``grid``.
 

@@ -1,21 +1,27 @@
 """The whole pipeline for a project: potential -> Hamiltonian -> lowest states."""
 from __future__ import annotations
 
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
-from typing import Callable, Mapping, Optional
 
 import numpy as np
 
 from .eigensolve import Spectrum, lowest_states, solver_memory_bytes
+from .errors import InputError
 from .grid import Grid
-from .hamiltonian import Hamiltonian, build_hamiltonian
-from .potentials import (evaluate_potential, magnetic_field, project_g_factor, project_masses, project_material_map,
-                         resolve_parameters)
+from .hamiltonian import build_hamiltonian
+from .potentials import (
+    evaluate_potential,
+    magnetic_field,
+    project_g_factor,
+    project_masses,
+    project_material_map,
+    resolve_parameters,
+)
 from .project import Project
 from .provenance import fingerprint
 from .resources import check_memory
 from .solve import choose_scheme
-from .errors import InputError
 from .units import get_units
 
 __all__ = ["StudyResult", "solve_project", "project_hamiltonian", "project_scheme", "SpinLevels", "spin_levels"]
@@ -34,7 +40,7 @@ class StudyResult:
     scheme: str
     scheme_reason: str
     magnetic_field: tuple
-    g_factor: Optional[float] = None
+    g_factor: float | None = None
     extra: dict = field(default_factory=dict)
     #: the project state solved (:func:`core.provenance.fingerprint` of the project, parameters and grid)
     fingerprint: str = ""
@@ -56,9 +62,9 @@ class StudyResult:
         return get_units(self.project.units)
 
 
-def project_hamiltonian(project: Project, *, parameters: Optional[Mapping[str, float]] = None,
-                        grid: Optional[Grid] = None, scheme: Optional[str] = None,
-                        potential: Optional[np.ndarray] = None) -> tuple:
+def project_hamiltonian(project: Project, *, parameters: Mapping[str, float] | None = None,
+                        grid: Grid | None = None, scheme: str | None = None,
+                        potential: np.ndarray | None = None) -> tuple:
     """Build (Hamiltonian, potential, params, scheme, reason) for a project."""
     grid = grid or project.grid
     params = resolve_parameters(project, parameters)
@@ -79,7 +85,7 @@ def project_hamiltonian(project: Project, *, parameters: Optional[Mapping[str, f
 
 
 def project_scheme(project: Project, grid: Grid, potential: np.ndarray, params: Mapping[str, float], *,
-                   scheme: Optional[str] = None, varying_mass: Optional[bool] = None) -> tuple:
+                   scheme: str | None = None, varying_mass: bool | None = None) -> tuple:
     """(scheme, reason) for a project: its setting, or for ``auto`` the choice of
     :func:`core.solve.choose_scheme`, except that material regions with different effective masses
     need second-order differences (the only scheme here that carries a position-dependent mass)."""
@@ -95,11 +101,11 @@ def project_scheme(project: Project, grid: Grid, potential: np.ndarray, params: 
     return choose_scheme(grid, potential)
 
 
-def solve_project(project: Project, *, parameters: Optional[Mapping[str, float]] = None,
-                  states: Optional[int] = None, grid: Optional[Grid] = None, scheme: Optional[str] = None,
-                  start: Optional[np.ndarray] = None, tolerance: Optional[float] = None,
-                  progress: Optional[Callable[[str, float], None]] = None,
-                  should_stop: Optional[Callable[[], bool]] = None) -> StudyResult:
+def solve_project(project: Project, *, parameters: Mapping[str, float] | None = None,
+                  states: int | None = None, grid: Grid | None = None, scheme: str | None = None,
+                  start: np.ndarray | None = None, tolerance: float | None = None,
+                  progress: Callable[[str, float], None] | None = None,
+                  should_stop: Callable[[], bool] | None = None) -> StudyResult:
     """Solve a project (with optional parameter overrides) and return a :class:`StudyResult`."""
     grid = grid or project.grid
     k = int(states or project.solver.states)
@@ -111,7 +117,7 @@ def solve_project(project: Project, *, parameters: Optional[Mapping[str, float]]
     spec = lowest_states(h, k, tolerance=tolerance or project.solver.tolerance, start=start,
                          progress=progress, should_stop=should_stop)
     if start is None and tolerance is None:
-        from .estimate import record_solve       # the next estimate of this size uses this rate
+        from .estimate import record_solve  # the next estimate of this size uses this rate
         record_solve(scheme, grid, h.is_complex, k, spec.wall_time)
     return StudyResult(project=project, parameters=params, grid=grid, potential=v, spectrum=spec,
                        masses=project_masses(project, params), scheme=scheme, scheme_reason=reason,
@@ -132,7 +138,7 @@ class SpinLevels:
     zeeman: float              # g* mu_B |B|, the splitting of each orbital level, energy unit
 
 
-def spin_levels(result: "StudyResult") -> SpinLevels:
+def spin_levels(result: StudyResult) -> SpinLevels:
     """Spin-resolved levels E = E_orbital + g* mu_B |B| s, s = +-1/2.
 
     The Zeeman energy g* mu_B B . sigma / 2 commutes with the orbital Hamiltonian when there is no

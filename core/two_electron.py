@@ -35,8 +35,8 @@ coupling), reported as ``zeeman_splitting``.
 from __future__ import annotations
 
 import time
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
-from typing import Callable, Mapping, Optional
 
 import numpy as np
 import scipy.linalg as la
@@ -71,14 +71,14 @@ class TwoElectronResult:
     exchange_uncertainty: float          # |change of J| from the previous basis size
     energy_uncertainty: np.ndarray       # |change| of each level from the previous basis size
     orbitals: int                        # basis size of the reported values
-    previous_orbitals: Optional[int]     # basis size the change is measured from
+    previous_orbitals: int | None     # basis size the change is measured from
     converged: bool                      # True: the tolerance was met; False: the budget was hit
     stop_reason: str
     tolerance: float
     convergence: tuple
     permittivity: float
     permittivity_source: str
-    zeeman_splitting: Optional[float] = None
+    zeeman_splitting: float | None = None
     wall_time: float = 0.0
     notes: tuple = ()
     extra: dict = field(default_factory=dict)
@@ -209,12 +209,12 @@ def _memory_check(grid: Grid, n: int, complex_: bool) -> None:
         f"orbitals (about {fits} fit) or a coarser grid.")
 
 
-def two_electron_levels(grid: Grid, orbital_energies, orbitals, *, strength: float, groups: Optional[tuple] = None,
+def two_electron_levels(grid: Grid, orbital_energies, orbitals, *, strength: float, groups: tuple | None = None,
                         tolerance: float = DEFAULT_TOLERANCE, levels: int = DEFAULT_LEVELS,
                         permittivity: float = 1.0, permittivity_source: str = "given",
-                        zeeman_splitting: Optional[float] = None,
-                        progress: Optional[Callable[[str, float], None]] = None,
-                        should_stop: Optional[Callable[[], bool]] = None) -> TwoElectronResult:
+                        zeeman_splitting: float | None = None,
+                        progress: Callable[[str, float], None] | None = None,
+                        should_stop: Callable[[], bool] | None = None) -> TwoElectronResult:
     """Configuration interaction in the given orbitals ``[orbital, x, y(, z)]`` (sum |phi|^2 dV = 1,
     eigenstates of h with ``orbital_energies``, ascending).
 
@@ -331,8 +331,8 @@ def project_permittivity(project, params: Mapping[str, float]) -> tuple:
                      "(or a material from the table that has one)")
 
 
-def two_electron_for_spectrum(spectrum, project, *, parameters: Optional[Mapping[str, float]] = None,
-                              magnetic_field=None, g_factor: Optional[float] = None, **options) -> TwoElectronResult:
+def two_electron_for_spectrum(spectrum, project, *, parameters: Mapping[str, float] | None = None,
+                              magnetic_field=None, g_factor: float | None = None, **options) -> TwoElectronResult:
     """Two-electron levels from one solved point: a :class:`core.eigensolve.Spectrum` of ``project``
     (its states are the orbitals).  This is the per-point hook for sweeps: pass the point's
     parameter values, field (tesla, for the Zeeman splitting) and g-factor.  ``options`` go to
@@ -374,10 +374,10 @@ def sweep_columns(points) -> dict:
             "orbitals": [p.orbitals for p in points], "converged": [p.converged for p in points]}
 
 
-def solve_two_electron(project, *, parameters: Optional[Mapping[str, float]] = None, orbitals: Optional[int] = None,
+def solve_two_electron(project, *, parameters: Mapping[str, float] | None = None, orbitals: int | None = None,
                        tolerance: float = DEFAULT_TOLERANCE, levels: int = DEFAULT_LEVELS,
-                       progress: Optional[Callable[[str, float], None]] = None,
-                       should_stop: Optional[Callable[[], bool]] = None) -> tuple:
+                       progress: Callable[[str, float], None] | None = None,
+                       should_stop: Callable[[], bool] | None = None) -> tuple:
     """Solve the project's orbitals (``orbitals`` states, default the project's ``solver.states``),
     then the two-electron problem.  Returns ``(StudyResult, TwoElectronResult)``."""
     from .study import solve_project

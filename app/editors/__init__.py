@@ -3,8 +3,6 @@ refreshes itself on ``project_changed`` and edits only through ``Session.set_pro
 ``Session.set_parameter`` (so every edit can be undone)."""
 from __future__ import annotations
 
-from typing import Optional
-
 from PySide6.QtCore import Qt, QTimer
 from PySide6.QtWidgets import QFrame, QGroupBox, QScrollArea, QSplitter, QToolBox, QVBoxLayout, QWidget
 
@@ -37,7 +35,7 @@ class ProjectEditors(QWidget):
              ("regions", "Material regions"), ("fields", "Fields and spin"), ("solver", "Solver"),
              ("notes", "Title and notes"))
 
-    def __init__(self, session, parent: Optional[QWidget] = None):
+    def __init__(self, session, parent: QWidget | None = None):
         super().__init__(parent)
         self.session = session
         self.parameters = ParametersPanel(session)

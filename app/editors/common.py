@@ -2,7 +2,7 @@
 from __future__ import annotations
 
 import math
-from typing import Callable, Iterable, Optional
+from collections.abc import Callable, Iterable
 
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import QComboBox, QFrame, QLabel, QLineEdit, QSizePolicy, QWidget
@@ -75,7 +75,7 @@ class ProjectPanel(QWidget):
 class MessageLabel(QLabel):
     """A one-line, word-wrapped message under an editor: an error (red) or a hint (grey)."""
 
-    def __init__(self, parent: Optional[QWidget] = None):
+    def __init__(self, parent: QWidget | None = None):
         super().__init__(parent)
         self.setWordWrap(True)
         self.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
@@ -153,8 +153,8 @@ class ValueField(QLineEdit):
 
     committed = Signal(object)
 
-    def __init__(self, parent: Optional[QWidget] = None, *, allow_formula: bool = True, positive: bool = False,
-                 allow_empty: bool = False, message: Optional[MessageLabel] = None):
+    def __init__(self, parent: QWidget | None = None, *, allow_formula: bool = True, positive: bool = False,
+                 allow_empty: bool = False, message: MessageLabel | None = None):
         super().__init__(parent)
         self.allow_formula = allow_formula
         self.positive = positive
@@ -162,7 +162,7 @@ class ValueField(QLineEdit):
         self.message = message
         self.parameters: tuple = ()
         self._shown = None
-        self.error: Optional[str] = None
+        self.error: str | None = None
         self.textEdited.connect(self._check)
         self.editingFinished.connect(self._finish)
 
@@ -202,7 +202,7 @@ class ValueField(QLineEdit):
         self._set_error(None)
         return True
 
-    def _set_error(self, message: Optional[str]) -> None:
+    def _set_error(self, message: str | None) -> None:
         had = self.error
         self.error = message
         self.setStyleSheet(FIELD_ERROR_STYLE if message else "")
@@ -224,7 +224,7 @@ class ValueField(QLineEdit):
         self.committed.emit(v)
 
 
-def apply_edit(session, make: Callable, text: str, message: Optional[MessageLabel] = None) -> bool:
+def apply_edit(session, make: Callable, text: str, message: MessageLabel | None = None) -> bool:
     """Build a new project with ``make(project)`` and hand it to the session (undoable).
 
     Errors (bad edit, validation) go to ``message``; nothing is lost. Returns True on success."""

@@ -10,7 +10,6 @@ from __future__ import annotations
 import dataclasses
 import math
 import re
-from typing import Optional
 
 from core.errors import InputError
 from core.formula import RESERVED_NAMES
@@ -24,7 +23,7 @@ __all__ = ["IDENTIFIER", "check_parameter_name", "parameter_uses", "add_paramete
 IDENTIFIER = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
 
 
-def check_parameter_name(project: Project, name: str, *, renaming: Optional[str] = None) -> str:
+def check_parameter_name(project: Project, name: str, *, renaming: str | None = None) -> str:
     """A valid, unused parameter name (stripped), or InputError saying why not."""
     name = (name or "").strip()
     if not IDENTIFIER.match(name):
@@ -102,7 +101,7 @@ def parameter_uses(project: Project, name: str) -> list:
 
 
 def add_parameter(project: Project, name: str, value: float = 0.0,
-                  value_range: Optional[tuple] = None) -> Project:
+                  value_range: tuple | None = None) -> Project:
     name = check_parameter_name(project, name)
     v = float(value)
     if not math.isfinite(v):
@@ -204,7 +203,7 @@ def new_term(project: Project, kind: str):
     raise InputError(f"unknown term kind {kind!r}")
 
 
-def add_term(project: Project, term, index: Optional[int] = None) -> Project:
+def add_term(project: Project, term, index: int | None = None) -> Project:
     terms = list(project.potential)
     terms.insert(len(terms) if index is None else max(0, min(index, len(terms))), term)
     return dataclasses.replace(project, potential=tuple(terms))
@@ -269,7 +268,7 @@ def set_gate(project: Project, term_index: int, gate_index: int, gate: GateSpec)
     return replace_term(project, term_index, dataclasses.replace(t, gates=tuple(gates)))
 
 
-def add_gate(project: Project, term_index: int, gate: Optional[GateSpec] = None) -> Project:
+def add_gate(project: Project, term_index: int, gate: GateSpec | None = None) -> Project:
     t = _gates_term(project, term_index)
     if gate is None:
         g = project.grid
@@ -310,6 +309,6 @@ def set_gate_polygon(project: Project, term_index: int, gate_index: int, vertice
     return set_gate(project, term_index, gate_index, gate)
 
 
-def set_material(project: Project, name: Optional[str], mass=None, g_factor=None) -> Project:
+def set_material(project: Project, name: str | None, mass=None, g_factor=None) -> Project:
     return dataclasses.replace(project, material=MaterialSpec(name=name, mass=mass, g_factor=g_factor,
                                                               permittivity=project.material.permittivity))

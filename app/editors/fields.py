@@ -2,7 +2,6 @@
 from __future__ import annotations
 
 import dataclasses
-from typing import Optional
 
 from PySide6.QtWidgets import QCheckBox, QFormLayout, QHBoxLayout, QLabel, QPushButton, QVBoxLayout, QWidget
 
@@ -17,7 +16,7 @@ AXES = ("x", "y", "z")
 
 
 class FieldsPanel(ProjectPanel):
-    def __init__(self, session, parent: Optional[QWidget] = None):
+    def __init__(self, session, parent: QWidget | None = None):
         super().__init__(parent)
         self.session = session
         self._loading = False

@@ -1,15 +1,14 @@
 """A formula editor that checks the formula as you type and shows the column and the reason."""
 from __future__ import annotations
 
-from typing import Iterable, Optional
+from collections.abc import Iterable
 
 from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtGui import QColor, QKeySequence, QShortcut, QTextCharFormat, QTextCursor, QTextFormat
-from PySide6.QtWidgets import (QHBoxLayout, QLabel, QPlainTextEdit, QPushButton, QTextEdit, QVBoxLayout,
-                               QWidget)
+from PySide6.QtWidgets import QHBoxLayout, QLabel, QPlainTextEdit, QPushButton, QTextEdit, QVBoxLayout, QWidget
 
 from core.errors import FormulaError
-from core.formula import COORDINATES, CONSTANTS, FUNCTIONS, parse_formula
+from core.formula import CONSTANTS, COORDINATES, FUNCTIONS, parse_formula
 
 from .common import MessageLabel
 
@@ -36,7 +35,7 @@ class FormulaEditor(QWidget):
 
     applied = Signal(str)
 
-    def __init__(self, parent: Optional[QWidget] = None):
+    def __init__(self, parent: QWidget | None = None):
         super().__init__(parent)
         self.parameters: tuple = ()
         self._applied_text = ""
@@ -73,8 +72,8 @@ class FormulaEditor(QWidget):
             sc.setContext(Qt.ShortcutContext.WidgetShortcut)
             sc.activated.connect(self.apply)
         self.edit.installEventFilter(self)
-        self.error_column: Optional[int] = None
-        self.error_text: Optional[str] = None
+        self.error_column: int | None = None
+        self.error_text: str | None = None
         self._update_buttons()
 
     # -- public --------------------------------------------------------------------------------
@@ -147,7 +146,7 @@ class FormulaEditor(QWidget):
         self.apply_button.setEnabled(changed and self.error_text is None)
         self.revert_button.setEnabled(changed)
 
-    def _mark(self, column: Optional[int]) -> None:
+    def _mark(self, column: int | None) -> None:
         if not column:
             self.edit.setExtraSelections([])
             return

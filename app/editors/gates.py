@@ -7,11 +7,20 @@ four-vertex outline whose vertices can be edited, added and removed.
 from __future__ import annotations
 
 import dataclasses
-from typing import Optional
 
 from PySide6.QtCore import Qt
-from PySide6.QtWidgets import (QAbstractItemView, QFormLayout, QHBoxLayout, QHeaderView, QLabel, QPushButton,
-                               QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (
+    QAbstractItemView,
+    QFormLayout,
+    QHBoxLayout,
+    QHeaderView,
+    QLabel,
+    QPushButton,
+    QTableWidget,
+    QTableWidgetItem,
+    QVBoxLayout,
+    QWidget,
+)
 
 from core.errors import WellscapeError
 from core.project import GatesTerm
@@ -25,10 +34,10 @@ __all__ = ["GatesEditor"]
 class GatesEditor(QWidget):
     """Edit the gates term at ``term_index`` of the session's project."""
 
-    def __init__(self, session, parent: Optional[QWidget] = None):
+    def __init__(self, session, parent: QWidget | None = None):
         super().__init__(parent)
         self.session = session
-        self.term_index: Optional[int] = None
+        self.term_index: int | None = None
         self._loading = False
         self.message = MessageLabel()
 
@@ -98,14 +107,14 @@ class GatesEditor(QWidget):
         lay.addWidget(self.message)
 
     # -- helpers -----------------------------------------------------------------------------------
-    def term(self) -> Optional[GatesTerm]:
+    def term(self) -> GatesTerm | None:
         p = self.session.project
         if self.term_index is None or self.term_index >= len(p.potential):
             return None
         t = p.potential[self.term_index]
         return t if isinstance(t, GatesTerm) else None
 
-    def selected_gate(self) -> Optional[int]:
+    def selected_gate(self) -> int | None:
         rows = self.gates.selectionModel().selectedRows() if self.gates.selectionModel() else []
         if rows:
             return rows[0].row()
@@ -122,7 +131,7 @@ class GatesEditor(QWidget):
                     "edit gates term")
 
     # -- session -> widgets ----------------------------------------------------------------------
-    def set_term(self, index: Optional[int]) -> None:
+    def set_term(self, index: int | None) -> None:
         self.term_index = index
         self.refresh()
 

@@ -2,10 +2,18 @@
 from __future__ import annotations
 
 import dataclasses
-from typing import Optional
 
-from PySide6.QtWidgets import (QComboBox, QGridLayout, QHBoxLayout, QLabel, QLineEdit, QPushButton, QSpinBox,
-                               QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (
+    QComboBox,
+    QGridLayout,
+    QHBoxLayout,
+    QLabel,
+    QLineEdit,
+    QPushButton,
+    QSpinBox,
+    QVBoxLayout,
+    QWidget,
+)
 
 from core.eigensolve import solver_memory_bytes
 from core.errors import InputError, WellscapeError
@@ -34,7 +42,7 @@ def _has_field(values) -> bool:
 
 
 class GridPanel(ProjectPanel):
-    def __init__(self, session, parent: Optional[QWidget] = None):
+    def __init__(self, session, parent: QWidget | None = None):
         super().__init__(parent)
         self.session = session
         self._loading = False
@@ -117,7 +125,7 @@ class GridPanel(ProjectPanel):
     def after_refresh(self) -> None:
         self.update_estimate()
 
-    def grid_from_fields(self, ndim: Optional[int] = None) -> Grid:
+    def grid_from_fields(self, ndim: int | None = None) -> Grid:
         ndim = ndim or self.dims.currentIndex() + 1
         lower, upper, points, bnd = [], [], [], []
         by_name = {v: k for k, v in BOUNDARY_NAMES.items()}

@@ -3,11 +3,19 @@ from __future__ import annotations
 
 import dataclasses
 import re
-from typing import Optional
 
 from PySide6.QtCore import Qt
-from PySide6.QtWidgets import (QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QHBoxLayout, QLabel,
-                               QLineEdit, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (
+    QCheckBox,
+    QComboBox,
+    QDoubleSpinBox,
+    QFormLayout,
+    QHBoxLayout,
+    QLabel,
+    QLineEdit,
+    QVBoxLayout,
+    QWidget,
+)
 
 from core.errors import InputError, WellscapeError
 from core.materials import ALGAAS_X_MAX, get_material, material_names
@@ -28,7 +36,7 @@ def _units_text(u) -> str:
 
 
 class MaterialPanel(ProjectPanel):
-    def __init__(self, session, parent: Optional[QWidget] = None):
+    def __init__(self, session, parent: QWidget | None = None):
         super().__init__(parent)
         self.session = session
         self._loading = False
@@ -167,7 +175,7 @@ class MaterialPanel(ProjectPanel):
             return
         self.redraw()
 
-    def _material_name(self) -> Optional[str]:
+    def _material_name(self) -> str | None:
         text = self.material.currentText()
         if text == CUSTOM:
             return None

@@ -7,11 +7,22 @@ sends ``live=False`` so that the final value gets a full solve.
 """
 from __future__ import annotations
 
-from typing import Optional
-
 from PySide6.QtCore import Qt, QTimer
-from PySide6.QtWidgets import (QDialog, QDialogButtonBox, QFormLayout, QGridLayout, QHBoxLayout, QLabel,
-                               QLineEdit, QMenu, QPushButton, QSlider, QToolButton, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (
+    QDialog,
+    QDialogButtonBox,
+    QFormLayout,
+    QGridLayout,
+    QHBoxLayout,
+    QLabel,
+    QLineEdit,
+    QMenu,
+    QPushButton,
+    QSlider,
+    QToolButton,
+    QVBoxLayout,
+    QWidget,
+)
 
 from core.errors import WellscapeError
 
@@ -26,7 +37,7 @@ SLIDER_STEPS = 1000
 class ParameterRow(QWidget):
     """One parameter: name, slider over its range, value field, and a menu."""
 
-    def __init__(self, panel: "ParametersPanel", name: str):
+    def __init__(self, panel: ParametersPanel, name: str):
         super().__init__()
         self.panel = panel
         self.name = name
@@ -66,7 +77,7 @@ class ParameterRow(QWidget):
 
         # slider events are coalesced: at most one live update per pass of the event loop, always
         # the latest position, so a busy window skips positions instead of falling behind
-        self._live_pending: Optional[float] = None
+        self._live_pending: float | None = None
         self._live_timer = QTimer(self)
         self._live_timer.setSingleShot(True)
         self._live_timer.setInterval(0)
@@ -157,7 +168,7 @@ class _RangeDialog(QDialog):
 class ParametersPanel(QWidget):
     """All named parameters of the project, each with a slider, a field and its own range."""
 
-    def __init__(self, session, parent: Optional[QWidget] = None):
+    def __init__(self, session, parent: QWidget | None = None):
         super().__init__(parent)
         self.session = session
         self.rows: dict = {}

@@ -4,8 +4,6 @@ Regions are edited in the project file for now; this page lists them so that a p
 regions opens, shows what it holds and keeps its regions through every other edit."""
 from __future__ import annotations
 
-from typing import Optional
-
 from PySide6.QtWidgets import QLabel, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget
 
 from .common import ProjectPanel
@@ -39,7 +37,7 @@ def region_rows(project) -> list:
 
 
 class RegionsPanel(ProjectPanel):
-    def __init__(self, session, parent: Optional[QWidget] = None):
+    def __init__(self, session, parent: QWidget | None = None):
         super().__init__(parent)
         self.session = session
         self.table = QTableWidget(0, len(HEADERS))

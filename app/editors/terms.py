@@ -5,12 +5,25 @@ from __future__ import annotations
 import dataclasses
 import os
 from pathlib import Path
-from typing import Optional
 
 from PySide6.QtCore import Qt
-from PySide6.QtWidgets import (QAbstractItemView, QComboBox, QFileDialog, QFormLayout, QHBoxLayout, QLabel,
-                               QLineEdit, QMenu, QPushButton, QStackedWidget, QToolButton, QTreeWidget,
-                               QTreeWidgetItem, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (
+    QAbstractItemView,
+    QComboBox,
+    QFileDialog,
+    QFormLayout,
+    QHBoxLayout,
+    QLabel,
+    QLineEdit,
+    QMenu,
+    QPushButton,
+    QStackedWidget,
+    QToolButton,
+    QTreeWidget,
+    QTreeWidgetItem,
+    QVBoxLayout,
+    QWidget,
+)
 
 from core.maps import INTERPOLATION_METHODS
 from core.project import FieldTerm, FormulaTerm, GatesTerm, MapTerm
@@ -30,10 +43,10 @@ SHOWN_KIND_NAMES = dict(KIND_NAMES, points="scattered points")    # kinds shown 
 class MapEditor(QWidget):
     """An imported potential map: its file, its own corners, a scale and the interpolation."""
 
-    def __init__(self, session, parent: Optional[QWidget] = None):
+    def __init__(self, session, parent: QWidget | None = None):
         super().__init__(parent)
         self.session = session
-        self.term_index: Optional[int] = None
+        self.term_index: int | None = None
         self._loading = False
         self.message = MessageLabel()
         self.file = QLineEdit()
@@ -69,14 +82,14 @@ class MapEditor(QWidget):
         form.addRow("Interpolation", self.method)
         form.addRow(self.message)
 
-    def term(self) -> Optional[MapTerm]:
+    def term(self) -> MapTerm | None:
         p = self.session.project
         if self.term_index is None or self.term_index >= len(p.potential):
             return None
         t = p.potential[self.term_index]
         return t if isinstance(t, MapTerm) else None
 
-    def set_term(self, index: Optional[int]) -> None:
+    def set_term(self, index: int | None) -> None:
         self.term_index = index
         self.refresh()
 
@@ -133,7 +146,7 @@ class MapEditor(QWidget):
 class TermsPanel(QWidget):
     """The potential is the sum of the enabled terms, in this order."""
 
-    def __init__(self, session, parent: Optional[QWidget] = None):
+    def __init__(self, session, parent: QWidget | None = None):
         super().__init__(parent)
         self.session = session
         self._loading = False
@@ -198,7 +211,7 @@ class TermsPanel(QWidget):
         self.refresh()
 
     # -- session -> widgets ----------------------------------------------------------------------
-    def selected(self) -> Optional[int]:
+    def selected(self) -> int | None:
         items = self.tree.selectedItems()
         return self.tree.indexOfTopLevelItem(items[0]) if items else None
 
@@ -278,12 +291,12 @@ class TermsPanel(QWidget):
             self.tree.setCurrentItem(self.tree.topLevelItem(self.tree.topLevelItemCount() - 1))
         return ok
 
-    def remove(self, index: Optional[int]) -> bool:
+    def remove(self, index: int | None) -> bool:
         if index is None:
             return False
         return self._apply(lambda p: edits.remove_term(p, index), "remove term")
 
-    def move(self, index: Optional[int], step: int) -> bool:
+    def move(self, index: int | None, step: int) -> bool:
         if index is None:
             return False
         ok = self._apply(lambda p: edits.move_term(p, index, index + step), "reorder terms")

@@ -16,7 +16,7 @@ Design", 2008) *and* a dash pattern.
 """
 from __future__ import annotations
 
-from functools import lru_cache
+from functools import cache
 
 import numpy as np
 import pyqtgraph as pg
@@ -37,13 +37,13 @@ _DASHES = (None, [6, 3], [1, 3], [8, 3, 1, 3])
 ACCENT = "#D55E00"
 
 
-@lru_cache(maxsize=None)
+@cache
 def colormap(name: str) -> pg.ColorMap:
     """The pyqtgraph colour map ``name`` (bundled with pyqtgraph; no network)."""
     return pg.colormap.get(name)
 
 
-@lru_cache(maxsize=None)
+@cache
 def lookup_table(name: str, points: int = 256) -> np.ndarray:
     """``(points, 4)`` uint8 RGBA table of a colour map (read-only)."""
     lut = np.asarray(colormap(name).getLookupTable(0.0, 1.0, points, alpha=True), dtype=np.uint8)

@@ -4,8 +4,6 @@ No physics here: only presentation of what ``core`` computed.
 """
 from __future__ import annotations
 
-from typing import Optional
-
 import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
@@ -78,7 +76,7 @@ def view_units(session):
     return get_units(project.units if project is not None else "dimensionless")
 
 
-def make_plot(parent: Optional[QtWidgets.QWidget] = None, *, x_title: str = "", y_title: str = "",
+def make_plot(parent: QtWidgets.QWidget | None = None, *, x_title: str = "", y_title: str = "",
               aspect_locked: bool = False) -> pg.PlotWidget:
     """A white PlotWidget with dark axes, unit-carrying titles and no SI prefix rescaling."""
     plot = pg.PlotWidget(parent=parent, background="w")
@@ -97,7 +95,7 @@ def make_plot(parent: Optional[QtWidgets.QWidget] = None, *, x_title: str = "", 
     return plot
 
 
-def set_titles(plot: pg.PlotWidget, x_title: Optional[str], y_title: Optional[str]) -> None:
+def set_titles(plot: pg.PlotWidget, x_title: str | None, y_title: str | None) -> None:
     """Axis titles (None leaves an axis alone, so a hidden axis stays hidden)."""
     item = plot.getPlotItem()
     if x_title is not None:
@@ -117,7 +115,7 @@ def colorbar(image_items, plot: pg.PlotWidget, cmap) -> pg.ColorBarItem:
     return bar
 
 
-def set_colorbar_title(bar: pg.ColorBarItem, name: str, unit: str = "", top: Optional[float] = None) -> None:
+def set_colorbar_title(bar: pg.ColorBarItem, name: str, unit: str = "", top: float | None = None) -> None:
     """Title ``name [unit]``; when the values (up to ``top``) are very small or large, the ticks are
     shown times a power of ten that goes into the unit: ``|ψ|² [10⁻⁴ nm⁻²]``."""
     factor, prefix = decade(top) if top is not None else (1.0, "")
@@ -169,7 +167,7 @@ def decade(top: float) -> tuple:
     return 10.0 ** (-e), f"10{str(e).translate(sup)} "
 
 
-def contour_lines(data: np.ndarray, levels, axes: tuple, keep: Optional[np.ndarray] = None) -> tuple:
+def contour_lines(data: np.ndarray, levels, axes: tuple, keep: np.ndarray | None = None) -> tuple:
     """Contour lines of a 2D array on grid ``axes`` as ``(x, y)`` arrays with NaN between pieces.
 
     Marching squares (skimage.measure.find_contours; vertices by linear interpolation along cell
@@ -255,7 +253,7 @@ class HintStack(QtWidgets.QStackedWidget):
         self.addWidget(content)
         self.setCurrentIndex(0)
 
-    def show_hint(self, text: Optional[str] = None) -> None:
+    def show_hint(self, text: str | None = None) -> None:
         if text is not None:
             self.hint_label.setText(text)
         self.setCurrentIndex(0)

@@ -6,7 +6,7 @@ shown *and* :func:`gl_available` says a context can be made; otherwise it shows 
 """
 from __future__ import annotations
 
-from typing import Optional, Sequence
+from collections.abc import Sequence
 
 import numpy as np
 from PySide6 import QtCore, QtGui, QtWidgets
@@ -29,7 +29,7 @@ def share_gl_contexts() -> bool:
     return QtCore.QCoreApplication.testAttribute(attr)
 
 
-def surface_mesh(volume: np.ndarray, level: float, grid) -> Optional[tuple]:
+def surface_mesh(volume: np.ndarray, level: float, grid) -> tuple | None:
     """Vertices (physical coordinates, length unit) and triangles of ``volume == level``.
 
     ``volume`` is indexed ``[x, y, z]`` on ``grid``.  Returns ``None`` when the level lies outside

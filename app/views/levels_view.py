@@ -14,22 +14,35 @@ words where the grid cannot tell levels apart.  The level count's certificate is
 """
 from __future__ import annotations
 
-from typing import Optional
-
 import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
 from core.convergence import DEGENERATE, TOO_COARSE
-from core.convergence_report import (coarse_words, format_bound, format_uncertain, level_status, order_words,
-                                     summary_words)
+from core.convergence_report import (
+    coarse_words,
+    format_bound,
+    format_uncertain,
+    level_status,
+    order_words,
+    summary_words,
+)
 from core.errors import WellscapeError
-
-from . import colormaps
 from core.labels import cluster_text, clusters, level_labels
 
-from .common import (HintStack, StaleNote, axis_title, fmt, fmt_energy, grey_plot, make_plot, pretty_unit,
-                     set_titles, stale_message)
+from . import colormaps
+from .common import (
+    HintStack,
+    StaleNote,
+    axis_title,
+    fmt,
+    fmt_energy,
+    grey_plot,
+    make_plot,
+    pretty_unit,
+    set_titles,
+    stale_message,
+)
 
 __all__ = ["LevelsView", "ToleranceBox", "level_labels"]
 
@@ -254,7 +267,7 @@ class LevelsView(QtWidgets.QWidget):
             tol = float(self.result.spectrum.degeneracy_tolerance)
         return float(tol) if tol is not None else 0.0
 
-    def _error_based_tolerance(self) -> Optional[float]:
+    def _error_based_tolerance(self) -> float | None:
         fn = getattr(self.session, "error_based_tolerance", None)
         return fn() if fn is not None and self.result is self.session.result else None
 
@@ -266,7 +279,7 @@ class LevelsView(QtWidgets.QWidget):
     def _on_tolerance_edited(self, value: float) -> None:
         self.set_tolerance(value)
 
-    def set_tolerance(self, value: Optional[float]) -> None:
+    def set_tolerance(self, value: float | None) -> None:
         """Set the session's degeneracy tolerance (None: the solver's) and regroup."""
         try:
             self.session.degeneracy_tolerance = None if value is None else float(value)
@@ -340,14 +353,14 @@ class LevelsView(QtWidgets.QWidget):
             return None
         return self.checks.report_for(self.result)
 
-    def _applied_report(self) -> Optional[tuple]:
+    def _applied_report(self) -> tuple | None:
         """``(grid_errors, splittings)`` of the report on the shown levels, or None without one."""
         rep = self.report()
         if rep is None:
             return None
         return rep.on_levels(self.result.energies, self.result.spectrum.degeneracy_tolerance)
 
-    def level_errors(self) -> Optional[np.ndarray]:
+    def level_errors(self) -> np.ndarray | None:
         """Estimated grid error of each shown level (nan where unknown), or None without a report."""
         applied = self._applied_report()
         return None if applied is None else applied[0]
@@ -646,7 +659,7 @@ class LevelsView(QtWidgets.QWidget):
                 placed[i] = limit
             nxt, nxt_h = placed[i], heights[i]
         xs, ys = [], []
-        for t, members, y_lab, y in zip(self._label_items, self.clusters, placed, want):
+        for t, _members, y_lab, y in zip(self._label_items, self.clusters, placed, want):
             t.setPos(self._label_x, float(y_lab))
             xs += [self._half + 0.1, self._label_x - 0.05]
             ys += [y, float(y_lab)]
@@ -672,7 +685,7 @@ class LevelsView(QtWidgets.QWidget):
         self.sel_item.setData([], [])
 
     # -- interaction ------------------------------------------------------------------------------
-    def level_at(self, x: float, y: float) -> Optional[int]:
+    def level_at(self, x: float, y: float) -> int | None:
         """The level whose bar (or label) is at data point (x, y), within 6 pixels; None if none."""
         if not self.bars:
             return None

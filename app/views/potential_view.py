@@ -9,7 +9,6 @@ from __future__ import annotations
 import dataclasses
 import math
 import time
-from typing import Optional
 
 import numpy as np
 import pyqtgraph as pg
@@ -19,9 +18,26 @@ from core.errors import WellscapeError
 from core.project import GatesTerm
 
 from . import colormaps
-from .common import stale_message
-from .common import (HintStack, axis_title, clean_zero, colorbar, contour_lines, fmt, fmt_energy, image_rect, make_plot, pretty_unit,
-                     sample_line, set_colorbar_title, set_titles, show_message, status_label, text_item, view_units)
+from .common import (
+    HintStack,
+    axis_title,
+    clean_zero,
+    colorbar,
+    contour_lines,
+    fmt,
+    fmt_energy,
+    image_rect,
+    make_plot,
+    pretty_unit,
+    sample_line,
+    set_colorbar_title,
+    set_titles,
+    show_message,
+    stale_message,
+    status_label,
+    text_item,
+    view_units,
+)
 from .isosurface import IsosurfaceWidget, Surface
 from .slices import SliceTriptych
 
@@ -49,7 +65,7 @@ class PotentialView(QtWidgets.QWidget):
         self.session = session
         self.ndim = 0
         self._grid = None
-        self._potential: Optional[np.ndarray] = None
+        self._potential: np.ndarray | None = None
         self.gate_rois: list = []          # (roi, term index, gate index)
         self.gate_labels: list = []
         self._gate_signature: list = []
@@ -235,7 +251,7 @@ class PotentialView(QtWidgets.QWidget):
         self._last_paint = time.perf_counter()
         self._paint_potential()
 
-    def _ground_density(self, grid) -> Optional[np.ndarray]:
+    def _ground_density(self, grid) -> np.ndarray | None:
         """|psi_0|^2 of the last result on this grid (slices then pass through the particle), else None."""
         result = getattr(self.session, "result", None)
         if result is None or result.grid != grid:

@@ -1,8 +1,6 @@
 """Three orthogonal slices of a 3D array with movable planes (one slider per plane)."""
 from __future__ import annotations
 
-from typing import Optional
-
 import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtWidgets
@@ -28,7 +26,7 @@ class SliceTriptych(QtWidgets.QWidget):
     def __init__(self, parent=None, *, colour_title: str = ""):
         super().__init__(parent)
         self._grid = None
-        self._volume: Optional[np.ndarray] = None
+        self._volume: np.ndarray | None = None
         self._cmap = colormaps.DENSITY
         self._levels = (0.0, 1.0)
         self._unit = ""
@@ -70,7 +68,7 @@ class SliceTriptych(QtWidgets.QWidget):
 
     # -- public ---------------------------------------------------------------------------
     def set_volume(self, grid, volume: np.ndarray, *, cmap: str, levels: tuple, length_unit: str,
-                   colour_title: tuple = ("", ""), keep_planes: bool = True, centre_on: Optional[np.ndarray] = None) -> None:
+                   colour_title: tuple = ("", ""), keep_planes: bool = True, centre_on: np.ndarray | None = None) -> None:
         """Show ``volume`` (indexed [x, y, z] on ``grid``) with colour map ``cmap`` and ``levels``.
 
         New planes go through the weighted centre of ``centre_on`` (default: of ``volume``)."""
@@ -87,7 +85,7 @@ class SliceTriptych(QtWidgets.QWidget):
         if colour_title[0]:
             set_colorbar_title(self.colorbar, colour_title[0], colour_title[1],
                                top=max(abs(self._levels[0]), abs(self._levels[1])))
-        for k, ((a, b), normal) in enumerate(_PLANES):
+        for k, ((a, b), _normal) in enumerate(_PLANES):
             set_titles = self.plots[k].getPlotItem().setLabel
             set_titles("bottom", axis_title(_NAMES[a], length_unit), color="#222222")
             set_titles("left", axis_title(_NAMES[b], length_unit), color="#222222")
@@ -134,7 +132,7 @@ class SliceTriptych(QtWidgets.QWidget):
             return
         grid = self._grid
         lut = colormaps.lookup_table(self._cmap)
-        for k, ((a, b), normal) in enumerate(_PLANES):
+        for k, ((a, b), _normal) in enumerate(_PLANES):
             data = self.slice(k)
             self.images[k].setImage(data, levels=self._levels, lut=lut, autoLevels=False)
             self.images[k].setRect(image_rect(grid, (a, b)))      # after setImage: the rect needs the shape

@@ -7,8 +7,6 @@ large view is three slices plus a rotatable isosurface of |psi|^2 (OpenGL, made 
 """
 from __future__ import annotations
 
-from typing import Optional
-
 import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
@@ -16,9 +14,25 @@ from PySide6 import QtCore, QtGui, QtWidgets
 from core.errors import WellscapeError
 
 from . import colormaps
-from .common import StaleNote, grey_plot, stale_message
-from .common import (HintStack, axis_title, colorbar, contour_lines, density_unit, fmt, fmt_energy, image_rect, make_plot,
-                     pretty_unit, set_colorbar_title, set_titles, show_message, status_label, wave_unit)
+from .common import (
+    HintStack,
+    StaleNote,
+    axis_title,
+    colorbar,
+    contour_lines,
+    density_unit,
+    fmt,
+    fmt_energy,
+    grey_plot,
+    image_rect,
+    make_plot,
+    set_colorbar_title,
+    set_titles,
+    show_message,
+    stale_message,
+    status_label,
+    wave_unit,
+)
 from .isosurface import IsosurfaceWidget, Surface, level_enclosing
 from .slices import SliceTriptych
 
@@ -576,7 +590,7 @@ class StatesView(QtWidgets.QWidget):
             roi.setPoints([tuple(map(float, v)) for v in vertices], closed=True)
         self._update_region()
 
-    def region_mask(self) -> Optional[np.ndarray]:
+    def region_mask(self) -> np.ndarray | None:
         """Boolean mask on the result's grid of the drawn region (None without a region)."""
         from core.analysis import box_mask, polygon_mask
         from core.grid import Grid
@@ -598,7 +612,7 @@ class StatesView(QtWidgets.QWidget):
         upper = [pos.x() + size.x(), pos.y() + size.y()] + [np.inf] * (grid.ndim - 2)
         return box_mask(grid, lower, upper)
 
-    def region_probability(self) -> Optional[float]:
+    def region_probability(self) -> float | None:
         """sum over the region of |psi|^2 dV for the selected state (core.analysis.probability_in_region)."""
         from core.analysis import probability_in_region
         mask = self.region_mask()

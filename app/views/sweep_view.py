@@ -8,7 +8,6 @@ selects the clicked level, so the states view shows it.
 from __future__ import annotations
 
 import html
-from typing import Optional
 
 import numpy as np
 import pyqtgraph as pg
@@ -17,9 +16,20 @@ from PySide6 import QtCore, QtWidgets
 from core.sweep import completeness_summary
 
 from . import colormaps
-from .common import StaleNote, grey_plot, stale_message
-from .common import (HintStack, NumberBox, axis_title, fmt, fmt_energy, make_plot, set_titles, show_message,
-                     status_label)
+from .common import (
+    HintStack,
+    NumberBox,
+    StaleNote,
+    axis_title,
+    fmt,
+    fmt_energy,
+    grey_plot,
+    make_plot,
+    set_titles,
+    show_message,
+    stale_message,
+    status_label,
+)
 
 __all__ = ["SweepView"]
 
@@ -48,7 +58,7 @@ class SweepView(QtWidgets.QWidget):
         self.gap_items: list = []
         self.track_labels: list = []
         self._running = False
-        self._pending_select: Optional[int] = None
+        self._pending_select: int | None = None
 
         # form
         self.parameter = QtWidgets.QComboBox()
@@ -441,7 +451,7 @@ class SweepView(QtWidgets.QWidget):
             return
         self.open_point(float(points[0].pos().x()), track)
 
-    def open_point(self, value: float, track: int) -> Optional[int]:
+    def open_point(self, value: float, track: int) -> int | None:
         """Re-solve at ``value`` of the swept parameter and select the level that ``track`` holds there."""
         sweep = self.sweep
         if sweep is None:

@@ -24,9 +24,10 @@ from __future__ import annotations
 import math
 import os
 import time
-from concurrent.futures import ProcessPoolExecutor, TimeoutError as FutureTimeout
+from collections.abc import Callable
+from concurrent.futures import ProcessPoolExecutor
+from concurrent.futures import TimeoutError as FutureTimeout
 from dataclasses import replace
-from typing import Callable, Optional
 
 import numpy as np
 
@@ -67,7 +68,7 @@ DEFAULT_REFINE_FRACTION = 0.5
 
 
 def _solve_chunk(project_dict: dict, base_dir, pname: str, values: list, k: int, count: str,
-                 threads: Optional[int] = None, check: bool = True) -> list:
+                 threads: int | None = None, check: bool = True) -> list:
     """Solve a run of consecutive values with warm starts (in a worker process, or locally)."""
     if threads:
         try:
@@ -179,11 +180,11 @@ def _assemble(project, target, values, points, t0, complete, notes=(), *, solver
                        refinement_solves=settler.used, two_electron=two)
 
 
-def run_sweep(project: Project, parameter: str, values, *, states: Optional[int] = None,
-              keep_states: bool = False, workers: int = 1, cluster: Optional[str] = None,
-              cluster_timeout: float = 5.0, progress: Optional[Callable[[str, float], None]] = None,
-              should_stop: Optional[Callable[[], bool]] = None, refine: bool = True,
-              refine_budget: Optional[int] = None, gap_resolution: Optional[float] = None,
+def run_sweep(project: Project, parameter: str, values, *, states: int | None = None,
+              keep_states: bool = False, workers: int = 1, cluster: str | None = None,
+              cluster_timeout: float = 5.0, progress: Callable[[str, float], None] | None = None,
+              should_stop: Callable[[], bool] | None = None, refine: bool = True,
+              refine_budget: int | None = None, gap_resolution: float | None = None,
               count: str = "auto", check_levels: bool = True) -> SweepResult:
     """Solve ``project`` at each of ``values`` of ``parameter`` (see :func:`sweep_targets`).
 
@@ -262,7 +263,7 @@ def _run_chunks(prepared, pname, vals, k, count, workers, cluster, cluster_timeo
     with ProcessPoolExecutor(max_workers=len(chunks), mp_context=mp.get_context("spawn")) as pool:
         futures = [pool.submit(_solve_chunk, *a) for a in args]
         try:
-            for c, fut in enumerate(futures):
+            for fut in futures:
                 while True:
                     if should_stop is not None and should_stop():
                         raise Cancelled("sweep cancelled")

@@ -13,7 +13,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from scipy.optimize import curve_fit
 
-from ..formatting import format_bound, format_energy, format_energy_bound, format_measured
+from ..formatting import format_energy, format_energy_bound, format_measured
 
 __all__ = ["Anticrossing", "CloseApproach", "find_close_approaches", "two_level_gap"]
 
@@ -68,7 +68,7 @@ class Anticrossing:
                 "evidence": self.evidence, "samples": [list(map(float, s)) for s in self.samples]}
 
     @classmethod
-    def from_dict(cls, a: dict) -> "Anticrossing":
+    def from_dict(cls, a: dict) -> Anticrossing:
         def num(key):
             v = a.get(key)
             return math.nan if v is None else float(v)

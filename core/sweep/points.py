@@ -7,7 +7,6 @@ from __future__ import annotations
 
 import time
 from dataclasses import dataclass, field
-from typing import Optional
 
 import numpy as np
 
@@ -37,14 +36,14 @@ class PointData:
     states: np.ndarray
     residuals: np.ndarray
     observables: dict
-    check: Optional[CompletenessCheck]
+    check: CompletenessCheck | None
     converged: bool = True
     seconds: float = 0.0
     notes: tuple = ()
-    start: Optional[np.ndarray] = field(default=None, repr=False)   # warm start for the next point
-    probe: Optional[np.ndarray] = field(default=None, repr=False)   # the completeness probe's vectors
+    start: np.ndarray | None = field(default=None, repr=False)   # warm start for the next point
+    probe: np.ndarray | None = field(default=None, repr=False)   # the completeness probe's vectors
     recovered: bool = False        # the first solve here missed a level, and solving again found it
-    two_electron: Optional[object] = None   # core.two_electron.TwoElectronResult for "electrons": 2
+    two_electron: object | None = None   # core.two_electron.TwoElectronResult for "electrons": 2
 
 
 def _inversion_parity(grid, states, potential, rtol=1e-9):
@@ -140,7 +139,7 @@ class PointSolver:
                              magnetic_field=tuple(h.magnetic_field), g_factor=project_g_factor(self.project, params))
         return h, result, converged
 
-    def solve(self, value: float, start: Optional[np.ndarray] = None, *, check: bool = True,
+    def solve(self, value: float, start: np.ndarray | None = None, *, check: bool = True,
               should_stop=None, previous_probe=None) -> PointData:
         """Solve at ``value`` (warm from ``start`` when given) and check completeness.
 

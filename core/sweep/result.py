@@ -2,7 +2,6 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Optional
 
 import numpy as np
 
@@ -21,15 +20,15 @@ class SweepResult:
     anticrossings: tuple
     observables: dict             # name -> (P, K)
     project: Project
-    states: Optional[np.ndarray] = None   # (P, K, *grid) when kept
+    states: np.ndarray | None = None   # (P, K, *grid) when kept
     wall_time: float = 0.0
     tracking_time: float = 0.0
     complete: bool = True
     notes: tuple = ()
     checks: tuple = ()            # per point: CompletenessCheck (how no level was missed), or None
-    converged: Optional[np.ndarray] = None   # (P,) bool: False where the solver stopped at its limit
+    converged: np.ndarray | None = None   # (P,) bool: False where the solver stopped at its limit
     refinement_solves: int = 0
-    two_electron: Optional[dict] = None   # per point: energies, spin, exchange J (core.two_electron.sweep_columns)
+    two_electron: dict | None = None   # per point: energies, spin, exchange J (core.two_electron.sweep_columns)
 
     @property
     def units(self):

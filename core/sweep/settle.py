@@ -23,8 +23,8 @@ from __future__ import annotations
 
 import math
 import warnings
+from collections.abc import Callable
 from dataclasses import dataclass, replace
-from typing import Callable, Optional
 
 import numpy as np
 from scipy.optimize import brentq, curve_fit
@@ -68,7 +68,7 @@ class _Pair:
     e: np.ndarray
     psi: np.ndarray
     err: np.ndarray        # Davis-Kahan bound on each state's error angle
-    point: Optional[PointData] = None   # the solve it came from (a warm start for values near it)
+    point: PointData | None = None   # the solve it came from (a warm start for values near it)
 
     @property
     def d(self) -> float:
@@ -115,7 +115,7 @@ class Settler:
     """Decides the candidates of one sweep, solving extra values through ``solve(value, start)``."""
 
     def __init__(self, values, points: list, tracks: np.ndarray, dv: float, *, resolution: float,
-                 degenerate: float, budget: int, solve: Optional[Callable] = None, should_stop=None):
+                 degenerate: float, budget: int, solve: Callable | None = None, should_stop=None):
         self.values = np.asarray(values, dtype=float)
         self.points = points
         self.tracks = tracks
@@ -135,7 +135,7 @@ class Settler:
     def _can_solve(self) -> bool:
         return self.solve is not None and self.used < self.budget and not (self.should_stop and self.should_stop())
 
-    def _solve_pair(self, x: float, near: _Pair) -> Optional[_Pair]:
+    def _solve_pair(self, x: float, near: _Pair) -> _Pair | None:
         """Solve at ``x`` (warm from ``near``'s solve) and return the two levels that span ``near``'s
         subspace best."""
         self.used += 1

@@ -1,7 +1,7 @@
 """Level tracking from point to point by wavefunction overlap, and the symmetry labels of tracks."""
 from __future__ import annotations
 
-from typing import Optional, Sequence
+from collections.abc import Sequence
 
 import numpy as np
 from scipy.optimize import linear_sum_assignment
@@ -63,7 +63,7 @@ def align_degenerate(states_list, energies, dv, spin=None, rel=1e-7):
     return out
 
 
-def labels_from_observables(obs: dict, tracks: np.ndarray) -> Optional[np.ndarray]:
+def labels_from_observables(obs: dict, tracks: np.ndarray) -> np.ndarray | None:
     """Integer codes of the symmetry labels (parities, spin) of each track at each point, or None.
     A label that is not defined at every point (NaN: the symmetry exists only at some values) is left out."""
     keys = [k for k in sorted(obs) if (k.startswith("parity_") or k == "spin") and np.all(np.isfinite(obs[k]))]

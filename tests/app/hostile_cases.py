@@ -66,7 +66,7 @@ def _ring(n, wiggle=0.0):
 
 
 def _npy_header_bytes(shape, descr="<f8") -> bytes:
-    header = "{'descr': '%s', 'fortran_order': False, 'shape': %r, }" % (descr, tuple(shape))
+    header = f"{{'descr': '{descr}', 'fortran_order': False, 'shape': {tuple(shape)!r}, }}"
     header += " " * ((64 - (10 + len(header) + 1) % 64) % 64) + "\n"
     return b"\x93NUMPY\x01\x00" + struct.pack("<H", len(header)) + header.encode("latin1")
 

@@ -43,10 +43,9 @@ def main(argv=None) -> int:
 
     from app.main import MainWindow
     from app.session import SAMPLES_DIR
-
     from app.style import share_gl_contexts
     share_gl_contexts()
-    app = QApplication.instance() or QApplication([])
+    _app = QApplication.instance() or QApplication([])
     window = MainWindow(confirm_close=lambda: "discard")
     window.resize(1440, 900)
     window.show()

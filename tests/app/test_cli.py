@@ -81,9 +81,9 @@ def test_user_errors_exit_nonzero_without_traceback(capsys, tmp_path):
 
 def test_command_line_does_not_import_qt():
     """The console script must run headless: solving must not load PySide6 or pyqtgraph."""
-    code = ("import sys; from app.cli import main; main(['check', %r]); "
+    code = (f"import sys; from app.cli import main; main(['check', {str(SAMPLE)!r}]); "
             "bad = [m for m in sys.modules if m.startswith(('PySide6', 'pyqtgraph'))]; "
-            "sys.exit(1 if bad else 0)") % str(SAMPLE)
+            "sys.exit(1 if bad else 0)")
     proc = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, timeout=120)
     assert proc.returncode == 0, proc.stderr
 

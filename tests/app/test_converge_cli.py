@@ -10,13 +10,13 @@ from __future__ import annotations
 import argparse
 import json
 import math
-
-import pytest
 import re
 from pathlib import Path
 
+import pytest
+
 import app.cli as cli
-from app.converge_cli import add_converge_parser, format_report
+from app.converge_cli import add_converge_parser
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_projects"
 

@@ -7,8 +7,16 @@ import dataclasses
 import pytest
 from PySide6.QtCore import Qt
 
-from app.editors import (FieldsPanel, GridPanel, MaterialPanel, NotesPanel, ParametersPanel, SolverPanel,
-                         TermsPanel, edits)
+from app.editors import (
+    FieldsPanel,
+    GridPanel,
+    MaterialPanel,
+    NotesPanel,
+    ParametersPanel,
+    SolverPanel,
+    TermsPanel,
+    edits,
+)
 from app.editors.formula import check_formula
 from app.editors.grid import memory_estimate
 from core.eigensolve import solver_memory_bytes

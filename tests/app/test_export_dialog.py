@@ -8,7 +8,6 @@ import pytest
 
 from app.export_dialog import ExportSheetDialog
 from app.session import Session
-from core.project import load_project
 
 ROOT = Path(__file__).resolve().parents[2]
 

@@ -16,7 +16,6 @@ import numpy as np
 import pytest
 
 from core.grid import Grid
-from core.potentials import evaluate_potential
 from core.project import FormulaTerm, new_project
 from core.study import solve_project
 

@@ -10,11 +10,10 @@ import re
 
 import pytest
 
+from app.views import LevelsView
 from core.figures import build_sheet
 from core.project import load_project
 from core.study import solve_project
-
-from app.views import LevelsView
 from tests.app.test_views import SAMPLES, _session, _view
 
 

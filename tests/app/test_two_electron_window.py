@@ -8,13 +8,12 @@ import dataclasses
 import numpy as np
 import pytest
 
+from app.views import LevelsView, SweepView
+from app.views.exchange_plot import exchange_points
 from core.errors import MemoryLimitError
 from core.formatting import format_energy
 from core.project import load_project
 from core.sweep import run_sweep
-
-from app.views import LevelsView, SweepView
-from app.views.exchange_plot import exchange_points
 from tests.app.test_session import SOLVE_TIMEOUT_MS, wait_idle
 from tests.app.test_views import SAMPLES
 

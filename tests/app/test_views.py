@@ -21,15 +21,14 @@ import pytest
 from PySide6 import QtCore
 from scipy.special import erf
 
+from app.views import LevelsView, PotentialView, StatesView, SweepView
+from app.views.common import fmt_energy
+from app.views.isosurface import gl_available
 from core.analysis import box_mask, polygon_mask, probability_in_region
 from core.grid import Grid
 from core.potentials import evaluate_potential, gate_list, resolve_parameters
 from core.project import FormulaTerm, GatesTerm, load_project, new_project
 from core.study import solve_project
-
-from app.views import LevelsView, PotentialView, StatesView, SweepView
-from app.views.common import fmt_energy
-from app.views.isosurface import gl_available
 
 ROOT = Path(__file__).resolve().parents[2]
 SAMPLES = ROOT / "sample_projects"

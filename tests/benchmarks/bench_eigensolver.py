@@ -15,7 +15,6 @@ spectral scheme), ``2d`` (256^2, 20 states, cold and warm), ``memory`` (128^3,
 from __future__ import annotations
 
 import os
-import resource
 import subprocess
 import sys
 import time
@@ -54,7 +53,7 @@ def case_3d():
     base = np.sort(spla.eigsh(a, k=20, which="SA", tol=1e-10)[0])
     t_base = time.perf_counter() - t
     centres = [1.5, 2.5, 3.5, 4.5]
-    print(f"[3d] 96^3 FD2 oscillator, 20 states")
+    print("[3d] 96^3 FD2 oscillator, 20 states")
     print(f"     baseline eigsh(SA): {t_base:7.2f} s   states per shell {count_per_shell(base, centres)}")
     print(f"     wellscape         : {t_ours:7.2f} s   states per shell {count_per_shell(ours.energies, centres)}"
           f"  ({ours.iterations} iterations, {ours.applications} H applications, {ours.energies.size} returned)")

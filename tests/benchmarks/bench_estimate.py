@@ -39,6 +39,7 @@ def _timed(fn, runs):
 
 def bench(path: Path, runs: int, fine: bool, count: bool, max_count_s: float = 1e9) -> list:
     import dataclasses
+
     from core.estimate import estimate_solve
     from core.inertia import certify_count, estimate_factorisation
     from core.project import load_project

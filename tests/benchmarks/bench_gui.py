@@ -290,11 +290,13 @@ def main() -> None:
     bench_open(repeat)
 
     from PySide6.QtWidgets import QApplication
+
     from app.style import share_gl_contexts
     share_gl_contexts()
     app = QApplication.instance() or QApplication([])
-    from app.main import MainWindow
     import importlib
+
+    from app.main import MainWindow
     importlib.import_module("app.views")     # imported before timing the in-process build
     importlib.import_module("pyqtgraph")
     t0 = time.perf_counter()

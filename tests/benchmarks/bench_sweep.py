@@ -9,7 +9,6 @@ tracking (target < 10%).
 """
 from __future__ import annotations
 
-import dataclasses
 import os
 import sys
 import time

@@ -39,6 +39,7 @@ def _peak_mib() -> float:
 
 def part_sample() -> None:
     import numpy as np
+
     from core.project import load_project
     from core.study import solve_project
     from core.two_electron import solve_two_electron, two_electron_for_spectrum
@@ -67,6 +68,7 @@ def part_sample() -> None:
 
 def part_coulomb() -> None:
     import numpy as np
+
     from core.coulomb import _kernel_values, coulomb_tensor
     from core.project import load_project
     from core.study import solve_project
@@ -105,6 +107,7 @@ def part_coulomb() -> None:
 def part_exact() -> None:
     import numpy as np
     import scipy.sparse.linalg as spla
+
     from core.coulomb import _kernel_values, coulomb_constant
     from core.project import load_project
     from core.study import project_hamiltonian, solve_project

@@ -27,10 +27,23 @@ import math
 import numpy as np
 import pytest
 
-from core.analysis import (angular_momentum_z, angular_momentum_z_matrix, angular_momentum_z_multiplet,
-                           box_mask, derivative_matrix_1d, mirror_parity, norms, oscillator_strengths,
-                           overlap_matrix, parity_label, polygon_mask, position_expectation,
-                           position_spread, probability_in_region, transition_dipoles)
+from core.analysis import (
+    angular_momentum_z,
+    angular_momentum_z_matrix,
+    angular_momentum_z_multiplet,
+    box_mask,
+    derivative_matrix_1d,
+    mirror_parity,
+    norms,
+    oscillator_strengths,
+    overlap_matrix,
+    parity_label,
+    polygon_mask,
+    position_expectation,
+    position_spread,
+    probability_in_region,
+    transition_dipoles,
+)
 from core.eigensolve import lowest_states
 from core.errors import InputError
 from core.grid import Grid

@@ -1,7 +1,6 @@
 """Bound or not: states held by the grid's hard walls are flagged "box state (not bound)"."""
 from __future__ import annotations
 
-import dataclasses
 from pathlib import Path
 
 import numpy as np

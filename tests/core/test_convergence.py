@@ -31,9 +31,23 @@ import numpy as np
 import pytest
 
 from core import Grid
-from core.convergence import (CONVERGED, CONVERGES, DEGENERATE, GROWING, NOT_MONOTONIC, NOT_RESOLVED, RESOLVED,
-                              TOO_COARSE, PartialConvergence, convergence_study, default_degeneracy_tolerance,
-                              interpolate_states, match_levels, observed_order, richardson)
+from core.convergence import (
+    CONVERGED,
+    CONVERGES,
+    DEGENERATE,
+    GROWING,
+    NOT_MONOTONIC,
+    NOT_RESOLVED,
+    RESOLVED,
+    TOO_COARSE,
+    PartialConvergence,
+    convergence_study,
+    default_degeneracy_tolerance,
+    interpolate_states,
+    match_levels,
+    observed_order,
+    richardson,
+)
 from core.convergence_levels import judge_level
 from core.convergence_report import format_report, format_spacing, format_uncertain, level_status
 from core.eigensolve import group_levels
@@ -64,7 +78,7 @@ def elliptical_project(points, ell=0.01, scheme="fd2"):
 def test_richardson_removes_the_leading_power_exactly():
     """For E(h) = E + a h^p the two-grid formula returns E (Richardson 1911), for any ratio of spacings."""
     for p in (2.0, 4.0, 6.0):
-        e = lambda h: 1.25 + 0.7 * h**p   # noqa: E731
+        e = lambda h, p=p: 1.25 + 0.7 * h**p   # noqa: E731
         assert richardson(e(0.3), e(0.21), 0.3, 0.21, p) == pytest.approx(1.25, abs=1e-14)
 
 

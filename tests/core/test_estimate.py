@@ -16,8 +16,15 @@ import pytest
 from core import Grid
 from core.eigensolve import solver_memory_bytes
 from core.errors import InputError, MemoryLimitError
-from core.estimate import (block_size, clear_rate_cache, convergence_grids, estimate_convergence, estimate_solve,
-                           estimate_sweep, measure_apply_rate)
+from core.estimate import (
+    block_size,
+    clear_rate_cache,
+    convergence_grids,
+    estimate_convergence,
+    estimate_solve,
+    estimate_sweep,
+    measure_apply_rate,
+)
 from core.hamiltonian import build_hamiltonian
 from core.project import FormulaTerm, MaterialSpec, Project, SolverSettings
 from core.study import solve_project

@@ -16,9 +16,18 @@ import numpy as np
 import pytest
 
 from core.errors import InputError
-from core.export import (hdf5_available, levels_csv_text, panel_csv_text, parameter_unit, read_states_npz,
-                         sweep_csv_text, write_hdf5, write_levels_csv, write_states_npz, write_sweep_csv,
-                         write_sweep_npz)
+from core.export import (
+    hdf5_available,
+    panel_csv_text,
+    parameter_unit,
+    read_states_npz,
+    sweep_csv_text,
+    write_hdf5,
+    write_levels_csv,
+    write_states_npz,
+    write_sweep_csv,
+    write_sweep_npz,
+)
 from core.project import project_from_dict
 from core.study import solve_project
 from core.units import get_units

@@ -23,6 +23,7 @@ def _text_boxes(fig):
     """(text, box) of every text the figure really draws, in display pixels: ``Text.draw`` is
     watched during a full draw, so tick labels matplotlib skips (outside the view) do not count."""
     from unittest import mock
+
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.text import Text
     if not isinstance(fig.canvas, FigureCanvasAgg):
@@ -76,6 +77,7 @@ def _check_sample(path: Path) -> list:
 def _sheet_problems(sheet) -> list:
     """The sheet drawn and measured as render_sheet draws it (the template's type sizes in force)."""
     import matplotlib
+
     from core.figures import _rc, _template
     with matplotlib.rc_context(_rc(_template(sheet.template))):
         return _problems(sheet_figure(sheet))
@@ -83,8 +85,8 @@ def _sheet_problems(sheet) -> list:
 
 def test_detector_finds_an_overlap():
     """The check itself can fail: two texts put on one spot are reported."""
-    from matplotlib.figure import Figure
     from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
     fig = Figure(figsize=(3, 2))
     FigureCanvasAgg(fig)
     fig.text(0.5, 0.5, "gap 0.0457 meV")

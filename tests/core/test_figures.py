@@ -23,8 +23,18 @@ import pytest
 from PIL import Image
 
 from core.errors import InputError
-from core.figures import (TEMPLATES, build_sheet, load_sheet, parse_layout, project_hash, render_sheet,
-                          save_sheet, sheet_figure, sheet_json_path, sheet_to_dict)
+from core.figures import (
+    TEMPLATES,
+    build_sheet,
+    load_sheet,
+    parse_layout,
+    project_hash,
+    render_sheet,
+    save_sheet,
+    sheet_figure,
+    sheet_json_path,
+    sheet_to_dict,
+)
 from core.project import project_from_dict
 from core.study import solve_project
 from core.units import get_units
@@ -347,7 +357,7 @@ def test_degenerate_levels_are_drawn_side_by_side(sheet, fig):
     e = sheet.panels[-1]["energies"]
     doublet = [b for b in bars if abs(b[0, 1] - e[1]) < 1e-9 or abs(b[0, 1] - e[2]) < 1e-9]
     assert len(doublet) == 2
-    (a0, a1), (b0, b1) = sorted((tuple(b[:, 0]) for b in doublet))
+    (a0, a1), (b0, b1) = sorted(tuple(b[:, 0]) for b in doublet)
     assert a1 <= b0                                               # next to each other, not on top
     texts = " ".join(t.get_text() for t in ax.texts)
     assert "1–2" in texts and "(×2)" in texts and "(×3)" in texts

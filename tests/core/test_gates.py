@@ -319,7 +319,7 @@ def test_sweep_line_agrees_with_every_pair_on_degenerate_outlines():
     from core.gates import _crossing_edges, _edges_cross
     rng = np.random.default_rng(7)
     crossing = 0
-    for trial in range(3000):
+    for _trial in range(3000):
         n = int(rng.integers(3, 11))
         v = rng.integers(0, 5, size=(n, 2)).astype(float)
         found = _crossing_edges(v)

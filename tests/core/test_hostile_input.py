@@ -32,7 +32,7 @@ def doc(**changes):
 
 
 def _header(shape, descr="<f8") -> bytes:
-    text = "{'descr': '%s', 'fortran_order': False, 'shape': %r, }" % (descr, tuple(shape))
+    text = f"{{'descr': '{descr}', 'fortran_order': False, 'shape': {tuple(shape)!r}, }}"
     text += " " * ((64 - (10 + len(text) + 1) % 64) % 64) + "\n"
     return b"\x93NUMPY\x01\x00" + struct.pack("<H", len(text)) + text.encode("latin1")
 

@@ -5,7 +5,7 @@ import numpy as np
 import pytest
 
 from core.analysis import angular_momentum_z_uncertainty
-from core.labels import LZ_SHARP, clusters, cluster_text, level_labels, mirror_axes_kept, splitting_text
+from core.labels import LZ_SHARP, cluster_text, clusters, level_labels, mirror_axes_kept, splitting_text
 from core.project import project_from_dict
 from core.study import solve_project
 from core.units import get_units

@@ -12,12 +12,12 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+import core.layout as layout
 from core.errors import InputError
 from core.grid import Grid
+from core.layout import LayerChoice, parse_layer, project_with_gates, read_layout_gates
 from core.potentials import default_lever, evaluate_potential
 from core.project import GateSpec, GatesTerm, MaterialSpec, Project
-import core.layout as layout
-from core.layout import LayerChoice, parse_layer, project_with_gates, read_layout_gates
 
 gdstk = pytest.importorskip("gdstk")
 

@@ -22,8 +22,7 @@ import math
 import pytest
 
 from core.errors import InputError
-from core.materials import (ALGAAS_X_MAX, MATERIALS, Material, algaas, custom_material,
-                            get_material, material_names)
+from core.materials import ALGAAS_X_MAX, MATERIALS, Material, algaas, custom_material, get_material, material_names
 
 TIGHT = dict(rel=1e-12)  # table entries are typed-in decimals: round-off only
 

@@ -22,18 +22,25 @@ import json
 
 import numpy as np
 import pytest
+from scipy.spatial import Delaunay
 
+import core.points_map as pm
 from core.errors import InputError, ProjectError
 from core.grid import Grid
 from core.potentials import evaluate_potential
-from core.project import (FormulaTerm, MaterialSpec, PointsTerm, Project, load_project, project_from_dict,
-                          project_to_dict)
+from core.project import (
+    FormulaTerm,
+    MaterialSpec,
+    PointsTerm,
+    Project,
+    load_project,
+    project_from_dict,
+    project_to_dict,
+)
 from core.study import solve_project
 from core.units import get_units
-import core.points_map as pm
 
 meshio = pytest.importorskip("meshio")
-from scipy.spatial import Delaunay
 
 HW = 3.0                                                   # meV
 L0 = get_units("semiconductor").oscillator_length(0.067, HW)   # nm, GaAs m* = 0.067 (core.materials)

@@ -23,8 +23,7 @@ import pytest
 from core.errors import InputError
 from core.grid import Grid
 from core.potentials import default_lever, evaluate_potential, evaluate_terms, resolve_value
-from core.project import (FieldTerm, FormulaTerm, GateSpec, GatesTerm, MapTerm, MaterialSpec, Project,
-                          new_project)
+from core.project import FieldTerm, FormulaTerm, GateSpec, GatesTerm, MapTerm, MaterialSpec, Project, new_project
 from core.study import solve_project
 
 # Closed forms in float64: the gate solid angle is a sum of four atan2 terms (rectangle) or n

@@ -20,9 +20,25 @@ import pytest
 from core.errors import InputError, ProjectError
 from core.grid import Grid
 from core.potentials import evaluate_potential
-from core.project import (CURRENT_SCHEMA_VERSION, MIGRATIONS, FieldTerm, FormulaTerm, GateSpec, GatesTerm,
-                          MapTerm, MaterialSpec, Project, SolverSettings, load_project, new_project,
-                          project_from_dict, project_from_json, project_to_dict, project_to_json, save_project)
+from core.project import (
+    CURRENT_SCHEMA_VERSION,
+    MIGRATIONS,
+    FieldTerm,
+    FormulaTerm,
+    GateSpec,
+    GatesTerm,
+    MapTerm,
+    MaterialSpec,
+    Project,
+    SolverSettings,
+    load_project,
+    new_project,
+    project_from_dict,
+    project_from_json,
+    project_to_dict,
+    project_to_json,
+    save_project,
+)
 
 DATA = pathlib.Path(__file__).resolve().parent.parent / "data"
 V1_FILE = DATA / "project_v1.json"

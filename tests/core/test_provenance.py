@@ -7,12 +7,18 @@ import shutil
 from pathlib import Path
 
 import numpy as np
-import pytest
 
 from core.grid import Grid
 from core.project import FormulaTerm, load_project, new_project, save_project
-from core.provenance import (changes, fingerprint, project_fingerprint_for_sweep, result_fingerprint,
-                             sweep_changes, sweep_fingerprint, sweep_matches)
+from core.provenance import (
+    changes,
+    fingerprint,
+    project_fingerprint_for_sweep,
+    result_fingerprint,
+    sweep_changes,
+    sweep_fingerprint,
+    sweep_matches,
+)
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_projects"
 

@@ -137,6 +137,7 @@ def test_extreme_region_mass_is_refused_with_the_limit():
     before any operator is built (the project-wide mass range of core.limits)."""
     import numpy as np
     import pytest as _pytest
+
     from core.errors import ProjectError
     from core.regions import MaterialMap
     with _pytest.raises(ProjectError, match="within"):

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 import scipy.linalg as sla
 
-from core.errors import Cancelled, InputError, ProjectError, WellscapeError
+from core.errors import Cancelled, InputError, WellscapeError
 from core.grid import Grid
 from core.project import FormulaTerm, MaterialSpec, Project, SolverSettings, load_project
 from core.sweep import load_sweep, run_sweep, save_sweep, track_levels

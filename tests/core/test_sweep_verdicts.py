@@ -211,6 +211,7 @@ def test_sweep_starting_at_the_symmetric_point():
     used to crash with KeyError: 'parity_inversion'.  Observables that exist at some points only are NaN
     elsewhere, and symmetry labels are then not used."""
     from pathlib import Path
+
     from core.project import load_project
     project = load_project(Path(__file__).resolve().parents[2] / "sample_projects" / "gaas_double_dot.json")
     r = run_sweep(project, "eps", np.linspace(0.0, 0.002, 4), states=4)

@@ -9,10 +9,10 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq
 
+from core import two_electron as te
 from core.errors import Cancelled, InputError, MemoryLimitError
 from core.grid import Grid
 from core.solve import solve_states
-from core import two_electron as te
 from tests.core.radial_reference import relative_energy, two_electron_energy
 
 
@@ -101,7 +101,7 @@ def test_double_dot_singlet_ground_and_exchange_falls_with_barrier():
     js = []
     for d in (1.5, 2.0, 2.5):
         g = Grid([-d - 5.0, -5.0], [d + 5.0, 5.0], [40, 28])
-        sp = solve_states(g, lambda x, y: (x**2 - d**2)**2 / (8 * d**2) + 0.5 * y**2, states=16, scheme="spectral")
+        sp = solve_states(g, lambda x, y, d=d: (x**2 - d**2)**2 / (8 * d**2) + 0.5 * y**2, states=16, scheme="spectral")
         r = te.two_electron_levels(g, sp.energies, sp.states, strength=1.0, groups=sp.groups)
         assert r.spin[0] == "singlet" and r.exchange > 0
         js.append((r.exchange, r.exchange_uncertainty))
@@ -149,6 +149,7 @@ def test_complete_basis_equals_exact_diagonalisation_on_the_grid():
     <P12> = +1 (singlet) or -1 (triplet).  Tolerance 1e-9 (rounding).  A double well, so the levels
     are not degenerate."""
     import scipy.linalg as la
+
     from core.coulomb import _kernel_values
     from core.hamiltonian import build_hamiltonian
     g = Grid([-4.0, -3.0], [4.0, 3.0], [7, 5])
