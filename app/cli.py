@@ -10,105 +10,19 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-import time
 from collections.abc import Sequence
 from pathlib import Path
 
 import numpy as np
 
+from app.cli_common import EXIT_USER_ERROR, Progress, UsageError, apply_sets, jsonable, load_with_notes, parse_sets
+
 SAMPLES = Path(__file__).resolve().parent.parent / "sample_projects"
 DEFAULT_SAMPLE = "gaas_single_dot.json"
 
-EXIT_USER_ERROR = 2
-
-
-class _Progress:
-    """A one-line progress bar on a terminal; silent when stderr is not a terminal."""
-
-    def __init__(self, label: str, enabled: bool | None = None):
-        self.label = label
-        self.enabled = sys.stderr.isatty() if enabled is None else enabled
-        self.t0 = time.perf_counter()
-        self.last = -1.0
-
-    def __call__(self, stage: str, fraction: float) -> None:
-        if not self.enabled:
-            return
-        now = time.perf_counter()
-        if fraction < 1.0 and now - self.last < 0.1:
-            return
-        self.last = now
-        width = 28
-        filled = int(round(width * max(0.0, min(1.0, fraction))))
-        sys.stderr.write(f"\r{self.label}: {stage:<10} [{'#' * filled}{'.' * (width - filled)}] "
-                         f"{100 * fraction:5.1f}%  {now - self.t0:6.1f} s")
-        sys.stderr.flush()
-
-    def done(self) -> None:
-        if self.enabled:
-            sys.stderr.write("\n")
-            sys.stderr.flush()
-
-
-def _parse_sets(items: Sequence[str]) -> dict:
-    out = {}
-    for item in items or ():
-        if "=" not in item:
-            raise _UsageError(f"--set expects NAME=VALUE, got {item!r}")
-        name, value = item.split("=", 1)
-        try:
-            out[name.strip()] = float(value)
-        except ValueError:
-            raise _UsageError(f"--set {name}: {value!r} is not a number") from None
-    return out
-
-
-class _UsageError(Exception):
-    pass
-
-
-def _apply_sets(project, items: Sequence[str]):
-    """``(project, parameter overrides)`` for ``--set`` items: parameters become overrides; a field
-    component (``magnetic_field[2]``) or a gate voltage (``gate:P1``) is fixed in the project."""
-    from core.errors import InputError
-    from core.sweep.targets import set_target, sweep_targets
-    overrides = {}
-    for name, value in _parse_sets(items).items():
-        if name in project.parameters:
-            overrides[name] = value
-            continue
-        try:
-            project = set_target(project, name, value)
-        except InputError:
-            known = ", ".join(sweep_targets(project)) or "none"
-            raise _UsageError(f"--set {name}: unknown parameter, field component or gate; this project's "
-                              f"settable names are: {known}") from None
-    return project, overrides
-
-
-def _load(path: str):
-    from core.project import load_project
-    project = load_project(path)
-    for w in project.warnings:
-        print(f"wellscape: warning: {w}", file=sys.stderr)
-    if project.migrated_from:
-        print(f"wellscape: note: {path} uses schema {project.migrated_from}; read it in the current schema "
-              f"(the file is unchanged)", file=sys.stderr)
-    return project
-
-
-def _jsonable(obj):
-    if isinstance(obj, dict):
-        return {k: _jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_jsonable(v) for v in obj]
-    if isinstance(obj, np.ndarray):
-        return _jsonable(obj.tolist())
-    if isinstance(obj, (np.floating,)):
-        return float(obj)
-    if isinstance(obj, (np.integer,)):
-        return int(obj)
-    return obj
+# the old private names, still imported by app/figure_cli.py
+_Progress, _UsageError, _apply_sets, _load, _jsonable, _parse_sets = (
+    Progress, UsageError, apply_sets, load_with_notes, jsonable, parse_sets)
 
 
 # --- commands ----------------------------------------------------------------------------------
@@ -119,8 +33,8 @@ def cmd_solve(args) -> int:
     from core.report import format_level_table, level_rows, levels_csv
     from core.study import solve_project
 
-    project, overrides = _apply_sets(_load(args.project), args.set)
-    bar = _Progress("solving", enabled=None if not args.json else False)
+    project, overrides = apply_sets(load_with_notes(args.project), args.set)
+    bar = Progress("solving", enabled=None if not args.json else False)
     pair = None
     if project.electrons == 2:
         from core.two_electron import solve_two_electron
@@ -168,7 +82,7 @@ def cmd_solve(args) -> int:
                                   "spin": sl.spin.tolist(), "zeeman_splitting": sl.zeeman}
         if pair is not None:
             doc["two_electron"] = dict(pair.to_dict(), energy_unit=u.energy_unit)
-        print(json.dumps(_jsonable(doc), indent=1))
+        print(json.dumps(jsonable(doc), indent=1))
         return 0
     print(f"{project.title}")
     print(f"{result.grid.describe()}; scheme {result.scheme} ({result.scheme_reason})")
@@ -201,7 +115,7 @@ def cmd_potential(args) -> int:
     from core.potentials import evaluate_potential
     from core.units import get_units
 
-    project, overrides = _apply_sets(_load(args.project), args.set)
+    project, overrides = apply_sets(load_with_notes(args.project), args.set)
     v = evaluate_potential(project, parameters=overrides)
     u = get_units(project.units)
     out = Path(args.output)
@@ -222,10 +136,10 @@ def cmd_potential(args) -> int:
             header = (f"first column: x [{u.length_unit}]; other columns: V [{u.energy_unit}] at "
                       f"y [{u.length_unit}] = " + " ".join(f"{y:.6g}" for y in axes[1]))
         else:
-            raise _UsageError("a 3D potential cannot be written as CSV; use .npy or .npz")
+            raise UsageError("a 3D potential cannot be written as CSV; use .npy or .npz")
         np.savetxt(out, table, delimiter=",", header=header, fmt="%.10g")
     else:
-        raise _UsageError(f"unknown output type {out.suffix!r}; use .npy, .npz or .csv")
+        raise UsageError(f"unknown output type {out.suffix!r}; use .npy, .npz or .csv")
     print(f"wrote {out}: potential on a {project.grid.describe()}, range {v.min():.6g} .. {v.max():.6g} "
           f"{u.energy_unit}")
     return 0
@@ -239,7 +153,7 @@ def cmd_check(args) -> int:
     from core.study import project_scheme
     from core.units import get_units
 
-    project = _load(args.project)
+    project = load_with_notes(args.project)
     g = project.grid
     k = project.solver.states
     estimate_solve(project, measure=False).check()      # sizes first: refused before anything is allocated
@@ -273,7 +187,7 @@ def cmd_open(args) -> int:
     try:
         from app.main import run_gui
     except ImportError as exc:
-        raise _UsageError(f"the desktop window is not available here ({exc}); the command line works: "
+        raise UsageError(f"the desktop window is not available here ({exc}); the command line works: "
                           f"wellscape solve PROJECT") from None
     return run_gui(args)
 
@@ -355,7 +269,7 @@ def main(argv: Sequence[str] | None = None) -> int:
             for folder in args.map_folder:
                 allow_map_folder(folder)
         return int(args.func(args) or 0)
-    except (WellscapeError, _UsageError) as exc:
+    except (WellscapeError, UsageError) as exc:
         print(f"wellscape: error: {exc}", file=sys.stderr)
         return EXIT_USER_ERROR
     except MemoryError:            # the estimates refuse what will not fit; this is the last line of defence

@@ -13,6 +13,8 @@ import os
 import sys
 import time
 
+from app.cli_common import Progress, UsageError, apply_sets, jsonable, load_with_notes
+
 __all__ = ["add_converge_parser", "cmd_converge", "format_report"]
 
 
@@ -63,17 +65,16 @@ def format_report(report, *, marks=None, title: str = "", certificate=None, timi
 
 
 def cmd_converge(args) -> int:
-    from app.cli import _apply_sets, _jsonable, _load, _Progress, _UsageError
     from core.convergence import convergence_study
     from core.estimate import estimate_convergence
 
     t_start = time.perf_counter()
     startup = _elapsed_since_start()
     if args.factor is not None and not (math.isfinite(args.factor) and args.factor > 1.0):
-        raise _UsageError(f"--factor must be a number above 1, got {args.factor}")
+        raise UsageError(f"--factor must be a number above 1, got {args.factor}")
     if args.levels is not None and args.levels < 1:
-        raise _UsageError(f"--levels must be a positive integer, got {args.levels}")
-    project, params = _apply_sets(_load(args.project), args.set)
+        raise UsageError(f"--levels must be a positive integer, got {args.levels}")
+    project, params = apply_sets(load_with_notes(args.project), args.set)
     refine = "finer" if args.finer else "coarser"
     t_est = time.perf_counter()
     est = estimate_convergence(project, factor=args.factor, grids=args.grids, levels=args.levels,
@@ -81,7 +82,7 @@ def cmd_converge(args) -> int:
     t_est = time.perf_counter() - t_est
     if not args.json:
         print(f"wellscape: {est.describe()}", file=sys.stderr)
-    bar = _Progress("converging", enabled=None if not args.json else False)
+    bar = Progress("converging", enabled=None if not args.json else False)
     report = convergence_study(project, factor=args.factor, grids=args.grids, levels=args.levels,
                                parameters=params, refine=refine, progress=bar)
     bar.done()
@@ -102,7 +103,7 @@ def cmd_converge(args) -> int:
         if cert is not None:
             doc["count"] = {"certified": cert.certified, "count_below": cert.count_below, "expected": cert.expected,
                             "shift": cert.shift, "reason": cert.reason, "method": cert.method}
-        print(json.dumps(_jsonable(doc), indent=1))
+        print(json.dumps(jsonable(doc), indent=1))
         return 0
     text = format_report(report, marks=_marks(sys.stdout), title=project.title, certificate=cert, timing=timing)
     print(_printable(text, sys.stdout))

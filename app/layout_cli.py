@@ -49,7 +49,8 @@ def add_import_layout_parser(sub) -> None:
                         "layout's own unit)")
     s.add_argument("--origin", type=float, nargs=2, default=[0.0, 0.0], metavar=("X", "Y"),
                    help="the layout point, in layout units, that becomes x = y = 0 (default: 0 0)")
-    s.add_argument("--voltage", type=float, default=0.0, metavar="V", help="voltage of every imported gate, in volts (default: 0)")
+    s.add_argument("--voltage", type=float, default=0.0, metavar="V",
+                   help="voltage of every imported gate, in volts (default: 0)")
     s.add_argument("--depth", type=float, metavar="D",
                    help="depth of the electron gas below the gates, in project length units (nm for a new "
                         "project; default: the depth of the first gates term of --into)")

@@ -1,7 +1,8 @@
 """Look and start-up configuration shared by the window and its views."""
 from __future__ import annotations
 
-__all__ = ["configure_pyqtgraph", "share_gl_contexts", "CAUTION", "ERROR_COLOR", "OK_COLOR", "WARN_COLOR", "IMAGE_AXIS_ORDER"]
+__all__ = ["configure_pyqtgraph", "share_gl_contexts",
+           "CAUTION", "ERROR_COLOR", "OK_COLOR", "WARN_COLOR", "IMAGE_AXIS_ORDER"]
 
 #: pyqtgraph image axis order used everywhere.  Wellscape arrays are indexed [x, y]
 #: (``indexing="ij"``); with "col-major" pyqtgraph reads ``image[i, j]`` as column i (x) and

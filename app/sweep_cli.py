@@ -7,6 +7,7 @@ from pathlib import Path
 
 import numpy as np
 
+from app.cli_common import Progress, UsageError, apply_sets, load_with_notes, parse_sets
 from core.limits import MAX_WORKERS
 
 #: values of one sweep (each is a solve)
@@ -125,13 +126,12 @@ def probe_scheduler(address: str, timeout: float, error) -> None:
 
 
 def cmd_sweep(args) -> int:
-    from app.cli import _apply_sets, _load, _parse_sets, _Progress, _UsageError
     from core.sweep import run_sweep, save_sweep
 
-    _check_arguments(args, _UsageError)
-    if args.vary in _parse_sets(args.set):
-        raise _UsageError(f"--set {args.vary}: this is the swept quantity (--vary)")
-    project, overrides = _apply_sets(_load(args.project), args.set)
+    _check_arguments(args, UsageError)
+    if args.vary in parse_sets(args.set):
+        raise UsageError(f"--set {args.vary}: this is the swept quantity (--vary)")
+    project, overrides = apply_sets(load_with_notes(args.project), args.set)
     if overrides:
         project = project.with_parameters(**overrides)
     values = np.linspace(args.start, args.stop, args.steps)
@@ -140,9 +140,9 @@ def cmd_sweep(args) -> int:
     if not args.json:
         print(f"wellscape: {est.describe()}", file=sys.stderr)
     from core.errors import Cancelled
-    bar = _Progress("sweep", enabled=None if not args.json else False)
+    bar = Progress("sweep", enabled=None if not args.json else False)
     if args.cluster:
-        probe_scheduler(args.cluster, args.cluster_timeout, _UsageError)
+        probe_scheduler(args.cluster, args.cluster_timeout, UsageError)
     interrupted = None
     try:
         result = run_sweep(project, args.vary, values, states=args.states, workers=args.workers,
