@@ -58,6 +58,7 @@ from core.errors import FormulaError, InputError
 
 __all__ = [
     "CONSTANTS",
+    "MATERIAL_NAMES",
     "COORDINATES",
     "FUNCTIONS",
     "MAX_DEPTH",
@@ -125,6 +126,15 @@ _FUNCTION_TABLE: dict[str, tuple[Callable, int, int | None]] = {
 }
 
 FUNCTIONS: frozenset[str] = frozenset(_FUNCTION_TABLE)
+
+#: names a project's potential formulas may use for its material's kinetic prefactor hbar^2/(2 m*),
+#: in the project's energy unit times length unit squared: ``hbar2_over_2m`` for the mass along x,
+#: and one per axis.  Their values come from the material (see core.potentials.material_names), so a
+#: formula such as ``0.25*hw**2*x**2/hbar2_over_2m`` stays right when the material changes.
+MATERIAL_NAMES: tuple[str, ...] = ("hbar2_over_2m", "hbar2_over_2m_x", "hbar2_over_2m_y", "hbar2_over_2m_z")
+
+#: names a project parameter may not take (the material names are refused in core.project: formulas
+#: receive them as values, like parameters)
 RESERVED_NAMES: frozenset[str] = FUNCTIONS | frozenset(CONSTANTS) | frozenset(COORDINATES)
 
 _BIN_OPS: dict[type, Callable] = {

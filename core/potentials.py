@@ -13,7 +13,7 @@ from collections.abc import Mapping
 import numpy as np
 
 from .errors import FormulaError, InputError, ProjectError
-from .formula import nonfinite_report, parse_formula
+from .formula import MATERIAL_NAMES, nonfinite_report, parse_formula
 from .gates import Gate, gates_potential
 from .grid import Grid
 from .limits import MASS_RANGE, MAX_ENERGY, MAX_MAGNETIC_FIELD, POTENTIAL_WORK_ARRAYS
@@ -23,7 +23,7 @@ from .project import FieldTerm, FormulaTerm, GatesTerm, MapTerm, PointsTerm, Pro
 from .resources import check_memory
 from .units import get_units
 
-__all__ = ["resolve_parameters", "resolve_value", "evaluate_potential", "evaluate_terms", "gate_list",
+__all__ = ["resolve_parameters", "material_names", "resolve_value", "evaluate_potential", "evaluate_terms", "gate_list",
            "project_masses", "project_g_factor", "electric_field", "magnetic_field", "default_lever",
            "potential_memory_bytes", "check_potential_memory"]
 
@@ -78,6 +78,15 @@ def project_masses(project: Project, params: Mapping[str, float]) -> tuple:
             out.append(_in_span(mv, MASS_RANGE, where, unit))
         return tuple(out)
     return tuple(get_material(m.name).masses)
+
+
+def material_names(project: Project, params: Mapping[str, float]) -> dict:
+    """The values of :data:`core.formula.MATERIAL_NAMES` for ``project``: hbar^2/(2 m*) of its
+    material (the mass outside every region) in energy unit * length unit^2, along x and per axis."""
+    u = get_units(project.units)
+    per_axis = [u.kinetic_prefactor(m) for m in project_masses(project, params)]
+    return {"hbar2_over_2m": per_axis[0], "hbar2_over_2m_x": per_axis[0],
+            "hbar2_over_2m_y": per_axis[1], "hbar2_over_2m_z": per_axis[2]}
 
 
 def _spec_masses(m, params: Mapping[str, float], path: str) -> tuple:
@@ -247,10 +256,11 @@ def evaluate_terms(project: Project, *, grid: Grid | None = None,
             continue
         if isinstance(term, FormulaTerm):
             try:
-                f = parse_formula(term.formula, parameters=tuple(params))
+                f = parse_formula(term.formula, parameters=(*params, *MATERIAL_NAMES))
                 wanted = {"x", "y", "z"} | (set(f.names) & {"r"})
                 coords.update(grid.coordinates(wanted - set(coords)))   # r only if a formula uses it
-                val = f.evaluate({**coords, **params})
+                derived = material_names(project, params) if set(f.names) & set(MATERIAL_NAMES) else {}
+                val = f.evaluate({**coords, **params, **derived})
             except FormulaError as exc:
                 raise ProjectError(str(exc), path=f"{path}.formula ({term.label})") from None
             arr = np.broadcast_to(np.asarray(val, dtype=float), grid.shape).astype(float, copy=True)

@@ -44,7 +44,7 @@ from typing import Any
 
 from .atomic import atomic_write
 from .errors import FormulaError, InputError, ProjectError
-from .formula import RESERVED_NAMES, parse_formula
+from .formula import MATERIAL_NAMES, RESERVED_NAMES, parse_formula
 from .grid import BOUNDARIES, Grid
 from .jsonfile import parse_json, read_text_file, repair_text
 from .kinetic import SCHEMES
@@ -391,6 +391,9 @@ def _project_from_dict(data: Any, *, base_dir: str | None = None) -> Project:
             r.fail(path, "a parameter name must start with a letter and contain only letters, digits and _")
         if name in RESERVED_NAMES:
             r.fail(path, f"{name!r} is reserved (a function, constant or coordinate); choose another name")
+        if name in MATERIAL_NAMES:
+            r.fail(path, f"{name!r} is reserved: formulas get it from the material (hbar^2/(2 m*)); "
+                         f"choose another name")
         params[name] = r.number(value, path, allow_formula=False)
     r = _Reader(tuple(params))
     ranges = {}
@@ -398,7 +401,8 @@ def _project_from_dict(data: Any, *, base_dir: str | None = None) -> Project:
         path = f"parameter_ranges.{name}"
         if name not in params:
             r.fail(path, f"no parameter called {name!r}")
-        lo, hi = (r.number(v, f"{path}[{i}]", allow_formula=False) for i, v in enumerate(r.array(value, path, length=2)))
+        lo, hi = (r.number(v, f"{path}[{i}]", allow_formula=False)
+                  for i, v in enumerate(r.array(value, path, length=2)))
         if not hi > lo:
             r.fail(path, f"the upper end ({hi}) must be above the lower end ({lo})")
         ranges[name] = [lo, hi]
@@ -583,7 +587,7 @@ def _read_term(r: _Reader, raw, path: str, ndim: int, warnings):
         _extra_keys(raw, common + ("formula",), path, warnings)
         text = r.text(raw.get("formula", ""), f"{path}.formula", allow_empty=False, lines=True)
         try:
-            parse_formula(text, parameters=r.parameters)
+            parse_formula(text, parameters=(*r.parameters, *MATERIAL_NAMES))
         except FormulaError as exc:
             r.fail(f"{path}.formula", str(exc))
         return FormulaTerm(label=label, formula=text, enabled=enabled)

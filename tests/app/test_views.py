@@ -26,7 +26,7 @@ from app.views.common import fmt_energy
 from app.views.isosurface import gl_available
 from core.analysis import box_mask, polygon_mask, probability_in_region
 from core.grid import Grid
-from core.potentials import evaluate_potential, gate_list, resolve_parameters
+from core.potentials import evaluate_potential, gate_list, material_names, resolve_parameters
 from core.project import FormulaTerm, GatesTerm, load_project, new_project
 from core.study import solve_project
 
@@ -426,7 +426,7 @@ def test_region_probability_matches_core_and_gaussian(qtbot, r2e):
     expected = probability_in_region(grid, r2e.states[:1], mask)[0]
     assert view.region_probability() == expected
     p = r2e.parameters
-    l0 = math.sqrt(2 * p["kin"] / p["hw"])
+    l0 = math.sqrt(2 * material_names(r2e.project, p)["hbar2_over_2m"] / p["hw"])
     lx, ly = l0 * (1 - p["ell"]) ** -0.25, l0 * (1 + p["ell"]) ** -0.25
     # midpoint rule on [-c, c]: sum - integral = -(h^2/24) (f'(c) - f'(-c)) = (h^2/24) 4 c f(c) / l^2,
     # f(x) = exp(-x^2/l^2) / (sqrt(pi) l); the tolerance is 1.5 times the sum of both axes' terms

@@ -15,6 +15,7 @@ Sources:
 """
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import numpy as np
@@ -151,3 +152,46 @@ def test_template_project_gives_fock_darwin_levels_at_zero_field():
     assert project.solver.states == 10
     expected = 3.0 * np.array([1, 2, 2, 3, 3, 3, 4, 4, 4, 4], dtype=float)
     np.testing.assert_allclose(result.energies[:10], expected, rtol=1e-3)
+
+
+# --- the material's hbar^2/(2 m*) in formulas -------------------------------------------------------
+
+def test_material_names_are_hbar_squared_over_twice_the_mass():
+    """hbar^2/(2 m*) from CODATA constants (scipy.constants): for GaAs (m* = 0.067 m_e, the materials
+    table) in meV nm^2, and per axis for an anisotropic mass; 1e-12 relative (float64 arithmetic)."""
+    import scipy.constants as sc
+
+    from core.potentials import material_names
+    expected = sc.hbar**2 / (2 * 0.067 * sc.m_e) / (1e-3 * sc.e) / 1e-18
+    got = material_names(make_project(), {})
+    assert got["hbar2_over_2m"] == pytest.approx(expected, rel=1e-12)
+    assert got["hbar2_over_2m_x"] == got["hbar2_over_2m_y"] == got["hbar2_over_2m"]
+    aniso = dataclasses.replace(make_project(), material=MaterialSpec(name="custom", mass=(0.2, 0.05, 1.0)))
+    got = material_names(aniso, {})
+    for axis, m in zip("xyz", (0.2, 0.05, 1.0)):
+        assert got[f"hbar2_over_2m_{axis}"] == pytest.approx(expected * 0.067 / m, rel=1e-12)
+
+
+@pytest.mark.parametrize("material", ["GaAs", "InAs"])
+def test_an_oscillator_written_with_the_material_prefactor_keeps_its_frequency(material):
+    """1/2 m* omega^2 r^2 written as hw^2 r^2 / (4 hbar2_over_2m): the levels are hbar omega times 1, 2, 2, 3, 3, 3
+    [FD] whatever the mass.  Spectral scheme on 48^2 over +-8 oscillator lengths: the truncation error is far
+    below 1e-6 hbar omega (sinc-DVR converges exponentially for a Gaussian-like state; common practice)."""
+    hw = 3.0
+    l0 = math.sqrt(2 * 38.0998 / {"GaAs": 0.067, "InAs": 0.026}[material] / hw)   # recalled, only for the box
+    box = 8 * l0
+    project = make_project(FormulaTerm(label="oscillator", formula="hw**2*(x**2 + y**2)/(4*hbar2_over_2m)"),
+                           grid=Grid([-box, -box], [box, box], [48, 48]), parameters={"hw": hw})
+    project = dataclasses.replace(project, material=MaterialSpec(name=material))
+    result = solve_project(project, states=6, scheme="spectral")
+    np.testing.assert_allclose(result.energies / hw, [1, 2, 2, 3, 3, 3], atol=1e-6)
+
+
+def test_a_parameter_may_not_take_a_material_name():
+    """The material names are values the formulas receive; a parameter of that name is refused."""
+    from core.errors import ProjectError
+    from core.project import project_from_dict, project_to_dict
+    data = project_to_dict(new_project())
+    data["parameters"]["hbar2_over_2m"] = 1.0
+    with pytest.raises(ProjectError, match="hbar2_over_2m.*reserved"):
+        project_from_dict(data)
