@@ -166,19 +166,23 @@ def cmd_sweep(args) -> int:
         print(json.dumps(doc, indent=1))
         return 130 if interrupted else 0
     u = result.units
-    print(f"{project.title}: swept {args.vary} over {args.steps} values from {args.start:g} to {args.stop:g}; "
+    from core.formatting import pretty_unit
+    from core.sweep.targets import target_unit
+    xu = pretty_unit(target_unit(project, args.vary))
+    span = f"from {args.start:g} to {args.stop:g}{(' ' + xu) if xu else ''}"
+    print(f"{project.title}: swept {args.vary} over {args.steps} values {span}; "
           f"{result.energies.shape[1]} levels tracked in {result.wall_time:.1f} s")
     te = result.track_energies()
     print(f"energy range {te.min():.6g} .. {te.max():.6g} {u.energy_unit}")
-    _print_verdicts(result, args.vary, u.energy_unit)
-    _print_exchange(result, args.vary, u.energy_unit)
+    _print_verdicts(result, args.vary, u.energy_unit, xu)
+    _print_exchange(result, args.vary, u.energy_unit, xu)
     _print_completeness(result)
     if args.out:
         print(f"\nwrote {Path(args.out) / 'sweep.npz'} and {Path(args.out) / 'sweep.csv'}")
     return 130 if interrupted else 0
 
 
-def _print_verdicts(result, parameter: str, energy_unit: str) -> None:
+def _print_verdicts(result, parameter: str, energy_unit: str, parameter_unit: str = "") -> None:
     """Every close approach in the words of :meth:`core.sweep.Anticrossing.describe` (the same words as
     the sweep view and figure sheets)."""
     groups = (("anticrossing", "anticrossings (gap 2t = minimum separation, t the tunnel coupling)"),
@@ -192,7 +196,7 @@ def _print_verdicts(result, parameter: str, energy_unit: str) -> None:
         any_found = True
         print(f"{title}: {len(found)}")
         for a in found:
-            print("  " + a.describe(parameter, energy_unit))
+            print("  " + a.describe(parameter, energy_unit, parameter_unit))
     if not any_found:
         print("no close approaches of the tracked levels in this range")
     if result.refinement_solves:
@@ -201,7 +205,7 @@ def _print_verdicts(result, parameter: str, energy_unit: str) -> None:
         print(f"note: {note}")
 
 
-def _print_exchange(result, parameter: str, energy_unit: str) -> None:
+def _print_exchange(result, parameter: str, energy_unit: str, parameter_unit: str = "") -> None:
     """Two electrons: the exchange J = E(lowest triplet) - E(lowest singlet) at each value."""
     two = getattr(result, "two_electron", None)
     if not two:
@@ -210,7 +214,8 @@ def _print_exchange(result, parameter: str, energy_unit: str) -> None:
     print(f"\nexchange J = E(lowest triplet) - E(lowest singlet) against {parameter}:")
     for v, j, dj in zip(result.values, two["exchange"], two["exchange_uncertainty"]):
         jtxt = "no triplet among the levels" if j is None else format_energy(float(j), float(dj or 0.0), energy_unit)
-        print(f"  {parameter} = {v:<12.6g} J = {jtxt}")
+        at = f"{v:.6g}{(' ' + parameter_unit) if parameter_unit else ''}"
+        print(f"  {parameter} = {at:<14} J = {jtxt}")
 
 
 def _print_completeness(result) -> None:

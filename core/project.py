@@ -5,9 +5,11 @@ parameters, an ordered list of potential terms, fields and solver settings.
 Top-level keys of the JSON file (schema version 2):
 
 ``schema_version, title, notes, units, material, grid, parameters,
-parameter_ranges, potential, electric_field, magnetic_field, spin, solver, electrons``
-(``electrons``: 1, the default, or 2 for two interacting electrons; optional, so files without
-it are unchanged)
+parameter_ranges, parameter_units, potential, electric_field, magnetic_field, spin, solver,
+electrons`` (``electrons``: 1, the default, or 2 for two interacting electrons; ``parameter_units``:
+a short unit text per parameter, such as ``{"eps": "meV", "VP": "V"}``, shown beside the parameter
+in sliders, tables and axes; both optional, so files without them are unchanged and no schema step
+is needed)
 
 Any number inside a term, a gate voltage, a field component or the material
 may be written as a parameter name or a formula of parameters
@@ -62,6 +64,8 @@ ELECTRON_COUNTS = (1, 2)
 MAX_FILE_BYTES = 20 * 2**20
 #: states one solve may ask for (each is a grid-sized vector, and the dense steps grow as its cube)
 MAX_STATES = 10_000
+#: the longest unit text a parameter may carry ("mV/nm", "h*kHz/um", ...)
+MAX_UNIT_TEXT = 24
 Value = float | str
 
 # --- migrations ---------------------------------------------------------------------------------
@@ -203,6 +207,7 @@ class Project:
     solver: SolverSettings = SolverSettings()
     notes: str = ""
     parameter_ranges: dict = field(default_factory=dict)
+    parameter_units: dict = field(default_factory=dict)   # name -> unit text (optional, display only)
     regions: tuple = ()
     schema_version: int = CURRENT_SCHEMA_VERSION
     base_dir: str | None = field(default=None, compare=False)
@@ -213,6 +218,10 @@ class Project:
     @property
     def ndim(self) -> int:
         return self.grid.ndim
+
+    def parameter_unit(self, name: str) -> str:
+        """The unit text the project gives parameter ``name`` ("" when it gives none)."""
+        return str(self.parameter_units.get(name, ""))
 
     def with_parameters(self, **values) -> Project:
         params = dict(self.parameters)
@@ -336,7 +345,7 @@ def _extra_keys(data: dict, allowed, path: str, warnings: list):
 
 
 _TOP_KEYS = ("schema_version", "title", "notes", "units", "material", "grid", "parameters",
-             "parameter_ranges", "potential", "electric_field", "magnetic_field", "spin", "solver",
+             "parameter_ranges", "parameter_units", "potential", "electric_field", "magnetic_field", "spin", "solver",
              "electrons")
 _IDENT = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
 _CONTROL_IN_LINE = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029]")
@@ -406,6 +415,16 @@ def _project_from_dict(data: Any, *, base_dir: str | None = None) -> Project:
         if not hi > lo:
             r.fail(path, f"the upper end ({hi}) must be above the lower end ({lo})")
         ranges[name] = [lo, hi]
+    units_of = {}
+    for name, value in r.obj(data.get("parameter_units", {}), "parameter_units").items():
+        path = f"parameter_units.{name}"
+        if name not in params:
+            r.fail(path, f"no parameter called {name!r}")
+        text = r.text(value, path)
+        if len(text) > MAX_UNIT_TEXT:
+            r.fail(path, f"a unit is a short text (at most {MAX_UNIT_TEXT} characters), got {len(text)}")
+        if text.strip():
+            units_of[name] = text.strip()
 
     material = _read_material(r, data["material"], warnings)
     grid = _read_grid(r, data["grid"], warnings)
@@ -443,7 +462,7 @@ def _project_from_dict(data: Any, *, base_dir: str | None = None) -> Project:
     return Project(title=title, units=units, material=material, grid=grid, parameters=params,
                    potential=tuple(terms), electric_field=electric, magnetic_field=magnetic, spin=spin,
                    solver=SolverSettings(states=states, scheme=scheme, tolerance=float(tol)), notes=notes,
-                   parameter_ranges=ranges, base_dir=base_dir, warnings=tuple(warnings),
+                   parameter_ranges=ranges, parameter_units=units_of, base_dir=base_dir, warnings=tuple(warnings),
                    migrated_from=migrated_from, electrons=electrons)
 
 
@@ -735,6 +754,8 @@ def project_to_dict(project: Project) -> dict:
            "parameters": dict(project.parameters)}
     if project.parameter_ranges:
         out["parameter_ranges"] = {k: list(v) for k, v in project.parameter_ranges.items()}
+    if project.parameter_units:
+        out["parameter_units"] = dict(project.parameter_units)
     out["potential"] = terms
     if project.regions:
         out["regions"] = [_region_to_dict(g) for g in project.regions]

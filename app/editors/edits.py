@@ -122,7 +122,8 @@ def remove_parameter(project: Project, name: str) -> Project:
         raise InputError(f"{name} is still used by {', '.join(uses)}; remove it there first")
     params = {k: v for k, v in project.parameters.items() if k != name}
     ranges = {k: v for k, v in project.parameter_ranges.items() if k != name}
-    return dataclasses.replace(project, parameters=params, parameter_ranges=ranges)
+    units = {k: v for k, v in project.parameter_units.items() if k != name}
+    return dataclasses.replace(project, parameters=params, parameter_ranges=ranges, parameter_units=units)
 
 
 def rename_parameter(project: Project, old: str, new: str) -> Project:
@@ -135,7 +136,8 @@ def rename_parameter(project: Project, old: str, new: str) -> Project:
     out = _map_values(project, lambda v: _rename_in(v, old, new))
     params = {(new if k == old else k): v for k, v in project.parameters.items()}
     ranges = {(new if k == old else k): v for k, v in project.parameter_ranges.items()}
-    return dataclasses.replace(out, parameters=params, parameter_ranges=ranges)
+    units = {(new if k == old else k): v for k, v in project.parameter_units.items()}
+    return dataclasses.replace(out, parameters=params, parameter_ranges=ranges, parameter_units=units)
 
 
 def default_range(value: float) -> tuple:
@@ -162,6 +164,20 @@ def set_parameter_range(project: Project, name: str, lo: float, hi: float) -> Pr
     ranges = dict(project.parameter_ranges)
     ranges[name] = [lo, hi]
     return dataclasses.replace(project, parameter_ranges=ranges)
+
+
+def set_parameter_unit(project: Project, name: str, unit: str) -> Project:
+    """Give parameter ``name`` the unit text ``unit`` (an empty text removes it)."""
+    from core.project import MAX_UNIT_TEXT
+    if name not in project.parameters:
+        raise InputError(f"no parameter called {name!r}")
+    text = str(unit).strip()
+    if len(text) > MAX_UNIT_TEXT or any(not c.isprintable() for c in text):
+        raise InputError(f"{name}: a unit is a short printable text (at most {MAX_UNIT_TEXT} characters)")
+    units = {k: v for k, v in project.parameter_units.items() if k != name}
+    if text:
+        units[name] = text
+    return dataclasses.replace(project, parameter_units=units)
 
 
 # --- potential terms -------------------------------------------------------------------------

@@ -25,6 +25,7 @@ from PySide6.QtWidgets import (
 )
 
 from core.errors import WellscapeError
+from core.formatting import pretty_unit
 
 from . import edits
 from .common import MessageLabel, ValueField, apply_edit, fmt
@@ -42,6 +43,7 @@ class ParameterRow(QWidget):
         self.panel = panel
         self.name = name
         self.lo, self.hi = 0.0, 1.0
+        self.unit = ""
         self.name_label = QLabel(f"<b>{name}</b>")
         self.name_label.setMinimumWidth(42)
         self.slider = QSlider(Qt.Orientation.Horizontal)
@@ -55,10 +57,11 @@ class ParameterRow(QWidget):
         self.range_label.setStyleSheet("color: palette(mid); font-size: small;")
         self.menu_button = QToolButton()
         self.menu_button.setText("...")
-        self.menu_button.setToolTip(f"Rename, set the slider range of, or remove {name}")
+        self.menu_button.setToolTip(f"Rename, set the slider range or unit of, or remove {name}")
         self.menu_button.setPopupMode(QToolButton.ToolButtonPopupMode.InstantPopup)
         menu = QMenu(self.menu_button)
         menu.addAction("Slider range...", lambda: panel.edit_range_dialog(self.name))
+        menu.addAction("Unit...", lambda: panel.unit_dialog(self.name))
         menu.addAction("Rename...", lambda: panel.rename_dialog(self.name))
         menu.addSeparator()
         menu.addAction("Remove", lambda: panel.remove(self.name))
@@ -91,11 +94,22 @@ class ParameterRow(QWidget):
         self.field.committed.connect(self._on_field_committed)
 
     # -- mapping -------------------------------------------------------------------------------
+    def set_unit(self, unit: str) -> None:
+        """Show the parameter's unit beside its name and range ("" when the project gives none)."""
+        import html
+        self.unit = unit
+        shown = (f" <span style='color: palette(mid);'>[{html.escape(pretty_unit(unit))}]</span>" if unit
+                 else "")
+        self.name_label.setText(f"<b>{html.escape(self.name)}</b>{shown}")
+        self.set_range(self.lo, self.hi)
+
     def set_range(self, lo: float, hi: float) -> None:
         self.lo, self.hi = float(lo), float(hi)
-        self.range_label.setText(f"{fmt(self.lo, 4)} .. {fmt(self.hi, 4)}")
-        self.slider.setToolTip(f"{self.name}: drag to explore {fmt(self.lo)} .. {fmt(self.hi)}; "
-                               f"the levels follow while you drag")
+        unit = f" {pretty_unit(self.unit)}" if self.unit else ""
+        self.range_label.setText(f"{fmt(self.lo, 4)} .. {fmt(self.hi, 4)}{unit}")
+        hint = "" if self.unit else " (no unit given: set one with Unit... in the ... menu)"
+        self.slider.setToolTip(f"{self.name}: drag to explore {fmt(self.lo)} .. {fmt(self.hi)}{unit}; "
+                               f"the levels follow while you drag{hint}")
 
     def value_at(self, position: int) -> float:
         return self.lo + (self.hi - self.lo) * position / SLIDER_STEPS
@@ -206,7 +220,8 @@ class ParametersPanel(QWidget):
     # -- session -> widgets --------------------------------------------------------------------
     def refresh(self) -> None:
         p = self.session.project
-        shape = (tuple(p.parameters), tuple((k, tuple(v)) for k, v in sorted(p.parameter_ranges.items())))
+        shape = (tuple(p.parameters), tuple((k, tuple(v)) for k, v in sorted(p.parameter_ranges.items())),
+                 tuple(sorted(p.parameter_units.items())))
         if shape != self._shape:
             self._rebuild(p)
             self._shape = shape
@@ -219,6 +234,7 @@ class ParametersPanel(QWidget):
         if dragging and tuple(p.parameters) == tuple(self.rows):
             for name, row in self.rows.items():        # same names: only ranges changed; keep the rows
                 row.set_range(*edits.slider_range(p, name))
+                row.set_unit(p.parameter_unit(name))
             return
         for row in self.rows.values():
             row.setParent(None)
@@ -227,6 +243,7 @@ class ParametersPanel(QWidget):
         for name in p.parameters:
             row = ParameterRow(self, name)
             row.set_range(*edits.slider_range(p, name))
+            row.set_unit(p.parameter_unit(name))
             self.rows[name] = row
             self.rows_box.addWidget(row)
         self.empty_label.setVisible(not self.rows)
@@ -266,6 +283,18 @@ class ParametersPanel(QWidget):
             return False
         return apply_edit(self.session, lambda p: edits.set_parameter_range(p, name, lo, hi),
                           f"slider range of {name}", self.message)
+
+    def set_unit(self, name: str, unit: str) -> bool:
+        return apply_edit(self.session, lambda p: edits.set_parameter_unit(p, name, unit), f"unit of {name}",
+                          self.message)
+
+    def unit_dialog(self, name: str) -> None:
+        from PySide6.QtWidgets import QInputDialog
+        unit, ok = QInputDialog.getText(self, "Parameter unit",
+                                        f"Unit of {name}, shown in sliders, tables and axes (for example meV, V, "
+                                        f"mV/nm; empty for none):", text=self.session.project.parameter_unit(name))
+        if ok:
+            self.set_unit(name, unit)
 
     def _on_add(self) -> None:
         if self.add(self.new_name.text(), self.new_value.text()):

@@ -33,6 +33,7 @@ import numpy as np
 
 from ..eigensolve import DEFAULT_DEGENERACY_TOLERANCE, energy_scale
 from ..errors import Cancelled, InputError
+from ..formatting import pretty_unit
 from ..project import Project, project_from_dict, project_to_dict
 from .approaches import Anticrossing, CloseApproach, find_close_approaches
 from .completeness import CompletenessCheck
@@ -40,11 +41,11 @@ from .files import load_sweep, save_sweep
 from .points import PointData, PointSolver
 from .result import SweepResult
 from .settle import LEAVES_SET, Settler
-from .targets import SWEEP_PARAMETER, prepare_target, sweep_targets
+from .targets import SWEEP_PARAMETER, prepare_target, sweep_targets, target_unit
 from .tracking import align_degenerate, labels_from_observables, overlap_matrices, track_levels
 
-__all__ = ["completeness_summary", "Anticrossing", "CloseApproach", "CompletenessCheck", "SweepResult", "run_sweep", "save_sweep",
-           "load_sweep", "sweep_targets", "track_levels", "find_close_approaches", "SWEEP_PARAMETER",
+__all__ = ["completeness_summary", "Anticrossing", "CloseApproach", "CompletenessCheck", "SweepResult", "run_sweep",
+           "save_sweep", "load_sweep", "sweep_targets", "track_levels", "find_close_approaches", "SWEEP_PARAMETER",
            "DEFAULT_REFINE_FRACTION"]
 
 def completeness_summary(checks, points: int, energy_unit: str) -> str:
@@ -150,14 +151,16 @@ def _assemble(project, target, values, points, t0, complete, notes=(), *, solver
                       should_stop=should_stop)
     approaches = []
     notes = list(notes)
+    unit = pretty_unit(target_unit(project, target))
     for c in candidates:
         v = settler.settle(c)
         if v.kind == "not settled" and v.evidence.startswith("the states do not exchange"):
-            notes.append(f"levels {v.tracks[0]} & {v.tracks[1]} approach near {target} = {v.at:.4g} without "
-                         f"exchanging character (not an anticrossing)")
+            notes.append(f"levels {v.tracks[0]} & {v.tracks[1]} approach near {v.position_text(target, unit)} "
+                         f"without exchanging character (not an anticrossing)")
             continue
         if v.kind == "not settled" and v.evidence == LEAVES_SET:
-            notes.append(f"tracks {v.tracks[0]} & {v.tracks[1]} near {target} = {v.at:.4g} are not decided as a pair: "
+            notes.append(f"tracks {v.tracks[0]} & {v.tracks[1]} near {v.position_text(target, unit)} are not decided "
+                         f"as a pair: "
                          f"a third level takes part, or a level enters or leaves the {e.shape[1]} computed levels "
                          f"(more states may follow it)")
             continue

@@ -6,7 +6,7 @@ from dataclasses import replace
 from ..errors import InputError
 from ..project import GatesTerm, Project
 
-__all__ = ["SWEEP_PARAMETER", "sweep_targets", "prepare_target", "set_target"]
+__all__ = ["SWEEP_PARAMETER", "sweep_targets", "prepare_target", "set_target", "target_unit"]
 
 SWEEP_PARAMETER = "sweep_value"
 
@@ -20,6 +20,22 @@ def sweep_targets(project: Project) -> list:
         if isinstance(t, GatesTerm):
             names += [f"gate:{g.label}" for g in t.gates]
     return names
+
+
+def target_unit(project: Project, target: str) -> str:
+    """The unit of a swept or set quantity, as the project writes it: a parameter's own unit (""
+    when the project gives none), the unit system's field units for field components, V for a gate."""
+    from ..units import get_units
+    if target in project.parameters:
+        return project.parameter_unit(target)
+    u = get_units(project.units)
+    if target.startswith("electric_field["):
+        return u.field_unit
+    if target.startswith("magnetic_field["):
+        return u.magnetic_unit
+    if target.startswith("gate:"):
+        return "V"
+    return ""
 
 
 def prepare_target(project: Project, target: str) -> tuple:

@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import csv
 import json
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -102,6 +103,8 @@ def test_sweep_command_json_and_table(capsys, tmp_path):
     code, out, err = run(capsys, "sweep", str(double), "--vary", "tilt", "--from", "-0.02", "--to", "0.02",
                          "--steps", "5", "--states", "2")
     assert code == 0 and "anticrossing of levels 0 & 1 at tilt = " in out and "h*kHz" in out
+    assert "from -0.02 to 0.02 h·kHz/µm" in out                  # the parameter's unit from the project
+    assert re.search(r"at tilt = [-0-9.e±() ]+ h·kHz/µm", out), out
     assert "checked for missed levels at 5 of 5 values" in out
     assert "a sweep of 5 solves of 2 states" in err          # the estimate comes first
     code, out, err = run(capsys, "sweep", str(double), "--vary", "tilt", "--from", "0", "--to", "1",

@@ -87,6 +87,18 @@ def test_parameter_rows_follow_the_project(double_dot, qtbot):
     assert row.slider.value() == 500                        # eps = 0 sits mid-range
     double_dot.set_parameter("eps", 0.001)
     assert row.slider.value() == 750 and float(row.field.text()) == pytest.approx(0.001)
+    assert "[V]" in row.name_label.text() and row.range_label.text().endswith(" V")
+
+
+def test_a_parameter_unit_is_one_undo_step(double_dot, qtbot):
+    panel = make(ParametersPanel, double_dot, qtbot)
+    assert panel.set_unit("eps", "mV")
+    assert double_dot.project.parameter_unit("eps") == "mV" and "[mV]" in panel.rows["eps"].name_label.text()
+    double_dot.undo_stack.undo()
+    panel.refresh()
+    assert double_dot.project.parameter_unit("eps") == "V" and "[V]" in panel.rows["eps"].name_label.text()
+    assert not panel.set_unit("eps", "x" * 40)              # refused with a message, nothing changed
+    assert double_dot.project.parameter_unit("eps") == "V"
 
 
 def test_slider_drag_is_live_and_one_undo_step(double_dot, qtbot):

@@ -43,7 +43,8 @@ from core.project import (
 DATA = pathlib.Path(__file__).resolve().parent.parent / "data"
 V1_FILE = DATA / "project_v1.json"
 TOP_KEYS = {"schema_version", "title", "notes", "units", "material", "grid", "parameters",
-            "parameter_ranges", "potential", "electric_field", "magnetic_field", "spin", "solver"}
+            "parameter_ranges", "parameter_units", "potential", "electric_field", "magnetic_field", "spin",
+            "solver"}
 
 
 def minimal(**changes) -> dict:
@@ -77,7 +78,7 @@ def full_project(folder: pathlib.Path) -> Project:
         material=MaterialSpec(name=None, mass="meff*1.0", g_factor=-0.44),
         grid=Grid([-50.0, -50.0], [50.0, 50.0], [9, 9]),
         parameters={"VP": -0.3, "eps": 0.05, "B": 1.0, "meff": 0.067, "d": 40.0, "s": 2.0, "k": 0.01, "F": 0.1},
-        parameter_ranges={"VP": [-1.0, 0.0], "B": [0.0, 5.0]},
+        parameter_ranges={"VP": [-1.0, 0.0], "B": [0.0, 5.0]}, parameter_units={"VP": "V", "B": "T", "d": "nm"},
         potential=(
             FormulaTerm("bowl", "0.5*k*(x**2 + y**2)"),
             GatesTerm("surface gates", depth="d", lever=None, gates=(
@@ -472,3 +473,44 @@ def test_save_keeps_file_permissions(tmp_path):
     path.chmod(0o644)
     save_project(new_project(), path)
     assert path.stat().st_mode & 0o777 == 0o644
+
+
+# --- parameter units -----------------------------------------------------------------------------
+
+def test_parameter_units_round_trip_and_are_optional():
+    """A unit per parameter survives save and load; a project without them reads as before (no
+    ``parameter_units`` key written, so older readers see the same file)."""
+    p = project_from_dict(minimal(parameter_units={"k": "meV/nm^2"}))
+    assert p.parameter_unit("k") == "meV/nm^2"
+    assert project_from_json(project_to_json(p)).parameter_units == {"k": "meV/nm^2"}
+    plain = project_from_dict(minimal())
+    assert plain.parameter_units == {} and plain.parameter_unit("k") == ""
+    assert "parameter_units" not in project_to_dict(plain)
+
+
+@pytest.mark.parametrize("units, message", [
+    ({"q": "V"}, "parameter_units.q: no parameter called 'q'"),
+    ({"k": 3}, "parameter_units.k"),
+    ({"k": "x" * 40}, "at most 24 characters"),
+    ({"k": "m\x07V"}, "parameter_units.k"),
+])
+def test_bad_parameter_units_are_one_line_errors(units, message):
+    err = refused(minimal(parameter_units=units))
+    assert message in str(err) and "\n" not in str(err)
+
+
+def test_every_sample_parameter_with_a_physical_meaning_has_a_unit():
+    """The bundled samples give a unit to each parameter but the dimensionless ones (ellipticity,
+    scale factors); the sweep target's unit follows (a field component and a gate carry their own)."""
+    from core.sweep.targets import target_unit
+    samples = pathlib.Path(__file__).resolve().parents[2] / "sample_projects"
+    dimensionless = {("elliptical_dot", "ell"), ("imported_map_dot", "depth_scale")}
+    for path in sorted(samples.glob("*.json")):
+        p = load_project(path)
+        for name in p.parameters:
+            if (path.stem, name) not in dimensionless:
+                assert p.parameter_unit(name), (path.name, name)
+                assert target_unit(p, name) == p.parameter_unit(name)
+    p = load_project(samples / "gaas_double_dot.json")
+    assert (target_unit(p, "magnetic_field[2]"), target_unit(p, "electric_field[0]"), target_unit(p, "gate:B")) \
+        == ("T", "mV/nm", "V")
