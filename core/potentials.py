@@ -19,7 +19,7 @@ from .grid import Grid
 from .limits import MASS_RANGE, MAX_ENERGY, MAX_MAGNETIC_FIELD, POTENTIAL_WORK_ARRAYS
 from .maps import confined_map_path, interpolate_map, load_map_file
 from .materials import get_material
-from .project import FieldTerm, FormulaTerm, GatesTerm, MapTerm, PointsTerm, Project
+from .project import FieldTerm, FormulaTerm, GatesTerm, MapTerm, OscillatorTerm, PointsTerm, Project
 from .resources import check_memory
 from .units import get_units
 
@@ -288,6 +288,8 @@ def evaluate_terms(project: Project, *, grid: Grid | None = None,
                 raise ProjectError(str(exc), path=f"{path} ({term.label})") from None
         elif isinstance(term, PointsTerm):
             arr = _points_values(term, project.base_dir, grid, params, path)
+        elif isinstance(term, OscillatorTerm):
+            arr = _oscillator_values(project, term, grid, params, path)
         elif isinstance(term, FieldTerm):
             f = electric_field(project, params)
             q = u.charge if u.charged else 1.0
@@ -300,6 +302,22 @@ def evaluate_terms(project: Project, *, grid: Grid | None = None,
         _check_magnitude(arr, f"{path} ({term.label})", u.energy_unit)
         out.append((i, term, arr))
     return out
+
+
+def _oscillator_values(project: Project, term: OscillatorTerm, grid: Grid, params, path: str) -> np.ndarray:
+    """sum_i (hbar omega_i)^2 (x_i - c_i)^2 / (4 hbar^2/(2 m_i)) = sum_i 1/2 m_i omega_i^2 (x_i - c_i)^2."""
+    kin = material_names(project, params)
+    arr = np.zeros(grid.shape)
+    for i, (hw, c) in enumerate(zip(term.hbar_omega, term.centre)):
+        w = resolve_value(hw, params, f"{path}.hbar_omega[{i}]")
+        if w < 0:
+            raise ProjectError(f"hbar*omega cannot be negative, got {w:g} with the current parameters",
+                               path=f"{path}.hbar_omega[{i}]")
+        x0 = resolve_value(c, params, f"{path}.centre[{i}]")
+        k = kin["hbar2_over_2m_" + "xyz"[i]]
+        axis = grid.axes[i].reshape([-1 if a == i else 1 for a in range(grid.ndim)])
+        arr = arr + (w * w / (4.0 * k)) * (axis - x0) ** 2
+    return arr
 
 
 def _check_magnitude(arr: np.ndarray, path: str, unit: str) -> None:

@@ -56,7 +56,7 @@ from .units import UNIT_SYSTEMS
 
 __all__ = ["CURRENT_SCHEMA_VERSION", "Project", "MaterialSpec", "RegionSpec", "GateSpec", "FormulaTerm", "GatesTerm",
            "MapTerm", "PointsTerm", "FieldTerm", "SolverSettings", "load_project", "save_project", "project_from_dict",
-           "project_to_dict", "project_from_json", "project_to_json", "MIGRATIONS", "TERM_KINDS",
+           "project_to_dict", "project_from_json", "project_to_json", "MIGRATIONS", "TERM_KINDS", "OscillatorTerm",
            "new_project"]
 
 CURRENT_SCHEMA_VERSION = 2
@@ -182,8 +182,24 @@ class FieldTerm:
     kind: str = field(default="uniform_field", init=False)
 
 
+@dataclass(frozen=True)
+class OscillatorTerm:
+    """A harmonic confinement written by its quanta: V = sum_i (hbar omega_i)^2 (x_i - c_i)^2 / (4 K_i),
+    K_i = hbar^2/(2 m_i) of the project's material along axis i, i.e. 1/2 m_i omega_i^2 (x_i - c_i)^2.
+
+    ``hbar_omega``: one value per axis in the energy unit (0: no confinement along that axis);
+    ``centre``: one coordinate per axis in the length unit.  Each may be a formula of parameters.
+    """
+
+    label: str
+    hbar_omega: tuple
+    centre: tuple
+    enabled: bool = True
+    kind: str = field(default="oscillator", init=False)
+
+
 TERM_KINDS = {"formula": FormulaTerm, "gates": GatesTerm, "map": MapTerm, "points": PointsTerm,
-              "uniform_field": FieldTerm}
+              "uniform_field": FieldTerm, "oscillator": OscillatorTerm}
 
 
 @dataclass(frozen=True)
@@ -676,8 +692,29 @@ def _read_term(r: _Reader, raw, path: str, ndim: int, warnings):
                        enabled=enabled)
     if kind == "points":
         return _read_points_term(r, raw, path, label, enabled, warnings)
+    if kind == "oscillator":
+        return _read_oscillator_term(r, raw, path, label, enabled, ndim, warnings)
     _extra_keys(raw, common, path, warnings)
     return FieldTerm(label=label, enabled=enabled)
+
+
+def _read_oscillator_term(r: _Reader, raw: dict, path: str, label: str, enabled: bool, ndim: int,
+                          warnings) -> OscillatorTerm:
+    _extra_keys(raw, ("kind", "label", "enabled", "hbar_omega", "centre"), path, warnings)
+    if "hbar_omega" not in raw:
+        r.fail(f"{path}.hbar_omega", f"missing: the oscillator quantum hbar*omega, one value or {ndim} "
+                                     f"(one per axis), in the energy unit")
+    hw = raw["hbar_omega"]
+    hw = [hw] * ndim if not isinstance(hw, list) else r.array(hw, f"{path}.hbar_omega", length=ndim)
+    where = (lambda i: f"{path}.hbar_omega") if not isinstance(raw["hbar_omega"], list) else (
+        lambda i: f"{path}.hbar_omega[{i}]")
+    quanta = tuple(r.number(v, where(i)) for i, v in enumerate(hw))
+    for i, v in enumerate(quanta):
+        if isinstance(v, float) and v < 0:
+            r.fail(where(i), f"hbar*omega cannot be negative, got {v:g} (0 leaves that axis free)")
+    centre = r.array(raw.get("centre", [0.0] * ndim), f"{path}.centre", length=ndim)
+    centre = tuple(r.number(v, f"{path}.centre[{i}]") for i, v in enumerate(centre))
+    return OscillatorTerm(label=label, hbar_omega=quanta, centre=centre, enabled=enabled)
 
 
 def _read_points_term(r: _Reader, raw: dict, path: str, label: str, enabled: bool, warnings) -> PointsTerm:
@@ -743,6 +780,8 @@ def project_to_dict(project: Project) -> dict:
                       "method": t.method})
             if t.array is not None:
                 d["array"] = t.array
+        elif isinstance(t, OscillatorTerm):
+            d.update({"hbar_omega": list(t.hbar_omega), "centre": list(t.centre)})
         elif isinstance(t, PointsTerm):
             d.update({"file": t.file, "scale": t.scale})
             for key in ("fill", "array"):

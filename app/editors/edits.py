@@ -13,7 +13,17 @@ import re
 
 from core.errors import InputError
 from core.formula import RESERVED_NAMES
-from core.project import FieldTerm, FormulaTerm, GateSpec, GatesTerm, MapTerm, MaterialSpec, PointsTerm, Project
+from core.project import (
+    FieldTerm,
+    FormulaTerm,
+    GateSpec,
+    GatesTerm,
+    MapTerm,
+    MaterialSpec,
+    OscillatorTerm,
+    PointsTerm,
+    Project,
+)
 
 __all__ = ["IDENTIFIER", "check_parameter_name", "parameter_uses", "add_parameter", "remove_parameter",
            "rename_parameter", "set_parameter_range", "default_range", "slider_range", "add_term",
@@ -65,11 +75,17 @@ def _map_values(project: Project, fn):
             t = dataclasses.replace(t, scale=fn(t.scale))
         elif isinstance(t, PointsTerm):
             t = dataclasses.replace(t, scale=fn(t.scale), fill=None if t.fill is None else fn(t.fill))
+        elif isinstance(t, OscillatorTerm):
+            t = dataclasses.replace(t, hbar_omega=fn(tuple(t.hbar_omega)), centre=fn(tuple(t.centre)))
         terms.append(t)
     m = project.material
     material = dataclasses.replace(m, mass=None if m.mass is None else fn(m.mass),
                                    g_factor=None if m.g_factor is None else fn(m.g_factor))
-    return dataclasses.replace(project, potential=tuple(terms), material=material,
+    regions = tuple(dataclasses.replace(
+        g, inside=fn(g.inside), offset=None if g.offset is None or g.offset == "table" else fn(g.offset),
+        material=dataclasses.replace(g.material, mass=None if g.material.mass is None else fn(g.material.mass)))
+        for g in project.regions)
+    return dataclasses.replace(project, potential=tuple(terms), material=material, regions=regions,
                                electric_field=fn(tuple(project.electric_field)),
                                magnetic_field=fn(tuple(project.magnetic_field)))
 
@@ -90,6 +106,11 @@ def parameter_uses(project: Project, name: str) -> list:
             out.append(f"term '{t.label}'")
         elif isinstance(t, PointsTerm) and _uses((t.scale, t.fill), name):
             out.append(f"term '{t.label}'")
+        elif isinstance(t, OscillatorTerm) and _uses((tuple(t.hbar_omega), tuple(t.centre)), name):
+            out.append(f"term '{t.label}'")
+    for g in project.regions:
+        if _uses((g.inside, g.offset if isinstance(g.offset, str) else "", g.material.mass or ""), name):
+            out.append(f"region '{g.label}'")
     m = project.material
     if (m.mass is not None and _uses(m.mass, name)) or (m.g_factor is not None and _uses(m.g_factor, name)):
         out.append("the material")
@@ -216,6 +237,16 @@ def new_term(project: Project, kind: str):
                        lower=tuple(g.lower), upper=tuple(g.upper))
     if kind == "uniform_field":
         return FieldTerm(label=unique_label(project, "uniform field"))
+    if kind == "oscillator":
+        # a quantum that puts the ground state's width at about a tenth of the box along each axis
+        from core.potentials import material_names, resolve_parameters
+        kin = material_names(project, resolve_parameters(project))
+        quanta = []
+        for i in range(g.ndim):
+            width = 0.1 * (g.upper[i] - g.lower[i])
+            quanta.append(float(f"{2.0 * kin['hbar2_over_2m_' + 'xyz'[i]] / width**2:.3g}"))
+        centre = tuple(round(0.5 * (lo + hi), 6) for lo, hi in zip(g.lower, g.upper))
+        return OscillatorTerm(unique_label(project, "oscillator"), hbar_omega=tuple(quanta), centre=centre)
     raise InputError(f"unknown term kind {kind!r}")
 
 

@@ -1,5 +1,5 @@
 """The ordered list of potential terms (add, remove, reorder, enable, rename) and the
-editor of the selected term (formula, surface gates, imported map, uniform field)."""
+editor of the selected term (harmonic oscillator, formula, surface gates, imported map, uniform field)."""
 from __future__ import annotations
 
 import dataclasses
@@ -26,17 +26,18 @@ from PySide6.QtWidgets import (
 )
 
 from core.maps import INTERPOLATION_METHODS
-from core.project import FieldTerm, FormulaTerm, GatesTerm, MapTerm
+from core.project import FieldTerm, FormulaTerm, GatesTerm, MapTerm, OscillatorTerm
 
 from . import edits
 from .common import MessageLabel, ValueField, apply_edit, compact, fmt
 from .formula import FormulaEditor
 from .gates import GatesEditor
+from .oscillator import OscillatorEditor
 
 __all__ = ["TermsPanel", "MapEditor", "KIND_NAMES"]
 
-KIND_NAMES = {"formula": "formula", "gates": "surface gates", "map": "imported map",
-              "uniform_field": "uniform field"}
+KIND_NAMES = {"oscillator": "harmonic oscillator", "formula": "formula", "gates": "surface gates",
+              "map": "imported map", "uniform_field": "uniform field"}
 SHOWN_KIND_NAMES = dict(KIND_NAMES, points="scattered points")    # kinds shown but not offered in "add"
 
 
@@ -188,6 +189,7 @@ class TermsPanel(QWidget):
         self.formula.applied.connect(self._on_formula_applied)
         self.gates = GatesEditor(session)
         self.map = MapEditor(session)
+        self.oscillator = OscillatorEditor(session)
         self.field_note = QLabel("This term adds the uniform electric field (or, for atoms, a uniform force "
                                  "such as gravity) set under Fields: V = -q F.r.")
         self.field_note.setWordWrap(True)
@@ -195,7 +197,8 @@ class TermsPanel(QWidget):
         self.other_note = QLabel("This term has no editor here yet; change it in the project file.")
         self.other_note.setWordWrap(True)
         self.detail = QStackedWidget()
-        for w in (self.nothing, self.formula, self.gates, self.map, self.field_note, self.other_note):
+        for w in (self.nothing, self.formula, self.gates, self.map, self.oscillator, self.field_note,
+                  self.other_note):
             self.detail.addWidget(w)
         self.detail_title = QLabel()
         self.detail_title.setWordWrap(True)
@@ -271,6 +274,9 @@ class TermsPanel(QWidget):
         elif isinstance(t, MapTerm):
             self.map.set_term(i)
             self.detail.setCurrentWidget(self.map)
+        elif isinstance(t, OscillatorTerm):
+            self.oscillator.set_term(i)
+            self.detail.setCurrentWidget(self.oscillator)
         elif isinstance(t, FieldTerm):
             self.detail.setCurrentWidget(self.field_note)
         else:                       # e.g. a "points" term (scattered potential samples)

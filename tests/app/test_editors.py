@@ -192,6 +192,33 @@ def test_terms_add_reorder_disable_rename_remove(session, qtbot):
     assert panel.tree.topLevelItemCount() == 1
 
 
+def test_oscillator_term_editor_edits_each_axis_with_undo(session, qtbot):
+    """A new oscillator term is centred in the box with a ground state about a tenth of the box wide
+    (l0 = sqrt(2 K / hbar omega), K = hbar^2/(2 m*)); the editor edits hbar*omega per axis, a parameter
+    rename follows into it, and each edit is one undo step."""
+    from core.potentials import material_names
+    panel = make(TermsPanel, session, qtbot)
+    assert panel.add("oscillator")
+    t = session.project.potential[-1]
+    assert t.kind == "oscillator" and panel.detail.currentWidget() is panel.oscillator
+    g = session.project.grid
+    kin = material_names(session.project, session.project.parameters)["hbar2_over_2m"]
+    l0 = (2 * kin / t.hbar_omega[0]) ** 0.5
+    assert l0 == pytest.approx(0.1 * (g.upper[0] - g.lower[0]), rel=0.01)
+    assert t.centre == pytest.approx([0.5 * (lo + hi) for lo, hi in zip(g.lower, g.upper)])
+    assert not panel.oscillator.quanta[2].isVisibleTo(panel)          # a 2D grid has no z row
+    session_params = dict(session.project.parameters)
+    name = next(iter(session_params))
+    panel.oscillator.quanta[1].setText(f"2*{name}")
+    panel.oscillator.quanta[1].editingFinished.emit()
+    assert session.project.potential[-1].hbar_omega[1] == f"2*{name}"
+    session.set_project(edits.rename_parameter(session.project, name, "renamed"), "rename")
+    assert session.project.potential[-1].hbar_omega[1] == "2*renamed"
+    session.undo_stack.undo()
+    session.undo_stack.undo()
+    assert session.project.potential[-1].hbar_omega == t.hbar_omega
+
+
 def test_gates_term_needs_a_2d_grid(session, qtbot):
     panel = make(TermsPanel, session, qtbot)
     g = session.project.grid

@@ -195,3 +195,71 @@ def test_a_parameter_may_not_take_a_material_name():
     data["parameters"]["hbar2_over_2m"] = 1.0
     with pytest.raises(ProjectError, match="hbar2_over_2m.*reserved"):
         project_from_dict(data)
+
+
+# --- the oscillator term --------------------------------------------------------------------------
+
+def _oscillator_project(hbar_omega, centre, *, material="GaAs", grid=None, parameters=None):
+    from core.project import OscillatorTerm
+    term = OscillatorTerm(label="dot", hbar_omega=tuple(hbar_omega), centre=tuple(centre))
+    p = make_project(term, grid=grid or Grid([-120.0, -120.0], [120.0, 120.0], [64, 64]),
+                     parameters=parameters or {})
+    return dataclasses.replace(p, material=MaterialSpec(name=material))
+
+
+def test_oscillator_term_is_half_m_omega_squared_x_squared():
+    """The term equals 1/2 m* omega^2 (x - c)^2 with m* from the materials table and hbar from CODATA
+    (scipy.constants), written out by hand; 1e-12 relative (float64 arithmetic)."""
+    import scipy.constants as sc
+    p = _oscillator_project((2.0, "hy"), (5.0, -3.0), parameters={"hy": 3.0})
+    v = evaluate_potential(p)
+    x, y = p.grid.mesh_sparse()
+    m = 0.067 * sc.m_e
+    meV = 1e-3 * sc.e
+    omega = np.array([2.0, 3.0]) * meV / sc.hbar
+    expected = 0.5 * m * (omega[0]**2 * ((x - 5.0) * 1e-9)**2 + omega[1]**2 * ((y + 3.0) * 1e-9)**2) / meV
+    np.testing.assert_allclose(v, expected, rtol=1e-12)
+
+
+def test_oscillator_term_levels_are_the_anisotropic_oscillator():
+    """E = hw_x (n_x + 1/2) + hw_y (n_y + 1/2) (textbook separable oscillator, common practice), off
+    centre, for two materials: the quanta do not depend on the mass.  Spectral scheme, the box 8 oscillator
+    lengths (of the softer axis) from the centre, 96 points: error far below 1e-6 meV."""
+    exact = np.sort([2.0 * (i + 0.5) + 3.0 * (j + 0.5) for i in range(8) for j in range(8)])
+    for material, mass in (("GaAs", 0.067), ("InAs", 0.026)):
+        l0 = math.sqrt(2 * 38.0998 / mass / 2.0)          # hbar^2/(2 m_e) = 38.0998 meV nm^2 (recalled; box only)
+        half = 8 * l0
+        p = _oscillator_project((2.0, 3.0), (10.0, -8.0), material=material,
+                                grid=Grid([10.0 - half, -8.0 - half], [10.0 + half, -8.0 + half], [96, 96]))
+        result = solve_project(p, states=6, scheme="spectral")
+        n = len(result.energies)                   # 7: the solver completes the doublet at 8.5 meV
+        assert n >= 6
+        np.testing.assert_allclose(result.energies, exact[:n], atol=1e-6)
+
+
+@pytest.mark.parametrize("term, message", [
+    ({"hbar_omega": [1.0, -2.0]}, "hbar_omega[1]: hbar*omega cannot be negative"),
+    ({"hbar_omega": [1.0, 2.0, 3.0]}, "hbar_omega"),
+    ({}, "hbar_omega: missing"),
+    ({"hbar_omega": 3.0, "centre": [0.0]}, "centre"),
+    ({"hbar_omega": "nope"}, "hbar_omega"),
+])
+def test_bad_oscillator_terms_are_one_line_errors(term, message):
+    from core.errors import ProjectError
+    from core.project import project_from_dict, project_to_dict
+    data = project_to_dict(new_project())
+    data["potential"] = [{"kind": "oscillator", "label": "dot", **term}]
+    with pytest.raises(ProjectError) as info:
+        project_from_dict(data)
+    assert message in str(info.value) and "\n" not in str(info.value)
+
+
+def test_oscillator_term_round_trips_and_one_value_means_every_axis():
+    from core.project import OscillatorTerm, project_from_dict, project_to_dict
+    data = project_to_dict(new_project())
+    data["parameters"]["hw"] = 2.5
+    data["potential"] = [{"kind": "oscillator", "label": "dot", "hbar_omega": "hw"}]
+    p = project_from_dict(data)
+    (t,) = p.potential
+    assert isinstance(t, OscillatorTerm) and t.hbar_omega == ("hw", "hw") and t.centre == (0.0, 0.0)
+    assert project_from_dict(project_to_dict(p)) == p
