@@ -51,7 +51,9 @@ def cmd_solve(args) -> int:
         from core.study import project_hamiltonian
         h = project_hamiltonian(project, parameters=result.parameters, scheme=result.scheme,
                                 potential=result.potential)[0]
-        cert = certify_count(h, spec)
+        with Progress("counting levels", enabled=None if not args.json else False).waiting(
+                "Sylvester count (LDL^T factorisation)"):
+            cert = certify_count(h, spec)
     if args.out:
         out = Path(args.out)
         out.mkdir(parents=True, exist_ok=True)

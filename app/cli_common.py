@@ -6,7 +6,9 @@ import it without importing the dispatcher that imports them.
 """
 from __future__ import annotations
 
+import contextlib
 import sys
+import threading
 import time
 from collections.abc import Sequence
 
@@ -41,6 +43,35 @@ class Progress:
         if self.enabled:
             sys.stderr.write("\n")
             sys.stderr.flush()
+
+    @contextlib.contextmanager
+    def waiting(self, stage: str, *, after: float = 1.0):
+        """For one long call that reports no fraction (a factorisation): after ``after`` seconds, a
+        line with the elapsed time, updated twice a second until the call returns."""
+        if not self.enabled:
+            yield
+            return
+        stop = threading.Event()
+        t0 = time.perf_counter()
+
+        def tick():
+            if stop.wait(after):
+                return
+            while True:
+                sys.stderr.write(f"\r{self.label}: {stage} ... {time.perf_counter() - t0:6.1f} s")
+                sys.stderr.flush()
+                if stop.wait(0.5):
+                    sys.stderr.write("\n")
+                    sys.stderr.flush()
+                    return
+
+        thread = threading.Thread(target=tick, daemon=True)
+        thread.start()
+        try:
+            yield
+        finally:
+            stop.set()
+            thread.join()
 
 
 def parse_sets(items: Sequence[str]) -> dict:

@@ -154,3 +154,18 @@ def test_sweep_interrupted_writes_what_was_solved(capsys, tmp_path, monkeypatch)
     from core.sweep import load_sweep
     back = load_sweep(tmp_path / "sweep.npz")
     assert not back.complete and back.values.size == 3
+
+
+def test_a_long_call_without_fractions_shows_its_elapsed_time_only_on_a_terminal(capsys):
+    """Progress.waiting: a line with the elapsed time while a long call runs (a factorisation),
+    nothing when stderr is not a terminal (enabled=False, as when piped)."""
+    import time
+
+    from app.cli_common import Progress
+    with Progress("counting levels", enabled=True).waiting("factorising", after=0.05):
+        time.sleep(0.8)
+    err = capsys.readouterr().err
+    assert "counting levels: factorising ..." in err and err.endswith("\n")
+    with Progress("counting levels", enabled=False).waiting("factorising", after=0.0):
+        time.sleep(0.2)
+    assert capsys.readouterr().err == ""
