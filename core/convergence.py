@@ -54,6 +54,7 @@ from .convergence_levels import (
     NOT_MONOTONIC,
     SIGNIFICANT,
     judge_level,
+    level_status,
     observed_order,
     richardson,
 )
@@ -227,7 +228,6 @@ class ConvergenceReport:
 
     def rows(self) -> list:
         """One dict per level (project-grid numbering) for tables and JSON."""
-        from .convergence_report import level_status
         out = []
         oe = self.order_errors if self.order_errors is not None else np.full(self.levels, np.nan)
         for i in range(self.levels):

@@ -25,7 +25,10 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import brentq
 
-__all__ = ["richardson", "observed_order", "LevelJudgement", "judge_level", "SIGNIFICANT",
+from .formatting import format_uncertain
+
+__all__ = ["format_order", "level_status", "richardson", "observed_order", "LevelJudgement", "judge_level",
+           "SIGNIFICANT",
            "CONVERGED", "CONVERGES", "NOT_MONOTONIC", "GROWING", "TWO_GRIDS", "NOT_FOUND", "FEW_GRIDS"]
 
 #: a change between grids is judged (an order, monotonic or not) only above this many times the solver's accuracy
@@ -144,3 +147,29 @@ def judge_level(e, hs, noise: float, expected: float, reference_energy: float) -
             if wide > err:
                 err, widened = wide, True
     return LevelJudgement(ext, max(err, noise), p, dp, CONVERGES, widened)
+
+
+# --- words for one level (used by the report tables and the JSON rows) -----------------------------
+
+def format_order(p: float, dp: float = float("nan")) -> str:
+    """An observed order: one decimal when it is known to better than 0.1 (three grids judge no finer:
+    the next terms of the error expansion move it), else with its uncertainty."""
+    if math.isinf(p):
+        return "faster than any power these grids resolve"
+    if not math.isfinite(p):
+        return "not measured"
+    if not math.isfinite(dp) or dp < 0.1:
+        return f"{p:.1f}"
+    return format_uncertain(p, dp)
+
+
+def level_status(report, i: int) -> str:
+    """Level ``i``'s convergence in words: "converged to the solver's accuracy", "converges (order
+    p ≈ 2.1)", "not monotonic", "not converging yet", ..."""
+    status = report.statuses[i] if i < len(report.statuses) else ""
+    if status.endswith(CONVERGES):
+        p = float(report.observed_orders[i])
+        dp = float(report.order_errors[i]) if report.order_errors is not None else float("nan")
+        words = format_order(p, dp)
+        status = status + (f" ({words})" if math.isinf(p) else f" (order p ≈ {words})")
+    return status

@@ -18,7 +18,6 @@ import math
 import numpy as np
 
 from .convergence import (
-    CONVERGES,
     DEGENERATE,
     JUDGE_FRACTION,
     MARKS,
@@ -27,9 +26,11 @@ from .convergence import (
     TOO_COARSE,
     default_degeneracy_tolerance,
 )
+from .convergence_levels import format_order, level_status  # noqa: F401  (re-exported)
 from .formatting import _fixed, _rounded_uncertainty, format_bound, format_uncertain, format_value  # noqa: F401
 
-__all__ = ["coarse_words", "format_uncertain", "format_value", "format_bound", "format_spacing", "format_order", "level_status",
+__all__ = ["coarse_words", "format_uncertain", "format_value", "format_bound", "format_spacing", "format_order",
+           "level_status",
            "order_words", "summary_words", "verdict_legend", "format_report"]
 
 
@@ -40,30 +41,6 @@ def format_spacing(grid, unit: str = "") -> str:
     dec = max(0, 3 - int(math.floor(math.log10(float(h.max())))))
     tail = f" {unit}" if unit and unit != "1" else ""
     return " x ".join(f"{x:.{dec}f}" for x in h) + tail
-
-
-def format_order(p: float, dp: float = float("nan")) -> str:
-    """An observed order: one decimal when it is known to better than 0.1 (three grids judge no finer:
-    the next terms of the error expansion move it), else with its uncertainty."""
-    if math.isinf(p):
-        return "faster than any power these grids resolve"
-    if not math.isfinite(p):
-        return "not measured"
-    if not math.isfinite(dp) or dp < 0.1:
-        return f"{p:.1f}"
-    return format_uncertain(p, dp)
-
-
-def level_status(report, i: int) -> str:
-    """Level ``i``'s convergence in words: "converged to the solver's accuracy", "converges (order
-    p ≈ 2.1)", "not monotonic", "not converging yet", ..."""
-    status = report.statuses[i] if i < len(report.statuses) else ""
-    if status.endswith(CONVERGES):
-        p = float(report.observed_orders[i])
-        dp = float(report.order_errors[i]) if report.order_errors is not None else float("nan")
-        words = format_order(p, dp)
-        status = status + (f" ({words})" if math.isinf(p) else f" (order p ≈ {words})")
-    return status
 
 
 def order_words(report) -> str:
@@ -125,7 +102,8 @@ def _coarse_lines(report, eu: str) -> list:
         lv = ", ".join(str(i) for i in c.levels)
         inner = [abs(s.project_splitting) for s in report.splittings()
                  if s.lower in c.levels and s.upper in c.levels and not s.degenerate]
-        gap = "no other level known" if not math.isfinite(c.gap) else f"a {c.gap:.3g} {eu} gap to the nearest other level"
+        gap = ("no other level known" if not math.isfinite(c.gap)
+               else f"a {c.gap:.3g} {eu} gap to the nearest other level")
         lines.append(f"{TOO_COARSE}: {lv} (errors up to ± {c.tolerance:.2g} {eu} against {gap}; "
                      f"splittings {', '.join(f'{x:.2g}' for x in inner)} {eu} on the project grid)")
         if c.needed is None:
@@ -197,7 +175,8 @@ def format_report(report, *, marks=None, title: str = "", certificate=None, timi
     for s in report.splittings():
         n2 = 2 * max(noise[s.lower], noise[s.upper])
         val = format_bound(s.error, "") if s.degenerate else format_uncertain(s.splitting, s.error)
-        cells.append([f"{s.lower}-{s.upper}", val, format_value(s.project_splitting, n2), f"{marks[s.verdict]} {s.words}"])
+        cells.append([f"{s.lower}-{s.upper}", val, format_value(s.project_splitting, n2),
+                      f"{marks[s.verdict]} {s.words}"])
     head = ["levels", f"splitting [{eu}]", f"on project grid [{eu}]", "verdict"]
     widths = [max(len(head[c]), *(len(r[c]) for r in cells)) for c in range(3)] if cells else [len(h) for h in head[:3]]
     lines += [fmt(head), "-" * (sum(widths) + 6 + 40)] + [fmt(r) for r in cells]

@@ -375,7 +375,8 @@ def build_hamiltonian(grid: Grid, potential, *, mass=1.0, units="dimensionless",
     return Hamiltonian(grid=grid, potential=v, prefactors=prefactors, scheme=scheme, kinetic_1d=kin,
                        phases=phases, magnetic_field=tuple(float(x) for x in b), gauge=gauge,
                        kappa=u.phase_per_flux_area() if phases is not None else 0.0,
-                       gauge_centre=None if gauge_centre is None else tuple(np.resize(np.asarray(gauge_centre, float), 3)))
+                       gauge_centre=(None if gauge_centre is None
+                                     else tuple(np.resize(np.asarray(gauge_centre, float), 3))))
 
 
 def rebuild_on_grid(h: Hamiltonian, grid: Grid, potential: np.ndarray) -> Hamiltonian:

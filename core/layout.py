@@ -28,7 +28,8 @@ from .errors import InputError
 from .gates import validate_polygon
 from .project import GateSpec
 
-__all__ = ["LayerChoice", "parse_layer", "read_layout_gates", "layout_unit_scale", "project_with_gates", "MAX_FILE_BYTES",
+__all__ = ["LayerChoice", "parse_layer", "read_layout_gates", "layout_unit_scale", "project_with_gates",
+           "MAX_FILE_BYTES",
            "MAX_GATE_VERTICES", "MAX_GATES"]
 
 from .limits import MAX_IMPORTED_GATE_VERTICES  # noqa: E402

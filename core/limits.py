@@ -7,7 +7,8 @@ each error names the bound it broke.
 """
 from __future__ import annotations
 
-__all__ = ["MAX_POINTS_PER_AXIS", "MAX_COORDINATE", "MIN_VOLUME_ELEMENT", "MASS_RANGE", "MAX_ENERGY", "MAX_MAGNETIC_FIELD",
+__all__ = ["MAX_POINTS_PER_AXIS", "MAX_COORDINATE", "MIN_VOLUME_ELEMENT", "MASS_RANGE", "MAX_ENERGY",
+           "MAX_MAGNETIC_FIELD",
            "MAX_MAP_BYTES", "MAX_POLYGON_VERTICES", "MAX_IMPORTED_GATE_VERTICES", "MAX_WORKERS", "MAX_PATH_CHARS",
            "POTENTIAL_WORK_ARRAYS"]
 

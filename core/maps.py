@@ -32,7 +32,8 @@ from .grid import AXIS_NAMES, Grid
 from .limits import MAX_MAP_BYTES, MAX_PATH_CHARS
 from .resources import format_bytes
 
-__all__ = ["load_map_file", "interpolate_map", "MAP_SUFFIXES", "INTERPOLATION_METHODS", "allow_map_folder", "npz_headers",
+__all__ = ["load_map_file", "interpolate_map", "MAP_SUFFIXES", "INTERPOLATION_METHODS", "allow_map_folder",
+           "npz_headers",
            "confined_map_path", "MAP_FOLDERS_VARIABLE"]
 
 MAP_SUFFIXES = (".npy", ".npz", ".csv", ".txt")

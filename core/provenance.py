@@ -24,7 +24,8 @@ from collections.abc import Mapping
 from pathlib import Path
 
 __all__ = ["fingerprint", "physics_document", "result_fingerprint", "sweep_fingerprint",
-           "project_fingerprint_for_sweep", "sweep_matches", "sweep_changes", "changes", "map_file_hashes", "FINGERPRINT_DIGITS"]
+           "project_fingerprint_for_sweep", "sweep_matches", "sweep_changes", "changes", "map_file_hashes",
+           "FINGERPRINT_DIGITS"]
 
 #: hex digits of a fingerprint (48 bits: collisions between the states of one session are negligible)
 FINGERPRINT_DIGITS = 12
@@ -115,7 +116,7 @@ def result_fingerprint(result) -> str:
 
 
 def _swept_name(sweep_project, target: str) -> str:
-    from .sweep import SWEEP_PARAMETER
+    from .targets import SWEEP_PARAMETER
     return target if target in sweep_project.parameters and target != SWEEP_PARAMETER else SWEEP_PARAMETER
 
 
@@ -130,7 +131,7 @@ def project_fingerprint_for_sweep(project, target: str, *, parameters: Mapping[s
     """The fingerprint :func:`sweep_fingerprint` gives a sweep of ``target`` run on ``project``
     (with ``parameters`` as solved); ``""`` when ``project`` cannot sweep ``target`` at all."""
     from .errors import InputError
-    from .sweep.targets import prepare_target  # the one place that turns a field or gate into a swept parameter
+    from .targets import prepare_target  # the one place that turns a field or gate into a swept parameter
     if parameters is not None:
         project = dataclasses.replace(project, parameters={str(k): float(v) for k, v in parameters.items()})
     try:
@@ -144,7 +145,7 @@ def sweep_changes(sweep, project, *, parameters: Mapping[str, float] | None = No
     """What differs in the physics between the project ``sweep`` ran on and ``project`` (with
     ``parameters``), the swept quantity aside; [] when the sweep matches it."""
     from .errors import InputError
-    from .sweep.targets import prepare_target
+    from .targets import prepare_target
     if parameters is not None:
         project = dataclasses.replace(project, parameters={str(k): float(v) for k, v in parameters.items()})
     try:

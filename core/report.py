@@ -82,7 +82,8 @@ def format_spin_table(result: StudyResult) -> str:
     u = result.units
     e0 = sl.energies[0]
     lines = [f"spin-resolved levels: Zeeman splitting g*mu_B*|B| = {sl.zeeman:.6g} {u.energy_unit}",
-             f"{'level':>6}  {'orbital':>7}  {'spin':>5}  {'E [' + u.energy_unit + ']':>14}  {'E-E0 [' + u.energy_unit + ']':>14}"]
+             f"{'level':>6}  {'orbital':>7}  {'spin':>5}  {'E [' + u.energy_unit + ']':>14}  "
+             f"{'E-E0 [' + u.energy_unit + ']':>14}"]
     for i, (e, o, s) in enumerate(zip(sl.energies, sl.orbital, sl.spin)):
         lines.append(f"{i:>6}  {o:>7}  {'+1/2' if s > 0 else '-1/2':>5}  {e:>14.6f}  {e - e0:>14.6f}")
     return "\n".join(lines)

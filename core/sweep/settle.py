@@ -195,7 +195,8 @@ class Settler:
                 c2 = replace(c, fit={"centre": xc, "gap": g_mid, "slope": s, "from": "mixing"}, at=xc, gap=g_mid)
                 return self._refine_anticrossing(c2, left, right, [left, right], extra=samples)
             if g_hi <= self.resolution:
-                return replace(c, kind="crossing", at=x0, at_uncertainty=self._crossing_uncertainty(c, x0, step), gap=0.0, gap_bound=g_hi,
+                return replace(c, kind="crossing", at=x0, at_uncertainty=self._crossing_uncertainty(c, x0, step),
+                               gap=0.0, gap_bound=g_hi,
                                sampled_gap=min(c.sampled_gap, left.d, right.d), smallest_step=step,
                                refinements=len(samples), evidence="the states keep their character",
                                reason="the levels pass through each other and their states do not mix"

@@ -77,7 +77,8 @@ def test_text_report_has_units_orders_and_verdicts(run, project_file):
     assert verdicts[0].endswith("✓ resolved") or verdicts[0].endswith("+ resolved")
     assert verdicts[1].endswith("resolved")
     assert "not monotonic" not in out
-    assert re.search(r"time: \d+\.\d s from the command.s start to this report: start-up and loading .*; estimate .*; the study "
+    assert re.search(r"time: \d+\.\d s from the command.s start to this report: start-up and loading .*; "
+                     r"estimate .*; the study "
                      r".*eigensolves .* on 21x21, .* on 32x32, .* on 48x48", out)
 
 

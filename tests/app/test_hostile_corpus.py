@@ -98,7 +98,8 @@ def test_every_hostile_input_ends_in_success_or_one_line(tmp_path, references):
     for name in ("check:points_1000_cubed", "check:points_400_digits", "check:mass_1e-300",
                  "solve:potential_1e300_r2", "check:map_npy_declares_8_TiB", "check:map_csv_link_to_system_file",
                  "check:map_path_outside", "check:duplicate_keys", "check:title_lone_surrogate",
-                 "check:kind_is_a_list", "check:polygon_over_the_limit", "check:title_terminal_escape", "check:points_product_overflows"):
+                 "check:kind_is_a_list", "check:polygon_over_the_limit", "check:title_terminal_escape",
+                 "check:points_product_overflows"):
         assert verdicts[name] == "one-line error", name
     assert verdicts["check:polygon_10000_vertices"] == "ok"
 

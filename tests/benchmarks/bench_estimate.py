@@ -84,7 +84,8 @@ def bench(path: Path, runs: int, fine: bool, count: bool, max_count_s: float = 1
 def _format(r: dict) -> str:
     text = (f"{r['sample']:<24} {r['grid']:<8} {r['unknowns']:>8,}  solve est {r['solve_est']:6.2f} s  "
             f"measured {r['solve_best']:7.2f} s (median {r['solve_median']:7.2f})  "
-            f"ratio {r['solve_est'] / r['solve_best']:5.2f} (after a solve {r['solve_est_after'] / r['solve_best']:5.2f})"
+            f"ratio {r['solve_est'] / r['solve_best']:5.2f} "
+            f"(after a solve {r['solve_est_after'] / r['solve_best']:5.2f})"
             f"  (scipy eigsh baseline {r['eigsh']:6.2f} s)")
     if "count_est" in r:
         text += (f"  | count est {r['count_est']:7.2f} s  measured {r['count_best']:7.2f} s  "

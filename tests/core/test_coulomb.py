@@ -17,7 +17,8 @@ def test_singular_weight_is_the_square_lattice_sum():
     I. J. Zucker, in Theoretical Chemistry: Advances and Perspectives 5, 67 (1980) [recalled from memory]).
     zeta(1/2) from scipy.special; beta(1/2) = pi^-1/2 int_0^inf du / cosh(u^2) with scipy quad.
     Our weight comes from Gaussians extrapolated in width, so it should agree to about 1e-7."""
-    beta_half = integrate.quad(lambda u: 2.0 * np.exp(-u * u) / (1.0 + np.exp(-2.0 * u * u)), 0.0, np.inf, epsabs=0, epsrel=1e-13)[0] / np.sqrt(np.pi)
+    beta_half = integrate.quad(lambda u: 2.0 * np.exp(-u * u) / (1.0 + np.exp(-2.0 * u * u)), 0.0, np.inf,
+                               epsabs=0, epsrel=1e-13)[0] / np.sqrt(np.pi)
     expected = -4.0 * zeta(0.5) * beta_half
     assert singular_weight([0.5, 0.5]) * 0.5 == pytest.approx(expected, rel=1e-6)
     assert singular_weight([1.0, 1.0]) == pytest.approx(3.9002649, abs=2e-7)
