@@ -200,18 +200,11 @@ def read_states_npz(path: PathLike) -> dict:
 # --- sweeps ----------------------------------------------------------------------------------
 
 def parameter_unit(sweep) -> str:
-    """Unit of a swept quantity when the project says it: tesla for a magnetic-field
-    component, the field unit for an electric-field component, volts for a gate; "" for a
-    project parameter (its unit is the user's own)."""
-    name = str(getattr(sweep, "parameter", ""))
-    u = sweep.units
-    if name.startswith("magnetic_field"):
-        return u.magnetic_unit
-    if name.startswith("electric_field"):
-        return u.field_unit
-    if name.startswith("gate:"):
-        return "V"
-    return str(getattr(sweep, "parameter_unit", "") or "")
+    """Unit of a swept quantity (:func:`core.targets.target_unit`: the field units, V for a gate, a
+    parameter's own unit when the project gives one); a unit the sweep carries itself wins."""
+    from .targets import target_unit
+    own = str(getattr(sweep, "parameter_unit", "") or "")
+    return own or target_unit(sweep.project, str(getattr(sweep, "parameter", "")))
 
 
 def sweep_csv_text(sweep, *, by: str = "tracks") -> str:

@@ -238,3 +238,30 @@ def apply_edit(session, make: Callable, text: str, message: MessageLabel | None 
     if message is not None and message.is_error:
         message.clear_message()
     return True
+
+
+class TermEditor(QWidget):
+    """Base of the editors of one potential term: the term at ``term_index`` of the session's project,
+    when it is of ``term_class`` (subclasses set it and write ``refresh``)."""
+
+    term_class: type = object
+
+    def __init__(self, session, parent: QWidget | None = None):
+        super().__init__(parent)
+        self.session = session
+        self.term_index: int | None = None
+        self._loading = False
+
+    def term(self):
+        p = self.session.project
+        if self.term_index is None or self.term_index >= len(p.potential):
+            return None
+        t = p.potential[self.term_index]
+        return t if isinstance(t, self.term_class) else None
+
+    def set_term(self, index: int | None) -> None:
+        self.term_index = index
+        self.refresh()
+
+    def refresh(self) -> None:  # pragma: no cover - every subclass writes its own
+        raise NotImplementedError

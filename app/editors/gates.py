@@ -26,19 +26,18 @@ from core.errors import WellscapeError
 from core.project import GatesTerm
 
 from . import edits
-from .common import MessageLabel, ValueField, apply_edit, fmt, parse_value
+from .common import MessageLabel, TermEditor, ValueField, apply_edit, fmt, parse_value
 
 __all__ = ["GatesEditor"]
 
 
-class GatesEditor(QWidget):
+class GatesEditor(TermEditor):
     """Edit the gates term at ``term_index`` of the session's project."""
 
+    term_class = GatesTerm
+
     def __init__(self, session, parent: QWidget | None = None):
-        super().__init__(parent)
-        self.session = session
-        self.term_index: int | None = None
-        self._loading = False
+        super().__init__(session, parent)
         self.message = MessageLabel()
 
         self.depth = ValueField(positive=True, message=self.message)
@@ -107,13 +106,6 @@ class GatesEditor(QWidget):
         lay.addWidget(self.message)
 
     # -- helpers -----------------------------------------------------------------------------------
-    def term(self) -> GatesTerm | None:
-        p = self.session.project
-        if self.term_index is None or self.term_index >= len(p.potential):
-            return None
-        t = p.potential[self.term_index]
-        return t if isinstance(t, GatesTerm) else None
-
     def selected_gate(self) -> int | None:
         rows = self.gates.selectionModel().selectedRows() if self.gates.selectionModel() else []
         if rows:
@@ -131,10 +123,6 @@ class GatesEditor(QWidget):
                     "edit gates term")
 
     # -- session -> widgets ----------------------------------------------------------------------
-    def set_term(self, index: int | None) -> None:
-        self.term_index = index
-        self.refresh()
-
     def refresh(self) -> None:
         t = self.term()
         if t is None:

@@ -8,22 +8,21 @@ from PySide6.QtWidgets import QFormLayout, QLabel, QWidget
 from core.project import OscillatorTerm
 
 from . import edits
-from .common import MessageLabel, ValueField, apply_edit
+from .common import MessageLabel, TermEditor, ValueField, apply_edit
 
 __all__ = ["OscillatorEditor"]
 
 AXES = "xyz"
 
 
-class OscillatorEditor(QWidget):
+class OscillatorEditor(TermEditor):
     """V = sum over axes of 1/2 m* omega_i^2 (x_i - c_i)^2, written by its quanta hbar*omega_i and
     centre c_i (numbers or formulas of parameters); m* is the project's material mass along each axis."""
 
+    term_class = OscillatorTerm
+
     def __init__(self, session, parent: QWidget | None = None):
-        super().__init__(parent)
-        self.session = session
-        self.term_index: int | None = None
-        self._loading = False
+        super().__init__(session, parent)
         self.message = MessageLabel()
         self.quanta = [ValueField(message=self.message) for _ in AXES]
         self.centre = [ValueField(message=self.message) for _ in AXES]
@@ -45,17 +44,6 @@ class OscillatorEditor(QWidget):
         note.setWordWrap(True)
         self.form.addRow(note)
         self.form.addRow(self.message)
-
-    def term(self) -> OscillatorTerm | None:
-        p = self.session.project
-        if self.term_index is None or self.term_index >= len(p.potential):
-            return None
-        t = p.potential[self.term_index]
-        return t if isinstance(t, OscillatorTerm) else None
-
-    def set_term(self, index: int | None) -> None:
-        self.term_index = index
-        self.refresh()
 
     def refresh(self) -> None:
         t = self.term()

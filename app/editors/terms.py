@@ -29,7 +29,7 @@ from core.maps import INTERPOLATION_METHODS
 from core.project import FieldTerm, FormulaTerm, GatesTerm, MapTerm, OscillatorTerm
 
 from . import edits
-from .common import MessageLabel, ValueField, apply_edit, compact, fmt
+from .common import MessageLabel, TermEditor, ValueField, apply_edit, compact, fmt
 from .formula import FormulaEditor
 from .gates import GatesEditor
 from .oscillator import OscillatorEditor
@@ -41,14 +41,13 @@ KIND_NAMES = {"oscillator": "harmonic oscillator", "formula": "formula", "gates"
 SHOWN_KIND_NAMES = dict(KIND_NAMES, points="scattered points")    # kinds shown but not offered in "add"
 
 
-class MapEditor(QWidget):
+class MapEditor(TermEditor):
     """An imported potential map: its file, its own corners, a scale and the interpolation."""
 
+    term_class = MapTerm
+
     def __init__(self, session, parent: QWidget | None = None):
-        super().__init__(parent)
-        self.session = session
-        self.term_index: int | None = None
-        self._loading = False
+        super().__init__(session, parent)
         self.message = MessageLabel()
         self.file = QLineEdit()
         self.file.setToolTip("A .npy, .npz, .csv or .txt array; a relative path is relative to the project file")
@@ -82,17 +81,6 @@ class MapEditor(QWidget):
         form.addRow("Scale (energy unit per map unit)", self.scale)
         form.addRow("Interpolation", self.method)
         form.addRow(self.message)
-
-    def term(self) -> MapTerm | None:
-        p = self.session.project
-        if self.term_index is None or self.term_index >= len(p.potential):
-            return None
-        t = p.potential[self.term_index]
-        return t if isinstance(t, MapTerm) else None
-
-    def set_term(self, index: int | None) -> None:
-        self.term_index = index
-        self.refresh()
 
     def refresh(self) -> None:
         t = self.term()
