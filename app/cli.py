@@ -15,14 +15,11 @@ from pathlib import Path
 
 import numpy as np
 
-from app.cli_common import EXIT_USER_ERROR, Progress, UsageError, apply_sets, jsonable, load_with_notes, parse_sets
+from app.cli_common import EXIT_USER_ERROR, Progress, UsageError, apply_sets, jsonable, load_with_notes
 
 SAMPLES = Path(__file__).resolve().parent.parent / "sample_projects"
 DEFAULT_SAMPLE = "gaas_single_dot.json"
 
-# the old private names, still imported by app/figure_cli.py
-_Progress, _UsageError, _apply_sets, _load, _jsonable, _parse_sets = (
-    Progress, UsageError, apply_sets, load_with_notes, jsonable, parse_sets)
 
 
 # --- commands ----------------------------------------------------------------------------------
@@ -292,7 +289,4 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 
 if __name__ == "__main__":
-    # run as ``python -m app.cli``: use the imported module's main, so that its error classes are the
-    # ones the subcommand modules (which import app.cli) raise
-    from app.cli import main as _main
-    sys.exit(_main())
+    sys.exit(main())

@@ -155,7 +155,8 @@ def cmd_figure(args) -> int:
         if args.converge:
             fixed.append("--converge")
         if fixed:
-            _fail(f"{', '.join(fixed)} {'changes' if len(fixed) == 1 else 'change'} what is plotted; a sheet redrawn --from its data keeps its values "
+            verb = "changes" if len(fixed) == 1 else "change"
+            _fail(f"{', '.join(fixed)} {verb} what is plotted; a sheet redrawn --from its data keeps its values "
                   f"(only --template, --columns, --dpi and --title apply)")
         sheet = load_sheet(args.sheet)
         changes = {}
@@ -173,9 +174,9 @@ def cmd_figure(args) -> int:
 
     if not args.project:
         _fail("give a PROJECT file to draw, or --from SHEET.json to redraw a sheet")
-    from app.cli import _apply_sets, _load, _Progress
+    from app.cli_common import Progress, apply_sets, load_with_notes
 
-    project, overrides = _apply_sets(_load(args.project), args.set)
+    project, overrides = apply_sets(load_with_notes(args.project), args.set)
     states = _parse_states(args.states)
     sweep = None
     if args.sweep:
@@ -195,7 +196,7 @@ def cmd_figure(args) -> int:
             wanted = max(wanted, max(states) + 1)
         if tokens:
             wanted = max([wanted] + [n for name, n in tokens if name == "states"])
-        bar = _Progress("solving")
+        bar = Progress("solving")
         result = solve_project(project, parameters=overrides, states=wanted, progress=bar)
         bar.done()
     elif args.set:
@@ -211,7 +212,7 @@ def cmd_figure(args) -> int:
         est = estimate_convergence(project, factor=args.factor, levels=project.solver.states,
                                    parameters=overrides).check()
         print(f"wellscape: {est.describe()}", file=sys.stderr)
-        bar = _Progress("converging")
+        bar = Progress("converging")
         report = convergence_study(project, factor=args.factor, levels=project.solver.states,
                                    parameters=overrides, progress=bar)
         bar.done()
@@ -235,18 +236,15 @@ def _report(fig_path: Path, data_path: Path | None, dpi: float, sheet) -> None:
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Run ``figure`` on its own (the same handling of errors as ``wellscape``)."""
+    from app.cli_common import UsageError
     from core.errors import WellscapeError
-    try:
-        from app.cli import _UsageError
-    except ImportError:  # pragma: no cover - app.cli is part of the package
-        _UsageError = ()
     parser = argparse.ArgumentParser(prog="wellscape")
     sub = parser.add_subparsers(dest="command", required=True)
     add_figure_parser(sub)
     args = parser.parse_args(argv)
     try:
         return int(args.func(args) or 0)
-    except (WellscapeError, _UsageError) as exc:
+    except (WellscapeError, UsageError) as exc:
         print(f"wellscape: error: {exc}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:

@@ -57,6 +57,7 @@ from .convergence_levels import (
     level_status,
     observed_order,
     richardson,
+    study_states,
 )
 from .convergence_match import interpolate_states, match_levels
 from .eigensolve import energy_scale
@@ -87,12 +88,6 @@ JUDGE_FRACTION = 0.25
 
 ProgressFn = Callable[[str, float], None] | None
 StopFn = Callable[[], bool] | None
-
-
-def study_states(levels: int) -> int:
-    """States solved on each grid for ``levels`` reported levels: a few extra, so that levels which
-    move across the top between grids can still be matched."""
-    return int(levels) + max(3, int(math.ceil(levels / 4)))
 
 
 # --- report ------------------------------------------------------------------------------------------

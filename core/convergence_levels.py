@@ -27,7 +27,8 @@ from scipy.optimize import brentq
 
 from .formatting import format_uncertain
 
-__all__ = ["format_order", "level_status", "richardson", "observed_order", "LevelJudgement", "judge_level",
+__all__ = ["format_order", "level_status", "study_states",
+           "richardson", "observed_order", "LevelJudgement", "judge_level",
            "SIGNIFICANT",
            "CONVERGED", "CONVERGES", "NOT_MONOTONIC", "GROWING", "TWO_GRIDS", "NOT_FOUND", "FEW_GRIDS"]
 
@@ -173,3 +174,9 @@ def level_status(report, i: int) -> str:
         words = format_order(p, dp)
         status = status + (f" ({words})" if math.isinf(p) else f" (order p ≈ {words})")
     return status
+
+
+def study_states(levels: int) -> int:
+    """States solved on each grid for ``levels`` reported levels: a few extra, so that levels which
+    move across the top between grids can still be matched."""
+    return int(levels) + max(3, int(math.ceil(levels / 4)))

@@ -30,6 +30,7 @@ from .grid import Grid
 from .hamiltonian import Hamiltonian
 from .project import Project
 from .resources import available_memory_bytes, format_bytes
+from .solve_rates import forget_solves, record_solve, solved_time
 
 __all__ = ["Estimate", "measure_apply_rate", "estimate_solve", "estimate_sweep", "estimate_convergence",
            "convergence_grids", "block_size", "clear_rate_cache", "record_solve"]
@@ -47,18 +48,10 @@ _OVERHEAD = 1.75
 _APPS_SCALE = 0.56
 
 _RATE_CACHE: dict = {}
-_SOLVED: dict = {}        # (scheme, grid shape, complex) -> (seconds, states) of the latest cold solve
 #: a cold solve of at least 30000 points starts on a grid half as fine (core.eigensolve): it then
 #: takes about this share of the model's time (0.20-0.24 measured on the bundled 2D samples at 3x
 #: their grid, 37636 and 49300 points, spectral scheme)
 _COARSE_START_SHARE = 0.25
-
-
-def record_solve(scheme: str, grid: Grid, complex_: bool, states: int, seconds: float) -> None:
-    """Remember how long a cold solve of ``states`` states just took on this machine: later estimates
-    for the same scheme and grid shape scale that time by the block size instead of modelling it."""
-    if states > 0 and seconds > 0:
-        _SOLVED[(str(scheme), tuple(grid.shape), bool(complex_))] = (float(seconds), int(states))
 
 
 def _coarse_started(grid: Grid) -> bool:
@@ -70,7 +63,7 @@ def _coarse_started(grid: Grid) -> bool:
 def clear_rate_cache() -> None:
     """Forget the measured application rates (for tests and after a machine change)."""
     _RATE_CACHE.clear()
-    _SOLVED.clear()
+    forget_solves()
 
 
 def block_size(states: int) -> int:
@@ -269,7 +262,7 @@ def estimate_solve(project: Project, *, states: int | None = None, grid: Grid | 
     mem = _memory(grid.size, k, cplx)
     fits = mem <= budget
     apps = _applications(h, k)
-    solved = _SOLVED.get((h.scheme, tuple(grid.shape), cplx))
+    solved = solved_time(h.scheme, grid.shape, cplx)
     rate = measure_apply_rate(h) if solved is None else None
     if solved is not None:             # a cold solve of this size ran here: its time, per block vector
         seconds = solves * solved[0] * block_size(k) / block_size(solved[1])
@@ -327,7 +320,7 @@ def estimate_convergence(project: Project, *, factor: float = 1.5, grids: int = 
                          parameters: Mapping[str, float] | None = None, refine: str = "coarser",
                          measure: bool = True) -> Estimate:
     """Estimate a convergence study: one solve per grid (memory of the largest, time of all)."""
-    from .convergence import study_states
+    from .convergence_levels import study_states
     gs = convergence_grids(project.grid, factor, grids, refine)
     k = study_states(int(project.solver.states if levels is None else levels))
     largest = gs[-1]

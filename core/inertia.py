@@ -471,6 +471,7 @@ def certify_count(hamiltonian: Hamiltonian, spectrum: Spectrum, *, shift: float 
                                 got.method, secs, est)
     k = expected - got.count
     return CountCertificate(False, got.count, expected, got.shift,
-                            f"only {got.count} eigenvalues lie below {got.shift:.6g} but the solve returned {expected}: "
+                            f"only {got.count} eigenvalues lie below {got.shift:.6g} "
+                            f"but the solve returned {expected}: "
                             f"{k} returned level{'s are' if k > 1 else ' is'} not an eigenvalue of this Hamiltonian "
                             f"(not converged, or from another grid)", got.method, secs, est)

@@ -117,7 +117,7 @@ def solve_project(project: Project, *, parameters: Mapping[str, float] | None = 
     spec = lowest_states(h, k, tolerance=tolerance or project.solver.tolerance, start=start,
                          progress=progress, should_stop=should_stop)
     if start is None and tolerance is None:
-        from .estimate import record_solve  # the next estimate of this size uses this rate
+        from .solve_rates import record_solve  # the next estimate of this size uses this rate
         record_solve(scheme, grid, h.is_complex, k, spec.wall_time)
     return StudyResult(project=project, parameters=params, grid=grid, potential=v, spectrum=spec,
                        masses=project_masses(project, params), scheme=scheme, scheme_reason=reason,

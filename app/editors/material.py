@@ -139,8 +139,9 @@ class MaterialPanel(ProjectPanel):
             masses = table.masses
             mass_text = fmt(masses[0], 4) if len(set(masses)) == 1 else ", ".join(fmt(v, 4) for v in masses)
             src = table.sources
+            g_text = fmt(table.g_factor, 3) if table.g_factor is not None else "not tabulated"
             self.table_values.setText(
-                f"Table: mass {mass_text} m0 (x, y, z), g-factor {fmt(table.g_factor, 3) if table.g_factor is not None else 'not tabulated'}, "
+                f"Table: mass {mass_text} m0 (x, y, z), g-factor {g_text}, "
                 f"permittivity {fmt(table.permittivity, 3) if table.permittivity is not None else '-'}. "
                 f"{table.description}")
             self.table_values.setToolTip("\n".join(f"{k}: {v}" for k, v in src.items()))

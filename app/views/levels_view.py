@@ -458,7 +458,8 @@ class LevelsView(QtWidgets.QWidget):
         self._update_buttons()
 
     def _on_check_progressed(self, stage: str, fraction: float) -> None:
-        if self.checks is not None and self.checks.running("convergence") and not stage.startswith(("building", "factor")):
+        counting = stage.startswith(("building", "factor"))
+        if self.checks is not None and self.checks.running("convergence") and not counting:
             self.converge_label.setText(f"… checking convergence: {stage} {100 * fraction:.0f}%")
 
     def _on_check_estimated(self, kind: str, estimate) -> None:

@@ -68,7 +68,8 @@ class SliceTriptych(QtWidgets.QWidget):
 
     # -- public ---------------------------------------------------------------------------
     def set_volume(self, grid, volume: np.ndarray, *, cmap: str, levels: tuple, length_unit: str,
-                   colour_title: tuple = ("", ""), keep_planes: bool = True, centre_on: np.ndarray | None = None) -> None:
+                   colour_title: tuple = ("", ""), keep_planes: bool = True,
+                   centre_on: np.ndarray | None = None) -> None:
         """Show ``volume`` (indexed [x, y, z] on ``grid``) with colour map ``cmap`` and ``levels``.
 
         New planes go through the weighted centre of ``centre_on`` (default: of ``volume``)."""

@@ -373,7 +373,8 @@ def test_cut_draws_levels_between_the_classical_turning_points(osc):
     h = osc.grid.spacing[0]
     y_cut = abs(float(cut["title"].split("y = ")[1].split()[0]))
     for e_level in (HW, 2 * HW):
-        segs = [line.get_xydata() for line in ax.get_lines() if np.allclose(line.get_xydata()[:, 1], e_level, rtol=1e-3)]
+        segs = [line.get_xydata() for line in ax.get_lines()
+                if np.allclose(line.get_xydata()[:, 1], e_level, rtol=1e-3)]
         assert len(segs) == 1
         x_t = np.sqrt(max(l0 ** 2 * 2 * e_level / HW - y_cut ** 2, 0.0))   # V(x, y_cut) = E on the cut
         assert segs[0][0, 0] == pytest.approx(-x_t, abs=h) and segs[0][1, 0] == pytest.approx(x_t, abs=h)

@@ -169,7 +169,8 @@ def test_count_on_plain_matrices():
     w = np.linalg.eigvalsh(a)
     s = 0.5 * (w[20] + w[21])
     assert count_below(a, s).count == 21
-    assert count_below(sp.csr_matrix(a.real + a.real.T), 0.0).count == int(np.sum(np.linalg.eigvalsh(a.real + a.real.T) < 0))
+    sym = a.real + a.real.T
+    assert count_below(sp.csr_matrix(sym), 0.0).count == int(np.sum(np.linalg.eigvalsh(sym) < 0))
 
 
 def test_not_certified_when_the_factor_does_not_fit(box_solve):
