@@ -782,7 +782,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: int
                     return partial(converged=nlock >= need, cut_flag=True)
             else:
                 m_new = m + grow
-                del hq_buf
+                hq_buf = None                      # release before the larger block is made
                 blk = np.concatenate([blk[:m], _random_block(rng, grow, n, dtype)])
                 hq_buf = np.empty((m_new, n), dtype=dtype)
                 m = m_new
@@ -834,7 +834,7 @@ def lowest_states(h: Hamiltonian, k: int, *, tolerance: float = 1e-8, guard: int
         theta, res = orthonormalize_and_rr(nlock)
         cut = theta[-1]
 
-    del hq_buf, fbuf
+    hq_buf = fbuf = None                           # release the work buffers before the result
 
     result = partial(converged=True)
     # normalise phases for readability: real states, largest component positive

@@ -302,7 +302,8 @@ def caption_lines(project, *, parameters: dict | None = None, result=None, sweep
     if masses and len(set(masses)) == 1:
         mtext = f"m* = {_num(masses[0])} {_pretty_unit(u.mass_unit)}"
     elif masses:
-        mtext = "m* = (" + ", ".join(_num(m) for m in masses) + f") {_pretty_unit(u.mass_unit)} along ({', '.join('xyz'[:nd])})"
+        axes = ", ".join("xyz"[:nd])
+        mtext = "m* = (" + ", ".join(_num(m) for m in masses) + f") {_pretty_unit(u.mass_unit)} along ({axes})"
     else:
         mtext = "m* unresolved"
     mat = f"Material: {name}, {mtext}" + (f", g* = {_num(gfac)}" if gfac is not None else "")
@@ -652,7 +653,8 @@ def _levels_panel(result, highlight: Sequence[int], convergence=None) -> dict:
         panel["splittings"] = [{"lower": int(sp.lower), "upper": int(sp.upper), "resolved": bool(sp.resolved)}
                                for sp in splittings]
         from .convergence_report import summary_words
-        panel["check"] = f"convergence checked on {len(convergence.grids)} grids: {summary_words(convergence, splittings)}"
+        words = summary_words(convergence, splittings)
+        panel["check"] = f"convergence checked on {len(convergence.grids)} grids: {words}"
     panel["decimals"] = _decimals(np.array([float(np.mean(e[g])) for g in groups]), ignore_below=0.01)
     try:
         from .bound import box_states
