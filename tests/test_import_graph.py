@@ -111,3 +111,32 @@ def test_no_import_cycles(graph):
     # a package's __init__ that re-exports its submodules is imported by them only through their
     # own package-relative imports; those are cycles too and must not exist
     assert cycles == []
+
+
+#: the one module allowed to unpickle: it reads replies from the window's own child process over a
+#: private pipe (app.checks.CountProcess), never a file or anything a user supplies
+_PICKLE_READERS = {"app.count_server"}
+
+
+def test_no_code_is_run_from_data():
+    """Opening a project or a map never runs code: no eval/exec anywhere in core or app, and
+    unpickling only in the count server's private pipe (common practice: the pickle documentation
+    warns that unpickling can run arbitrary code)."""
+    offenders = []
+    for name, path in _modules().items():
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"), filename=str(path))):
+            if not isinstance(node, ast.Call):
+                continue
+            fn = node.func
+            called = fn.id if isinstance(fn, ast.Name) else fn.attr if isinstance(fn, ast.Attribute) else ""
+            owner = fn.value.id if isinstance(fn, ast.Attribute) and isinstance(fn.value, ast.Name) else ""
+            if called in ("eval", "exec") and not owner:
+                offenders.append(f"{name}:{node.lineno} {called}()")
+            if owner in ("pickle", "marshal", "dill", "cloudpickle") and called.startswith("load") \
+                    and name not in _PICKLE_READERS:
+                offenders.append(f"{name}:{node.lineno} {owner}.{called}()")
+            if called == "load" and owner == "np":
+                allow = [k for k in node.keywords if k.arg == "allow_pickle"]
+                if not allow or not (isinstance(allow[0].value, ast.Constant) and allow[0].value.value is False):
+                    offenders.append(f"{name}:{node.lineno} np.load without allow_pickle=False")
+    assert offenders == []
