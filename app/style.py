@@ -9,7 +9,7 @@ __all__ = ["configure_pyqtgraph", "share_gl_contexts",
 #: row j (y), so a potential or a state is passed to ``ImageItem`` as it is, never transposed.
 IMAGE_AXIS_ORDER = "col-major"
 
-CAUTION = ("Results come from an idealised single-particle model. They are not settings for a real "
+CAUTION = ("Results come from an idealised effective-mass model. They are not settings for a real "
            "device or experiment, and do not replace your lab's own safety rules for high voltages, "
            "cryogenics or lasers.")
 

@@ -338,7 +338,7 @@ def caption_lines(project, *, parameters: dict | None = None, result=None, sweep
                      f"({vals.size} points)")
     extra.append(f"Units: lengths in {L}, energies in {E} ({u.name} unit system)")
     extra.append(f"Wellscape {__version__}, project hash {hash_text}" if hash_text else f"Wellscape {__version__}")
-    extra.append("idealised single-particle effective-mass model, not a device specification")
+    extra.append("idealised effective-mass model, not a device specification")
     lines.append(".  ".join(extra) + ".")
     return lines
 

@@ -34,6 +34,7 @@ from .common import (
     wave_unit,
 )
 from .isosurface import IsosurfaceWidget, Surface, level_enclosing
+from .pair_density_panel import PairDensityPanel
 from .slices import SliceTriptych
 
 __all__ = ["StatesView", "StateTile"]
@@ -209,7 +210,16 @@ class StatesView(QtWidgets.QWidget):
         il.addWidget(self.stale_note)
         il.addLayout(bar)
         il.addWidget(split, 1)
-        self.stack = HintStack(inner, _HINT)
+        # two-electron projects: a second page with where the two electrons are
+        self.pair_panel = PairDensityPanel(session)
+        self.kind_tabs = QtWidgets.QTabWidget()
+        self.kind_tabs.setDocumentMode(True)
+        self.kind_tabs.addTab(inner, "One electron: orbitals")
+        self.kind_tabs.addTab(self.pair_panel, "Two electrons: where they are")
+        self._update_pair_tab()
+        if hasattr(session, "two_electron_changed"):
+            session.two_electron_changed.connect(self._update_pair_tab)
+        self.stack = HintStack(self.kind_tabs, _HINT)
         lay = QtWidgets.QVBoxLayout(self)
         lay.setContentsMargins(4, 4, 4, 4)
         lay.addWidget(self.stack)
@@ -221,6 +231,14 @@ class StatesView(QtWidgets.QWidget):
             session.stale_changed.connect(self._update_stale)
         if getattr(session, "result", None) is not None:
             self._on_solved(session.result)
+
+    def _update_pair_tab(self) -> None:
+        """The two-electron page is offered only while there are two-electron levels to draw."""
+        on = self.pair_panel.available
+        self.kind_tabs.tabBar().setVisible(on)
+        self.kind_tabs.setTabVisible(1, on)
+        if not on:
+            self.kind_tabs.setCurrentIndex(0)
 
     def _update_stale(self) -> None:
         """Grey the states and say so when they are not of the project as it is now."""

@@ -112,6 +112,15 @@ def main(argv=None) -> int:
         for i in range(window.tabs.count()):
             window.tabs.setCurrentIndex(i)
             shoot(f"{stem}-{window.tabs.tabText(i).lower()}")
+            view = window.tabs.currentWidget()
+            panel = getattr(view, "pair_panel", None)
+            if panel is not None and panel.available:       # two electrons: the pair-density page too
+                view.kind_tabs.setCurrentIndex(1)
+                shoot(f"{stem}-{window.tabs.tabText(i).lower()}-two-electrons")
+                grid = panel.result.grid
+                panel.set_fixed_point((grid.shape[0] // 4, grid.shape[1] // 2))
+                shoot(f"{stem}-{window.tabs.tabText(i).lower()}-two-electrons-fixed")
+                view.kind_tabs.setCurrentIndex(0)
         window.tabs.setCurrentIndex(0)
         window.editors.show_page("grid")
         shoot(f"{stem}-grid-page")

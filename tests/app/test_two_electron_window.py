@@ -148,3 +148,43 @@ def test_opening_another_project_drops_the_two_electron_levels(solved):
     session.new_project()
     assert session.two_electron is None and session.two_electron_message == ""
     assert view.two_electron.pair is None and view.two_electron.isHidden()
+
+
+def test_states_view_shows_where_the_two_electrons_are(session, qtbot):
+    """The States view's second page draws core.pair_density's maps of the session's levels: the
+    one-electron density (normalised to 1 on the grid) and, after a click, the conditional density
+    with the other electron fixed there.  In the double dot's singlet ground state, fixing one
+    electron in the left dot puts the other mostly in the right one (the Coulomb repulsion; at B = 0
+    the ground state is a singlet, E. Lieb, D. Mattis, Phys. Rev. 125, 164 (1962))."""
+    from app.views import StatesView
+    from core.pair_density import conditional_density
+    session.open(SAMPLE)
+    view = StatesView(session)
+    qtbot.addWidget(view)
+    view.show()
+    _solve(session, qtbot)
+    panel = view.pair_panel
+    assert panel.available and view.kind_tabs.isTabVisible(1)
+    grid = session.result.grid
+    rho = panel.shown_density()
+    assert rho.shape == grid.shape
+    assert float(rho.sum()) * grid.volume_element == pytest.approx(1.0, rel=1e-9)
+    x = grid.axes[0]
+    left = (int(np.argmin(np.abs(x - 0.5 * x.min()))), grid.shape[1] // 2)
+    panel.set_fixed_point(left)
+    assert panel.mode == "conditional" and "fixed at" in panel.title.text()
+    shown = panel.shown_density()
+    expected = conditional_density(session.two_electron, session.result.states, grid, left, 0)
+    assert np.allclose(shown, expected)
+    w = grid.volume_element
+    assert float(shown[x > 0].sum()) * w > float(shown[x < 0].sum()) * w       # the other one sits right
+    # a triplet has the exchange hole at the fixed point
+    k = session.two_electron.spin.index("triplet")
+    panel.level.setCurrentIndex(k)
+    assert panel.shown_density()[left] < 1e-10 * panel.shown_density().max()
+    # an edit greys the page; a one-electron project removes it
+    session.set_project(session.project.with_parameters(Vb=3.0), "Vb")
+    assert "Out of date" in panel.stale_note.text()
+    session.set_project(dataclasses.replace(session.project, electrons=1), "one electron")
+    _solve(session, qtbot)
+    assert not panel.available and not view.kind_tabs.isTabVisible(1)
