@@ -216,6 +216,9 @@ def _print_exchange(result, parameter: str, energy_unit: str, parameter_unit: st
         jtxt = "no triplet among the levels" if j is None else format_energy(float(j), float(dj or 0.0), energy_unit)
         at = f"{v:.6g}{(' ' + parameter_unit) if parameter_unit else ''}"
         print(f"  {parameter} = {at:<14} J = {jtxt}")
+    from core.exchange_series import singlet_triplet_crossings
+    for c in singlet_triplet_crossings(result):
+        print("  " + c.words(parameter, parameter_unit))
 
 
 def _print_completeness(result) -> None:

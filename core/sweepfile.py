@@ -15,7 +15,7 @@ from .errors import InputError
 from .limits import MAX_ENERGY
 from .maps import npz_headers
 
-__all__ = ["check_sweep_archive", "validate_sweep", "MAX_SWEEP_BYTES"]
+__all__ = ["check_sweep_archive", "validate_sweep", "validate_two_electron", "MAX_SWEEP_BYTES"]
 
 #: any one array of a sweep file
 MAX_SWEEP_BYTES = 1 * 2**30
@@ -79,4 +79,39 @@ def validate_sweep(sweep, source: str):
             raise InputError(f"{where}: fit must be an object and reason text")
     if not isinstance(sweep.parameter, str) or not sweep.parameter or len(sweep.parameter) > 200:
         raise InputError(f"{source}: the swept parameter's name must be short text")
+    if getattr(sweep, "two_electron", None) is not None:
+        validate_two_electron(sweep.two_electron, p, f"{source}: two_electron")
     return sweep
+
+
+def _number_or_none(v, where: str) -> None:
+    if v is None:
+        return
+    if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or abs(v) > MAX_ENERGY:
+        raise InputError(f"{where} must be a finite number or null")
+
+
+def validate_two_electron(two, points: int, where: str) -> None:
+    """The per-point two-electron columns of a sweep (:func:`core.two_electron.sweep_columns`)."""
+    if not isinstance(two, dict):
+        raise InputError(f"{where} must be an object")
+    for key in ("energies", "spin", "exchange"):
+        if not isinstance(two.get(key), list) or len(two[key]) != points:
+            raise InputError(f"{where}.{key} must be a list with one entry per swept value ({points})")
+    for key in ("exchange", "exchange_uncertainty", "zeeman_splitting"):
+        col = two.get(key)
+        if col is None and key != "exchange":
+            continue
+        if not isinstance(col, list) or len(col) != points:
+            raise InputError(f"{where}.{key} must be a list with one entry per swept value ({points})")
+        for v in col:
+            _number_or_none(v, f"{where}.{key}")
+    for i, (es, ss) in enumerate(zip(two["energies"], two["spin"])):
+        if not isinstance(es, list) or not isinstance(ss, list) or len(es) != len(ss) or len(es) > 10_000:
+            raise InputError(f"{where}: point {i} must list as many energies as spins")
+        for e in es:
+            if e is None:
+                raise InputError(f"{where}.energies: point {i} holds a missing energy")
+            _number_or_none(e, f"{where}.energies")
+        if any(s not in ("singlet", "triplet") for s in ss):
+            raise InputError(f"{where}.spin: point {i}: each spin must be \"singlet\" or \"triplet\"")

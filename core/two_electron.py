@@ -384,12 +384,14 @@ def two_electron_for_study(result, **options) -> TwoElectronResult:
 def sweep_columns(points) -> dict:
     """The ``two_electron`` section of a sweep's JSON from one :class:`TwoElectronResult` per point:
     ``{"energies": [[...]], "spin": [[...]], "exchange": [...], "exchange_uncertainty": [...],
-    "orbitals": [...], "converged": [...]}`` (energies in the project's energy unit)."""
+    "orbitals": [...], "converged": [...], "zeeman_splitting": [...]}`` (energies in the project's
+    energy unit; the Zeeman splitting None without spin or field)."""
     points = list(points)
     return {"energies": [p.energies.tolist() for p in points], "spin": [list(p.spin) for p in points],
-            "exchange": [p.exchange for p in points],
+            "exchange": [p.exchange if np.isfinite(p.exchange) else None for p in points],
             "exchange_uncertainty": [p.to_dict()["exchange_uncertainty"] for p in points],
-            "orbitals": [p.orbitals for p in points], "converged": [p.converged for p in points]}
+            "orbitals": [p.orbitals for p in points], "converged": [p.converged for p in points],
+            "zeeman_splitting": [p.zeeman_splitting for p in points]}
 
 
 def solve_two_electron(project, *, parameters: Mapping[str, float] | None = None, orbitals: int | None = None,

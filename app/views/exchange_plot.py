@@ -11,6 +11,7 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtWidgets
 
+from core.exchange_series import exchange_points
 from core.export import parameter_unit
 from core.formatting import readable_energy
 
@@ -21,18 +22,6 @@ __all__ = ["ExchangePlot", "exchange_points"]
 _PEN = pg.mkPen("#1d3557", width=2)
 _ERR_PEN = pg.mkPen("#6c757d", width=1.5)
 _MISSING_PEN = pg.mkPen("#9b1c1c", width=1.5)
-
-
-def exchange_points(sweep) -> dict:
-    """Per point of ``sweep``: x, J, its uncertainty (NaN when unknown), and which points can be shown
-    on a log scale (``positive``: J finite and > 0) or have no triplet (``no_triplet``: J not finite)."""
-    two = sweep.two_electron
-    x = np.asarray(sweep.values, dtype=float)
-    j = np.array([np.nan if v is None else float(v) for v in two["exchange"]], dtype=float)
-    raw = two.get("exchange_uncertainty") or [None] * j.size
-    dj = np.array([np.nan if v is None else float(v) for v in raw], dtype=float)
-    finite = np.isfinite(j)
-    return {"x": x, "exchange": j, "uncertainty": dj, "positive": finite & (j > 0), "no_triplet": ~finite}
 
 
 class ExchangePlot(QtWidgets.QWidget):

@@ -29,6 +29,8 @@ def save_sweep(result: SweepResult, path) -> tuple:
         arrays[f"obs_{name}"] = arr
     if result.states is not None:
         arrays["states"] = result.states
+    if result.two_electron is not None:
+        arrays["two_electron"] = np.array(json.dumps(result.two_electron))
     tmp = npz.with_name(npz.stem + ".tmp.npz")
     np.savez_compressed(tmp, **arrays)
     os.replace(tmp, npz)
@@ -63,9 +65,11 @@ def load_sweep(path) -> SweepResult:
         approaches = tuple(Anticrossing.from_dict(a) for a in json.loads(str(data["approaches"])))
         obs = {k[4:]: v for k, v in data.items() if k.startswith("obs_")}
         notes = tuple(json.loads(str(data["notes"]))) if "notes" in data else ()
+        two = json.loads(str(data["two_electron"])) if "two_electron" in data else None
         result = SweepResult(parameter=str(data["parameter"]), values=data["values"], energies=data["energies"],
                              tracks=data["tracks"], anticrossings=approaches, observables=obs, project=project,
-                             states=data.get("states"), complete=bool(data.get("complete", True)), notes=notes)
+                             states=data.get("states"), complete=bool(data.get("complete", True)), notes=notes,
+                             two_electron=two)
         return validate_sweep(result, f"sweep file {p}")
     except (KeyError, ValueError, TypeError, AttributeError) as exc:
         raise InputError(f"{p} is not a complete sweep file ({exc})") from None

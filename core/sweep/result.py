@@ -57,6 +57,14 @@ class SweepResult:
         """(P,) True where a level count proved that no level below the top one was missed."""
         return np.array([bool(c is not None and c.certified) for c in self.checks], dtype=bool)
 
+    def _two_electron_json(self) -> dict:
+        """The per-point columns and the singlet-triplet crossings (core.exchange_series)."""
+        from dataclasses import asdict
+
+        from ..exchange_series import singlet_triplet_crossings
+        crossings = [dict(asdict(c), between=list(c.between)) for c in singlet_triplet_crossings(self)]
+        return dict(self.two_electron, singlet_triplet_crossings=crossings)
+
     def to_json_dict(self) -> dict:
         return {"parameter": self.parameter, "values": self.values.tolist(),
                 "energies": self.energies.tolist(), "tracks": self.tracks.tolist(),
@@ -67,5 +75,5 @@ class SweepResult:
                 "converged": (self.converged.tolist() if self.converged is not None
                               else [True] * int(self.values.size)),
                 "refinement_solves": int(self.refinement_solves),
-                **({"two_electron": self.two_electron} if self.two_electron is not None else {}),
+                **({"two_electron": self._two_electron_json()} if self.two_electron is not None else {}),
                 "units": self.units.describe(), "complete": self.complete, "notes": list(self.notes)}
